@@ -1,0 +1,3 @@
+//! escapade (work in progress)
+pub mod potential;
+pub mod units;

@@ -1,0 +1,624 @@
+//! User formulas in one variable `x`: a small parser, exact symbolic derivatives and a tree evaluator.
+//!
+//! Grammar (precedence low to high): `+ -`, `* /`, unary `-`, `^` (right-associative, so `-x^2` is
+//! `-(x^2)` and `2^-x` is allowed), function calls and parentheses. Functions: exp, ln, sqrt, sin,
+//! cos, tan, sinh, cosh, tanh, abs. Named constants: `pi`, `e` and any constants the scenario defines.
+//! Constants are folded at parse time; derivatives are built by the usual rules (chain, product,
+//! quotient, `d a^b = a^b (b' ln a + b a'/a)`) and simplified by constant folding. `d|a| = sign(a) a'`
+//! (the kink itself is not a stationary point the scan can see).
+//!
+//! Errors carry the 1-based character position in the formula.
+
+use std::collections::BTreeMap;
+use std::fmt;
+use thiserror::Error;
+
+/// A parse error with its position (1-based, in characters).
+#[derive(Debug, Error, Clone, PartialEq)]
+#[error("at position {position}: {message}")]
+pub struct FormulaError {
+    /// 1-based character position
+    pub position: usize,
+    /// what is wrong
+    pub message: String,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Func {
+    Exp,
+    Ln,
+    Sqrt,
+    Sin,
+    Cos,
+    Tan,
+    Sinh,
+    Cosh,
+    Tanh,
+    Abs,
+    Sign,
+}
+
+impl Func {
+    fn from_name(s: &str) -> Option<Self> {
+        Some(match s {
+            "exp" => Self::Exp,
+            "ln" => Self::Ln,
+            "sqrt" => Self::Sqrt,
+            "sin" => Self::Sin,
+            "cos" => Self::Cos,
+            "tan" => Self::Tan,
+            "sinh" => Self::Sinh,
+            "cosh" => Self::Cosh,
+            "tanh" => Self::Tanh,
+            "abs" => Self::Abs,
+            _ => return None,
+        })
+    }
+    fn name(self) -> &'static str {
+        match self {
+            Self::Exp => "exp",
+            Self::Ln => "ln",
+            Self::Sqrt => "sqrt",
+            Self::Sin => "sin",
+            Self::Cos => "cos",
+            Self::Tan => "tan",
+            Self::Sinh => "sinh",
+            Self::Cosh => "cosh",
+            Self::Tanh => "tanh",
+            Self::Abs => "abs",
+            Self::Sign => "sign",
+        }
+    }
+    fn apply(self, v: f64) -> f64 {
+        match self {
+            Self::Exp => v.exp(),
+            Self::Ln => v.ln(),
+            Self::Sqrt => v.sqrt(),
+            Self::Sin => v.sin(),
+            Self::Cos => v.cos(),
+            Self::Tan => v.tan(),
+            Self::Sinh => v.sinh(),
+            Self::Cosh => v.cosh(),
+            Self::Tanh => v.tanh(),
+            Self::Abs => v.abs(),
+            Self::Sign => {
+                if v > 0.0 {
+                    1.0
+                } else if v < 0.0 {
+                    -1.0
+                } else {
+                    0.0
+                }
+            }
+        }
+    }
+}
+
+/// An expression tree in `x`.
+#[derive(Debug, Clone, PartialEq)]
+enum Node {
+    Num(f64),
+    X,
+    Neg(Box<Node>),
+    Add(Box<Node>, Box<Node>),
+    Sub(Box<Node>, Box<Node>),
+    Mul(Box<Node>, Box<Node>),
+    Div(Box<Node>, Box<Node>),
+    /// integer power, evaluated with `powi` (exact for negative bases)
+    PowI(Box<Node>, i32),
+    Pow(Box<Node>, Box<Node>),
+    Call(Func, Box<Node>),
+}
+
+use Node::*;
+
+fn num(v: f64) -> Node {
+    Num(v)
+}
+
+// Smart constructors fold constants and drop neutral elements so derivatives stay small.
+fn add(a: Node, b: Node) -> Node {
+    match (a, b) {
+        (Num(x), Num(y)) => Num(x + y),
+        (Num(z), o) | (o, Num(z)) if z == 0.0 => o,
+        (a, b) => Add(Box::new(a), Box::new(b)),
+    }
+}
+fn sub(a: Node, b: Node) -> Node {
+    match (a, b) {
+        (Num(x), Num(y)) => Num(x - y),
+        (o, Num(z)) if z == 0.0 => o,
+        (Num(z), o) if z == 0.0 => neg(o),
+        (a, b) => Sub(Box::new(a), Box::new(b)),
+    }
+}
+fn mul(a: Node, b: Node) -> Node {
+    match (a, b) {
+        (Num(x), Num(y)) => Num(x * y),
+        (Num(z), _) | (_, Num(z)) if z == 0.0 => Num(0.0),
+        (Num(z), o) | (o, Num(z)) if z == 1.0 => o,
+        (a, b) => Mul(Box::new(a), Box::new(b)),
+    }
+}
+fn div(a: Node, b: Node) -> Node {
+    match (a, b) {
+        (Num(x), Num(y)) => Num(x / y),
+        (Num(z), _) if z == 0.0 => Num(0.0),
+        (o, Num(z)) if z == 1.0 => o,
+        (a, b) => Div(Box::new(a), Box::new(b)),
+    }
+}
+fn neg(a: Node) -> Node {
+    match a {
+        Num(x) => Num(-x),
+        Neg(inner) => *inner,
+        o => Neg(Box::new(o)),
+    }
+}
+fn powi(a: Node, n: i32) -> Node {
+    match (a, n) {
+        (_, 0) => Num(1.0),
+        (o, 1) => o,
+        (Num(x), n) => Num(x.powi(n)),
+        (o, n) => PowI(Box::new(o), n),
+    }
+}
+fn pow(a: Node, b: Node) -> Node {
+    match (a, b) {
+        (a, Num(y)) if y.fract() == 0.0 && y.abs() <= 64.0 => powi(a, y as i32),
+        (Num(x), Num(y)) => Num(x.powf(y)),
+        (a, b) => Pow(Box::new(a), Box::new(b)),
+    }
+}
+fn call(f: Func, a: Node) -> Node {
+    match a {
+        Num(x) => Num(f.apply(x)),
+        o => Call(f, Box::new(o)),
+    }
+}
+
+impl Node {
+    fn eval(&self, x: f64) -> f64 {
+        match self {
+            Num(v) => *v,
+            X => x,
+            Neg(a) => -a.eval(x),
+            Add(a, b) => a.eval(x) + b.eval(x),
+            Sub(a, b) => a.eval(x) - b.eval(x),
+            Mul(a, b) => a.eval(x) * b.eval(x),
+            Div(a, b) => a.eval(x) / b.eval(x),
+            PowI(a, n) => a.eval(x).powi(*n),
+            Pow(a, b) => a.eval(x).powf(b.eval(x)),
+            Call(f, a) => f.apply(a.eval(x)),
+        }
+    }
+
+    fn deriv(&self) -> Node {
+        match self {
+            Num(_) => num(0.0),
+            X => num(1.0),
+            Neg(a) => neg(a.deriv()),
+            Add(a, b) => add(a.deriv(), b.deriv()),
+            Sub(a, b) => sub(a.deriv(), b.deriv()),
+            Mul(a, b) => add(
+                mul(a.deriv(), (**b).clone()),
+                mul((**a).clone(), b.deriv()),
+            ),
+            Div(a, b) => div(
+                sub(
+                    mul(a.deriv(), (**b).clone()),
+                    mul((**a).clone(), b.deriv()),
+                ),
+                powi((**b).clone(), 2),
+            ),
+            PowI(a, n) => mul(
+                mul(num(f64::from(*n)), powi((**a).clone(), n - 1)),
+                a.deriv(),
+            ),
+            Pow(a, b) => {
+                // d a^b = a^b (b' ln a + b a' / a)
+                let here = pow((**a).clone(), (**b).clone());
+                let term = add(
+                    mul(b.deriv(), call(Func::Ln, (**a).clone())),
+                    div(mul((**b).clone(), a.deriv()), (**a).clone()),
+                );
+                mul(here, term)
+            }
+            Call(f, a) => {
+                let inner = (**a).clone();
+                let outer = match f {
+                    Func::Exp => call(Func::Exp, inner),
+                    Func::Ln => div(num(1.0), inner),
+                    Func::Sqrt => div(num(0.5), call(Func::Sqrt, inner)),
+                    Func::Sin => call(Func::Cos, inner),
+                    Func::Cos => neg(call(Func::Sin, inner)),
+                    Func::Tan => div(num(1.0), powi(call(Func::Cos, inner), 2)),
+                    Func::Sinh => call(Func::Cosh, inner),
+                    Func::Cosh => call(Func::Sinh, inner),
+                    Func::Tanh => sub(num(1.0), powi(call(Func::Tanh, inner), 2)),
+                    Func::Abs => call(Func::Sign, inner),
+                    Func::Sign => num(0.0),
+                };
+                mul(outer, a.deriv())
+            }
+        }
+    }
+}
+
+impl fmt::Display for Node {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Num(v) => write!(f, "{v}"),
+            X => write!(f, "x"),
+            Neg(a) => write!(f, "(-{a})"),
+            Add(a, b) => write!(f, "({a} + {b})"),
+            Sub(a, b) => write!(f, "({a} - {b})"),
+            Mul(a, b) => write!(f, "({a}*{b})"),
+            Div(a, b) => write!(f, "({a}/{b})"),
+            PowI(a, n) => write!(f, "({a})^{n}"),
+            Pow(a, b) => write!(f, "({a})^({b})"),
+            Call(g, a) => write!(f, "{}({a})", g.name()),
+        }
+    }
+}
+
+#[derive(Debug, Clone, PartialEq)]
+enum Tok {
+    Num(f64),
+    Ident(String),
+    Op(char),
+    LParen,
+    RParen,
+    End,
+}
+
+struct Parser<'a> {
+    toks: Vec<(Tok, usize)>,
+    pos: usize,
+    constants: &'a BTreeMap<String, f64>,
+}
+
+fn err(position: usize, message: impl Into<String>) -> FormulaError {
+    FormulaError {
+        position,
+        message: message.into(),
+    }
+}
+
+fn tokenize(src: &str) -> Result<Vec<(Tok, usize)>, FormulaError> {
+    let chars: Vec<char> = src.chars().collect();
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < chars.len() {
+        let c = chars[i];
+        let at = i + 1;
+        if c.is_whitespace() {
+            i += 1;
+        } else if c.is_ascii_digit() || c == '.' {
+            let start = i;
+            while i < chars.len() && (chars[i].is_ascii_digit() || chars[i] == '.') {
+                i += 1;
+            }
+            // exponent: e or E followed by optional sign and at least one digit
+            if i < chars.len() && (chars[i] == 'e' || chars[i] == 'E') {
+                let mut j = i + 1;
+                if j < chars.len() && (chars[j] == '+' || chars[j] == '-') {
+                    j += 1;
+                }
+                if j < chars.len() && chars[j].is_ascii_digit() {
+                    while j < chars.len() && chars[j].is_ascii_digit() {
+                        j += 1;
+                    }
+                    i = j;
+                }
+            }
+            let text: String = chars[start..i].iter().collect();
+            let v: f64 = text
+                .parse()
+                .map_err(|_| err(at, format!("malformed number \"{text}\"")))?;
+            out.push((Tok::Num(v), at));
+        } else if c.is_alphabetic() || c == '_' {
+            let start = i;
+            while i < chars.len() && (chars[i].is_alphanumeric() || chars[i] == '_') {
+                i += 1;
+            }
+            out.push((Tok::Ident(chars[start..i].iter().collect()), at));
+        } else {
+            let t = match c {
+                '+' | '-' | '*' | '/' | '^' => Tok::Op(c),
+                '(' => Tok::LParen,
+                ')' => Tok::RParen,
+                _ => return Err(err(at, format!("unexpected character '{c}'"))),
+            };
+            out.push((t, at));
+            i += 1;
+        }
+    }
+    out.push((Tok::End, chars.len() + 1));
+    Ok(out)
+}
+
+impl Parser<'_> {
+    fn peek(&self) -> &Tok {
+        &self.toks[self.pos].0
+    }
+    fn at(&self) -> usize {
+        self.toks[self.pos].1
+    }
+    fn bump(&mut self) -> (Tok, usize) {
+        let t = self.toks[self.pos].clone();
+        if self.pos + 1 < self.toks.len() {
+            self.pos += 1;
+        }
+        t
+    }
+
+    fn expr(&mut self) -> Result<Node, FormulaError> {
+        let mut lhs = self.term()?;
+        loop {
+            match self.peek() {
+                Tok::Op('+') => {
+                    self.bump();
+                    lhs = add(lhs, self.term()?);
+                }
+                Tok::Op('-') => {
+                    self.bump();
+                    lhs = sub(lhs, self.term()?);
+                }
+                _ => return Ok(lhs),
+            }
+        }
+    }
+
+    fn term(&mut self) -> Result<Node, FormulaError> {
+        let mut lhs = self.unary()?;
+        loop {
+            match self.peek() {
+                Tok::Op('*') => {
+                    self.bump();
+                    lhs = mul(lhs, self.unary()?);
+                }
+                Tok::Op('/') => {
+                    self.bump();
+                    lhs = div(lhs, self.unary()?);
+                }
+                _ => return Ok(lhs),
+            }
+        }
+    }
+
+    fn unary(&mut self) -> Result<Node, FormulaError> {
+        match self.peek() {
+            Tok::Op('-') => {
+                self.bump();
+                Ok(neg(self.unary()?))
+            }
+            Tok::Op('+') => {
+                self.bump();
+                self.unary()
+            }
+            _ => self.power(),
+        }
+    }
+
+    fn power(&mut self) -> Result<Node, FormulaError> {
+        let base = self.primary()?;
+        if let Tok::Op('^') = self.peek() {
+            self.bump();
+            let exponent = self.unary()?;
+            return Ok(pow(base, exponent));
+        }
+        Ok(base)
+    }
+
+    fn primary(&mut self) -> Result<Node, FormulaError> {
+        let (tok, at) = self.bump();
+        let node = match tok {
+            Tok::Num(v) => Num(v),
+            Tok::LParen => {
+                let inner = self.expr()?;
+                self.expect_close(at)?;
+                inner
+            }
+            Tok::Ident(name) => {
+                if let Some(f) = Func::from_name(&name) {
+                    if *self.peek() != Tok::LParen {
+                        return Err(err(self.at(), format!("expected '(' after {name}")));
+                    }
+                    let open = self.bump().1;
+                    let arg = self.expr()?;
+                    self.expect_close(open)?;
+                    call(f, arg)
+                } else if name == "x" {
+                    X
+                } else if let Some(v) = self.constants.get(&name) {
+                    Num(*v)
+                } else if name == "pi" {
+                    Num(std::f64::consts::PI)
+                } else if name == "e" {
+                    Num(std::f64::consts::E)
+                } else {
+                    let mut known: Vec<&str> = vec!["x", "pi", "e"];
+                    known.extend(self.constants.keys().map(String::as_str));
+                    return Err(err(
+                        at,
+                        format!(
+                            "unknown name \"{name}\" (variable x; constants {}; functions exp, ln, sqrt, sin, cos, tan, sinh, cosh, tanh, abs)",
+                            known[1..].join(", ")
+                        ),
+                    ));
+                }
+            }
+            Tok::End => return Err(err(at, "formula ends where a value was expected")),
+            Tok::RParen => return Err(err(at, "unexpected ')'")),
+            Tok::Op(c) => return Err(err(at, format!("unexpected operator '{c}'"))),
+        };
+        // A value directly followed by another value is a missing operator ("2x", "x(1+x)").
+        match self.peek() {
+            Tok::Num(_) | Tok::Ident(_) | Tok::LParen => Err(err(
+                self.at(),
+                "expected an operator here (write products with '*')",
+            )),
+            _ => Ok(node),
+        }
+    }
+
+    fn expect_close(&mut self, open: usize) -> Result<(), FormulaError> {
+        match self.peek() {
+            Tok::RParen => {
+                self.bump();
+                Ok(())
+            }
+            _ => Err(err(
+                self.at(),
+                format!("expected ')' to close the '(' at position {open}"),
+            )),
+        }
+    }
+}
+
+/// A parsed formula f(x) with its first and second derivatives.
+#[derive(Debug, Clone)]
+pub struct Formula {
+    source: String,
+    f: Node,
+    d1: Node,
+    d2: Node,
+}
+
+impl Formula {
+    /// Parses `src` with the given named constants.
+    ///
+    /// # Errors
+    /// Syntax errors and unknown names, with the 1-based position in `src`.
+    pub fn parse(src: &str, constants: &BTreeMap<String, f64>) -> Result<Self, FormulaError> {
+        for name in constants.keys() {
+            if name == "x" || Func::from_name(name).is_some() {
+                return Err(err(
+                    1,
+                    format!("constant name \"{name}\" is reserved (the variable or a function)"),
+                ));
+            }
+        }
+        let toks = tokenize(src)?;
+        let mut p = Parser {
+            toks,
+            pos: 0,
+            constants,
+        };
+        let f = p.expr()?;
+        match p.peek() {
+            Tok::End => {}
+            Tok::RParen => return Err(err(p.at(), "unmatched ')'")),
+            _ => return Err(err(p.at(), "unexpected text after the end of the formula")),
+        }
+        let d1 = f.deriv();
+        let d2 = d1.deriv();
+        Ok(Self {
+            source: src.to_string(),
+            f,
+            d1,
+            d2,
+        })
+    }
+
+    /// The formula as written.
+    pub fn source(&self) -> &str {
+        &self.source
+    }
+    /// f(x)
+    #[inline]
+    pub fn value(&self, x: f64) -> f64 {
+        self.f.eval(x)
+    }
+    /// f'(x), from the symbolic derivative
+    #[inline]
+    pub fn d1(&self, x: f64) -> f64 {
+        self.d1.eval(x)
+    }
+    /// f''(x), from the symbolic second derivative
+    #[inline]
+    pub fn d2(&self, x: f64) -> f64 {
+        self.d2.eval(x)
+    }
+    /// The first derivative, printed (for diagnostics).
+    pub fn derivative_text(&self) -> String {
+        self.d1.to_string()
+    }
+    /// True if the formula does not depend on x.
+    pub fn is_constant(&self) -> bool {
+        matches!(self.f, Num(_))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn p(s: &str) -> Formula {
+        Formula::parse(s, &BTreeMap::new()).unwrap()
+    }
+
+    #[test]
+    fn precedence_and_associativity() {
+        assert_eq!(p("-2^2").value(0.0), -4.0);
+        assert_eq!(p("2^3^2").value(0.0), 512.0);
+        assert_eq!(p("2^-1").value(0.0), 0.5);
+        assert_eq!(p("1 - 2 - 3").value(0.0), -4.0);
+        assert_eq!(p("8/4/2").value(0.0), 1.0);
+        assert_eq!(p("1.5e2 + 2E-1").value(0.0), 150.2);
+        assert!((p("pi").value(0.0) - std::f64::consts::PI).abs() < 1e-15);
+        assert!((p("ln(e)").value(0.0) - 1.0).abs() < 1e-15);
+    }
+
+    // Derivatives checked against the hand-derived closed forms (common practice, no source).
+    #[test]
+    fn symbolic_derivatives() {
+        let f = p("4.5*(x^2-1)^2 + 0.6*sin(3*x)");
+        for x in [-1.3f64, -0.2, 0.0, 0.7, 2.1] {
+            let d1 = 18.0 * x * (x * x - 1.0) + 1.8 * (3.0 * x).cos();
+            let d2 = 18.0 * (3.0 * x * x - 1.0) - 5.4 * (3.0 * x).sin();
+            assert!((f.d1(x) - d1).abs() < 1e-12 * (1.0 + d1.abs()));
+            assert!((f.d2(x) - d2).abs() < 1e-12 * (1.0 + d2.abs()));
+        }
+        let g = p("x^x + sqrt(x) + ln(x) + tanh(x) + cosh(x) + abs(x - 3) + exp(-x)/x");
+        let x: f64 = 1.7;
+        let d1 = x.powf(x) * (x.ln() + 1.0) + 0.5 / x.sqrt() + 1.0 / x
+            + (1.0 - x.tanh().powi(2))
+            + x.sinh()
+            - 1.0
+            + (-(-x).exp() * x - (-x).exp()) / (x * x);
+        assert!((g.d1(x) - d1).abs() < 1e-12 * d1.abs());
+    }
+
+    #[test]
+    fn errors_carry_positions() {
+        let e = Formula::parse("2*x + foo", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 7);
+        assert!(e.message.contains("foo"));
+        let e = Formula::parse("(x + 1", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 7);
+        let e = Formula::parse("2x", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 2);
+        let e = Formula::parse("x # 2", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 3);
+        let e = Formula::parse("x +", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 4);
+        let e = Formula::parse("sin x", &BTreeMap::new()).unwrap_err();
+        assert_eq!(e.position, 5);
+        assert!(Formula::parse("", &BTreeMap::new()).is_err());
+        assert!(Formula::parse("x)", &BTreeMap::new()).is_err());
+    }
+
+    #[test]
+    fn named_constants() {
+        let mut c = BTreeMap::new();
+        c.insert("Eb".to_string(), 5.0);
+        c.insert("a".to_string(), 2.0);
+        let f = Formula::parse("Eb*((x/a)^2 - 1)^2", &c).unwrap();
+        assert_eq!(f.value(0.0), 5.0);
+        assert_eq!(f.value(2.0), 0.0);
+        c.insert("sin".to_string(), 1.0);
+        assert!(Formula::parse("x", &c).is_err());
+    }
+}

@@ -1,0 +1,555 @@
+//! Profile tables: reading a file of x, U (and optionally σ_U and D) rows, and the not-a-knot cubic
+//! spline that makes U' and U'' exist.
+//!
+//! Spline: C² piecewise cubic through every row with the not-a-knot end conditions (the third
+//! derivative is continuous across the second and the second-to-last knots; de Boor, A Practical
+//! Guide to Splines, ch. IV), which keeps O(h⁴) accuracy up to the ends where a natural spline
+//! would force U'' = 0. Outside the table the potential continues as its first-order Taylor
+//! expansion plus a steep harmonic wall, `U = U_end + U'_end d + K d²/2`, with K chosen so the wall
+//! rises [`WALL_RISE_KT`] over [`WALL_WIDTH_FRACTION`] of the table's span: dynamics that overshoot
+//! the end are pushed straight back (a reflecting end), while analytic results treat the ends as
+//! exact reflecting boundaries.
+
+use super::Potential;
+use thiserror::Error;
+
+/// Wall height (kT) reached at a distance [`WALL_WIDTH_FRACTION`]·span outside the table.
+pub const WALL_RISE_KT: f64 = 20.0;
+/// Wall width as a fraction of the table span.
+pub const WALL_WIDTH_FRACTION: f64 = 0.01;
+/// Fewest rows a table may have: a not-a-knot spline needs four points.
+pub const MIN_ROWS: usize = 4;
+
+/// A problem in a table file, with the 1-based line number where it applies.
+#[derive(Debug, Error, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum TableError {
+    /// A problem on one line.
+    #[error("line {line}: {message}")]
+    Line {
+        /// 1-based line number
+        line: usize,
+        /// what is wrong
+        message: String,
+    },
+    /// A problem with the file as a whole.
+    #[error("{0}")]
+    Whole(String),
+}
+
+fn line_err(line: usize, message: impl Into<String>) -> TableError {
+    TableError::Line {
+        line,
+        message: message.into(),
+    }
+}
+
+/// The columns of a table, as read (in the file's units).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Columns {
+    /// positions, strictly increasing
+    pub x: Vec<f64>,
+    /// U values
+    pub u: Vec<f64>,
+    /// standard errors of U, if given
+    pub sigma_u: Option<Vec<f64>>,
+    /// diffusion coefficients, if given
+    pub d: Option<Vec<f64>>,
+}
+
+#[derive(Clone, Copy, PartialEq)]
+enum Col {
+    X,
+    U,
+    Sigma,
+    D,
+}
+
+fn header_name(s: &str) -> Option<Col> {
+    match s.to_ascii_lowercase().as_str() {
+        "x" => Some(Col::X),
+        "u" | "f" | "energy" => Some(Col::U),
+        "sigma_u" | "sigma" | "u_err" | "stderr" => Some(Col::Sigma),
+        "d" | "diffusion" => Some(Col::D),
+        _ => None,
+    }
+}
+
+fn split_fields(line: &str) -> Vec<&str> {
+    if line.contains(',') {
+        line.split(',').map(str::trim).collect()
+    } else {
+        line.split_whitespace().collect()
+    }
+}
+
+/// Reads table text. Columns: by header names (x, U, sigma_U, D) when the first data line is a
+/// header, else by count: 2 = x,U; 3 = x,U,sigma_U; 4 = x,U,sigma_U,D.
+///
+/// # Errors
+/// Non-UTF-8 bytes, non-numeric fields, NaN or infinite values, rows out of order or with duplicate
+/// x, ragged rows, negative σ_U or non-positive D, fewer than [`MIN_ROWS`] rows; each with its line.
+pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
+    let text = match std::str::from_utf8(bytes) {
+        Ok(t) => t,
+        Err(e) => {
+            let line = bytes[..e.valid_up_to()]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count()
+                + 1;
+            return Err(line_err(line, "the file is not UTF-8 text"));
+        }
+    };
+    let mut layout: Option<Vec<Col>> = None;
+    let mut cols = Columns::default();
+    let mut sigma = Vec::new();
+    let mut dcol = Vec::new();
+    for (i, raw) in text.lines().enumerate() {
+        let line_no = i + 1;
+        let line = raw.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let fields = split_fields(line);
+        let numbers: Vec<Option<f64>> = fields.iter().map(|f| f.parse::<f64>().ok()).collect();
+        if layout.is_none() {
+            if numbers.iter().any(Option::is_none) {
+                // a header line
+                let mut named = Vec::new();
+                for f in &fields {
+                    match header_name(f) {
+                        Some(c) if !named.contains(&c) => named.push(c),
+                        Some(_) => return Err(line_err(line_no, format!("column \"{f}\" twice"))),
+                        None => {
+                            return Err(line_err(
+                                line_no,
+                                format!(
+                                    "unknown column \"{f}\" in the header (expected x, U, sigma_U, D)"
+                                ),
+                            ));
+                        }
+                    }
+                }
+                if !(named.contains(&Col::X) && named.contains(&Col::U)) {
+                    return Err(line_err(line_no, "the header must name columns x and U"));
+                }
+                layout = Some(named);
+                continue;
+            }
+            layout = Some(match fields.len() {
+                0 | 1 => {
+                    return Err(line_err(
+                        line_no,
+                        "one column only: a profile needs at least x and U",
+                    ));
+                }
+                2 => vec![Col::X, Col::U],
+                3 => vec![Col::X, Col::U, Col::Sigma],
+                4 => vec![Col::X, Col::U, Col::Sigma, Col::D],
+                n => {
+                    return Err(line_err(
+                        line_no,
+                        format!("{n} columns without a header (expected 2 to 4: x, U, sigma_U, D)"),
+                    ));
+                }
+            });
+        }
+        let lay = layout.as_ref().expect("layout set above");
+        if fields.len() != lay.len() {
+            return Err(line_err(
+                line_no,
+                format!("{} fields, expected {}", fields.len(), lay.len()),
+            ));
+        }
+        let mut x = 0.0;
+        for (k, (&col, v)) in lay.iter().zip(&numbers).enumerate() {
+            let v = match v {
+                Some(v) if v.is_finite() => *v,
+                Some(_) => {
+                    return Err(line_err(
+                        line_no,
+                        format!("field {} is \"{}\" (NaN or infinite)", k + 1, fields[k]),
+                    ));
+                }
+                None => {
+                    return Err(line_err(
+                        line_no,
+                        format!("field {} \"{}\" is not a number", k + 1, fields[k]),
+                    ));
+                }
+            };
+            match col {
+                Col::X => x = v,
+                Col::U => cols.u.push(v),
+                Col::Sigma => {
+                    if v < 0.0 {
+                        return Err(line_err(line_no, "sigma_U is negative"));
+                    }
+                    sigma.push(v);
+                }
+                Col::D => {
+                    if v <= 0.0 {
+                        return Err(line_err(line_no, "D must be positive"));
+                    }
+                    dcol.push(v);
+                }
+            }
+        }
+        if let Some(&prev) = cols.x.last() {
+            if x == prev {
+                return Err(line_err(line_no, format!("duplicate x = {x}")));
+            }
+            if x < prev {
+                return Err(line_err(
+                    line_no,
+                    format!("x = {x} is smaller than the previous row's {prev}: rows must be sorted by increasing x"),
+                ));
+            }
+        }
+        cols.x.push(x);
+    }
+    if cols.x.len() < MIN_ROWS {
+        return Err(TableError::Whole(format!(
+            "{} data rows; a cubic spline needs at least {MIN_ROWS}",
+            cols.x.len()
+        )));
+    }
+    let lay = layout.unwrap_or_default();
+    if lay.contains(&Col::Sigma) {
+        cols.sigma_u = Some(sigma);
+    }
+    if lay.contains(&Col::D) {
+        cols.d = Some(dcol);
+    }
+    Ok(cols)
+}
+
+/// A C² cubic spline with not-a-knot ends; coefficients per interval in powers of (x − x_i).
+#[derive(Debug, Clone)]
+pub struct Spline {
+    x: Vec<f64>,
+    c: Vec<[f64; 4]>,
+    /// spacing when the knots are uniform (index by division instead of bisection)
+    uniform: Option<f64>,
+}
+
+impl Spline {
+    /// Builds the spline; `x` strictly increasing, at least [`MIN_ROWS`] points (checked by the reader).
+    pub fn new(x: &[f64], y: &[f64]) -> Self {
+        let n = x.len();
+        assert!(n >= MIN_ROWS && y.len() == n, "spline needs >= 4 points");
+        let h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();
+        let s: Vec<f64> = (0..n - 1).map(|i| (y[i + 1] - y[i]) / h[i]).collect();
+        // Tridiagonal system for the second derivatives M_1..M_{n-2}; M_0 and M_{n-1} eliminated by
+        // the not-a-knot conditions M_0 = ((h0+h1)M_1 - h0 M_2)/h1 and its mirror image.
+        let m = n - 2;
+        let mut sub = vec![0.0; m];
+        let mut diag = vec![0.0; m];
+        let mut sup = vec![0.0; m];
+        let mut rhs = vec![0.0; m];
+        for k in 0..m {
+            let i = k + 1;
+            sub[k] = h[i - 1];
+            diag[k] = 2.0 * (h[i - 1] + h[i]);
+            sup[k] = h[i];
+            rhs[k] = 6.0 * (s[i] - s[i - 1]);
+        }
+        let (h0, h1) = (h[0], h[1]);
+        diag[0] += h0 * (h0 + h1) / h1;
+        sup[0] -= h0 * h0 / h1;
+        let (ha, hb) = (h[n - 3], h[n - 2]);
+        diag[m - 1] += hb * (ha + hb) / ha;
+        sub[m - 1] -= hb * hb / ha;
+        // Thomas algorithm
+        for k in 1..m {
+            let w = sub[k] / diag[k - 1];
+            diag[k] -= w * sup[k - 1];
+            rhs[k] -= w * rhs[k - 1];
+        }
+        let mut mm = vec![0.0; n];
+        mm[m] = rhs[m - 1] / diag[m - 1];
+        for k in (0..m - 1).rev() {
+            mm[k + 1] = (rhs[k] - sup[k] * mm[k + 2]) / diag[k];
+        }
+        mm[0] = ((h0 + h1) * mm[1] - h0 * mm[2]) / h1;
+        mm[n - 1] = ((ha + hb) * mm[n - 2] - hb * mm[n - 3]) / ha;
+        let c = (0..n - 1)
+            .map(|i| {
+                let hi = h[i];
+                [
+                    y[i],
+                    s[i] - hi * (2.0 * mm[i] + mm[i + 1]) / 6.0,
+                    mm[i] / 2.0,
+                    (mm[i + 1] - mm[i]) / (6.0 * hi),
+                ]
+            })
+            .collect();
+        let span = x[n - 1] - x[0];
+        let step = span / (n - 1) as f64;
+        // Uniform if every knot sits within 1e-9 spacings of the uniform grid (then the index from
+        // division is right, and the bracket check below catches rounding at the knots).
+        let uniform = x
+            .iter()
+            .enumerate()
+            .all(|(i, &xi)| (xi - (x[0] + step * i as f64)).abs() <= 1e-9 * step)
+            .then_some(step);
+        Self {
+            x: x.to_vec(),
+            c,
+            uniform,
+        }
+    }
+
+    /// The knots.
+    pub fn knots(&self) -> &[f64] {
+        &self.x
+    }
+
+    /// Index of the interval containing x (clamped to the first/last interval).
+    #[inline]
+    pub fn interval(&self, x: f64) -> usize {
+        let last = self.c.len() - 1;
+        match self.uniform {
+            Some(step) => {
+                let k = ((x - self.x[0]) / step).floor();
+                if k <= 0.0 {
+                    0
+                } else {
+                    let k = (k as usize).min(last);
+                    // rounding can put x just left of knot k
+                    if x < self.x[k] { k - 1 } else { k }
+                }
+            }
+            None => self.x[1..last + 1].partition_point(|&k| k <= x),
+        }
+    }
+
+    #[inline]
+    fn local(&self, x: f64) -> (&[f64; 4], f64) {
+        let i = self.interval(x);
+        (&self.c[i], x - self.x[i])
+    }
+
+    /// S(x) (cubic continuation outside the knots)
+    #[inline]
+    pub fn value(&self, x: f64) -> f64 {
+        let (c, t) = self.local(x);
+        c[0] + t * (c[1] + t * (c[2] + t * c[3]))
+    }
+    /// S'(x)
+    #[inline]
+    pub fn d1(&self, x: f64) -> f64 {
+        let (c, t) = self.local(x);
+        c[1] + t * (2.0 * c[2] + 3.0 * t * c[3])
+    }
+    /// S''(x)
+    #[inline]
+    pub fn d2(&self, x: f64) -> f64 {
+        let (c, t) = self.local(x);
+        2.0 * c[2] + 6.0 * t * c[3]
+    }
+
+    /// All roots of S' inside the knot range (S' is quadratic on each interval).
+    pub fn derivative_roots(&self) -> Vec<f64> {
+        let mut out: Vec<f64> = Vec::new();
+        for (i, c) in self.c.iter().enumerate() {
+            let (x0, h) = (self.x[i], self.x[i + 1] - self.x[i]);
+            // S'(t) = c1 + 2 c2 t + 3 c3 t^2 on [0, h]
+            let (a, b, cc) = (3.0 * c[3], 2.0 * c[2], c[1]);
+            let mut roots = [f64::NAN; 2];
+            if a.abs() <= 1e-14 * (b.abs() + cc.abs() / h) / h {
+                if b != 0.0 {
+                    roots[0] = -cc / b;
+                }
+            } else {
+                let disc = b * b - 4.0 * a * cc;
+                if disc >= 0.0 {
+                    // numerically stable quadratic roots
+                    let q = -0.5 * (b + b.signum() * disc.sqrt());
+                    roots[0] = q / a;
+                    if q != 0.0 {
+                        roots[1] = cc / q;
+                    }
+                }
+            }
+            // A root at a knot may land a rounding error outside both neighbouring intervals:
+            // accept 1e-9 spacings of slack and merge near-duplicates below.
+            let slack = 1e-9 * h;
+            for t in roots {
+                if t.is_finite() && t >= -slack && t <= h + slack {
+                    out.push(x0 + t.clamp(0.0, h));
+                }
+            }
+        }
+        out.sort_by(f64::total_cmp);
+        let tiny = 1e-9 * (self.x[self.x.len() - 1] - self.x[0]) / self.c.len() as f64;
+        out.dedup_by(|a, b| (*a - *b).abs() <= tiny);
+        out
+    }
+}
+
+/// A tabulated potential (U in kT) with an optional σ_U column (kT) and D column.
+#[derive(Debug, Clone)]
+pub struct Table {
+    spline: Spline,
+    sigma_u: Option<Vec<f64>>,
+    diffusion: Option<Spline>,
+    wall_k: f64,
+    lo: f64,
+    hi: f64,
+}
+
+impl Table {
+    /// Builds the table potential from columns read in the scenario's units; `energy_scale` takes
+    /// the file's energy unit to kT.
+    pub fn new(cols: &Columns, energy_scale: f64) -> Self {
+        let u: Vec<f64> = cols.u.iter().map(|v| v * energy_scale).collect();
+        let spline = Spline::new(&cols.x, &u);
+        let lo = cols.x[0];
+        let hi = *cols.x.last().expect("non-empty");
+        let width = WALL_WIDTH_FRACTION * (hi - lo);
+        let wall_k = 2.0 * WALL_RISE_KT / (width * width);
+        Self {
+            spline,
+            sigma_u: cols
+                .sigma_u
+                .as_ref()
+                .map(|s| s.iter().map(|v| v * energy_scale).collect()),
+            diffusion: cols.d.as_ref().map(|d| Spline::new(&cols.x, d)),
+            wall_k,
+            lo,
+            hi,
+        }
+    }
+    /// The spline of U.
+    pub fn spline(&self) -> &Spline {
+        &self.spline
+    }
+    /// σ_U per row (kT), if given.
+    pub fn sigma_u(&self) -> Option<&[f64]> {
+        self.sigma_u.as_deref()
+    }
+    /// The spline of the D column, if given.
+    pub fn diffusion(&self) -> Option<&Spline> {
+        self.diffusion.as_ref()
+    }
+
+    #[inline]
+    fn outside(&self, x: f64) -> Option<(f64, f64)> {
+        if x < self.lo {
+            Some((self.lo, x - self.lo))
+        } else if x > self.hi {
+            Some((self.hi, x - self.hi))
+        } else {
+            None
+        }
+    }
+}
+
+impl Potential for Table {
+    #[inline]
+    fn u(&self, x: f64) -> f64 {
+        match self.outside(x) {
+            None => self.spline.value(x),
+            Some((e, d)) => self.spline.value(e) + self.spline.d1(e) * d + 0.5 * self.wall_k * d * d,
+        }
+    }
+    #[inline]
+    fn du(&self, x: f64) -> f64 {
+        match self.outside(x) {
+            None => self.spline.d1(x),
+            Some((e, d)) => self.spline.d1(e) + self.wall_k * d,
+        }
+    }
+    #[inline]
+    fn d2u(&self, x: f64) -> f64 {
+        match self.outside(x) {
+            None => self.spline.d2(x),
+            Some(_) => self.wall_k,
+        }
+    }
+    fn domain(&self) -> (f64, f64) {
+        (self.lo, self.hi)
+    }
+    fn stationary_points(&self) -> Option<Vec<f64>> {
+        Some(self.spline.derivative_roots())
+    }
+    fn knots(&self) -> Option<&[f64]> {
+        Some(self.spline.knots())
+    }
+    fn is_interpolated(&self) -> bool {
+        true
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // A not-a-knot spline reproduces any cubic exactly (de Boor, ch. IV): rounding only, so 1e-10.
+    #[test]
+    fn not_a_knot_reproduces_cubics() {
+        let f = |x: f64| 2.0 - x + 0.5 * x * x - 0.3 * x * x * x;
+        for xs in [
+            vec![0.0, 0.5, 1.1, 1.6, 2.5, 3.0],
+            vec![-1.0, 0.0, 1.0, 2.0],
+            (0..50).map(|i| f64::from(i) * 0.1).collect(),
+        ] {
+            let ys: Vec<f64> = xs.iter().map(|&x| f(x)).collect();
+            let s = Spline::new(&xs, &ys);
+            for &x in &[0.05, 0.77, 1.3, 1.99, 2.9] {
+                assert!((s.value(x) - f(x)).abs() < 1e-10);
+                assert!((s.d1(x) - (-1.0 + x - 0.9 * x * x)).abs() < 1e-9);
+                assert!((s.d2(x) - (1.0 - 1.8 * x)).abs() < 1e-8);
+            }
+        }
+    }
+
+    #[test]
+    fn reader_accepts_comments_headers_and_separators() {
+        let c = read_columns(b"# c\nx,U\n0,1\n1,0\n2,1\n3,4\n").unwrap();
+        assert_eq!(c.x, vec![0.0, 1.0, 2.0, 3.0]);
+        let c = read_columns(b"0 1 0.1\n1\t0 0.1\n2 1 0.2\n3 4 0.1\n").unwrap();
+        assert_eq!(c.sigma_u.unwrap()[2], 0.2);
+        let c = read_columns(b"U,x\n1,0\n0,1\n1,2\n4,3\n").unwrap();
+        assert_eq!(c.u, vec![1.0, 0.0, 1.0, 4.0]);
+    }
+
+    #[test]
+    fn reader_errors_name_the_line() {
+        let cases: [(&[u8], usize); 7] = [
+            (b"0,1\n1,0\n1,2\n3,4\n", 3),
+            (b"0,1\n2,0\n1,2\n3,4\n", 3),
+            (b"0,1\n1,nan\n2,1\n3,4\n", 2),
+            (b"0,1\n1,abc\n2,1\n3,4\n", 2),
+            (b"0,1\n1,0,3\n2,1\n3,4\n", 2),
+            (b"0\n1\n2\n3\n", 1),
+            (b"0,1\n1,\xff\n", 2),
+        ];
+        for (text, line) in cases {
+            match read_columns(text) {
+                Err(TableError::Line { line: l, .. }) => assert_eq!(l, line),
+                other => panic!("{other:?}"),
+            }
+        }
+        assert!(matches!(
+            read_columns(b"x,U\n0,1\n1,2\n"),
+            Err(TableError::Whole(_))
+        ));
+        assert!(matches!(read_columns(b""), Err(TableError::Whole(_))));
+    }
+
+    #[test]
+    fn exact_derivative_roots() {
+        let xs: Vec<f64> = (0..=400).map(|i| -2.0 + f64::from(i) * 0.01).collect();
+        let ys: Vec<f64> = xs.iter().map(|&x| (x * x - 1.0).powi(2)).collect();
+        let s = Spline::new(&xs, &ys);
+        let r = s.derivative_roots();
+        assert_eq!(r.len(), 3, "{r:?}");
+        // a quartic on h = 0.01 knots: the spline's extrema move by O(h^4) ~ 1e-8
+        for (got, want) in r.iter().zip([-1.0, 0.0, 1.0]) {
+            assert!((got - want).abs() < 1e-7);
+        }
+    }
+}
