@@ -455,7 +455,8 @@ def compute(dps, dps_mel, method="tanh-sinh", melnikov=True, log=print):
             one_minus_A = -mp.expm1(lnA)
             R["melnikov_A"].append({"delta": num(delta), "A": num(A), "ln_A": num(lnA),
                                     "one_minus_A": num(one_minus_A),
-                                    "ln_one_minus_A": num(mp.log(one_minus_A))})
+                                    "ln_one_minus_A": num(mp.log(one_minus_A)),
+                                    "ln_minus_ln_A": num(mp.log(-lnA))})
             d = {"ln_A": lnA, "A": A, "quad_err": aerr, "alt_rel_diff": abs(lnA2 / lnA - 1)}
             if delta >= mpf("1e-2"):
                 d["series_rel_diff"] = abs(melnikov_lnA_series(delta) / lnA - 1)

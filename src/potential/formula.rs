@@ -200,15 +200,9 @@ impl Node {
             Neg(a) => neg(a.deriv()),
             Add(a, b) => add(a.deriv(), b.deriv()),
             Sub(a, b) => sub(a.deriv(), b.deriv()),
-            Mul(a, b) => add(
-                mul(a.deriv(), (**b).clone()),
-                mul((**a).clone(), b.deriv()),
-            ),
+            Mul(a, b) => add(mul(a.deriv(), (**b).clone()), mul((**a).clone(), b.deriv())),
             Div(a, b) => div(
-                sub(
-                    mul(a.deriv(), (**b).clone()),
-                    mul((**a).clone(), b.deriv()),
-                ),
+                sub(mul(a.deriv(), (**b).clone()), mul((**a).clone(), b.deriv())),
                 powi((**b).clone(), 2),
             ),
             PowI(a, n) => mul(
@@ -583,7 +577,9 @@ mod tests {
         }
         let g = p("x^x + sqrt(x) + ln(x) + tanh(x) + cosh(x) + abs(x - 3) + exp(-x)/x");
         let x: f64 = 1.7;
-        let d1 = x.powf(x) * (x.ln() + 1.0) + 0.5 / x.sqrt() + 1.0 / x
+        let d1 = x.powf(x) * (x.ln() + 1.0)
+            + 0.5 / x.sqrt()
+            + 1.0 / x
             + (1.0 - x.tanh().powi(2))
             + x.sinh()
             - 1.0

@@ -203,7 +203,9 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
             if x < prev {
                 return Err(line_err(
                     line_no,
-                    format!("x = {x} is smaller than the previous row's {prev}: rows must be sorted by increasing x"),
+                    format!(
+                        "x = {x} is smaller than the previous row's {prev}: rows must be sorted by increasing x"
+                    ),
                 ));
             }
         }
@@ -452,7 +454,9 @@ impl Potential for Table {
     fn u(&self, x: f64) -> f64 {
         match self.outside(x) {
             None => self.spline.value(x),
-            Some((e, d)) => self.spline.value(e) + self.spline.d1(e) * d + 0.5 * self.wall_k * d * d,
+            Some((e, d)) => {
+                self.spline.value(e) + self.spline.d1(e) * d + 0.5 * self.wall_k * d * d
+            }
         }
     }
     #[inline]

@@ -1,0 +1,858 @@
+//! The scenario file (TOML): reading, `--set` overrides, validation, and the reduction to a
+//! [`Model`] in internal units (kT = 1; see [`crate::units`]).
+//!
+//! Every error names the file and the line (syntax and type errors) or the key (missing,
+//! inconsistent or non-physical values). Overrides given as `section.key=value` are applied to the
+//! parsed document before validation, so they are checked exactly like values in the file.
+
+use crate::potential::{
+    Diffusion, Family, Formula, FormulaPotential, Potential, Table, table::read_columns,
+};
+use crate::units::{UnitNames, UnitSystem};
+use serde::Deserialize;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use thiserror::Error;
+
+/// A scenario problem, naming the file and the line or key.
+#[derive(Debug, Error)]
+#[non_exhaustive]
+pub enum ScenarioError {
+    /// The file could not be read.
+    #[error("{file}: cannot read: {message}")]
+    Io {
+        /// the file
+        file: String,
+        /// the OS message
+        message: String,
+    },
+    /// A syntax or type error at a line.
+    #[error("{file}: line {line}{key}: {message}")]
+    Line {
+        /// the file
+        file: String,
+        /// 1-based line
+        line: usize,
+        /// " (key a.b)" or empty
+        key: String,
+        /// what is wrong
+        message: String,
+    },
+    /// A missing, inconsistent or non-physical value.
+    #[error("{file}: {key}: {message}")]
+    Key {
+        /// the file (or "--set")
+        file: String,
+        /// dotted key
+        key: String,
+        /// what is wrong
+        message: String,
+    },
+    /// A bad `--set` argument.
+    #[error("--set {arg}: {message}")]
+    Override {
+        /// the argument as given
+        arg: String,
+        /// what is wrong
+        message: String,
+    },
+}
+
+/// `[units]`
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct UnitsSection {
+    /// energy unit
+    #[serde(default = "kt")]
+    pub energy: String,
+    /// length unit
+    #[serde(default = "one")]
+    pub length: String,
+    /// time unit
+    #[serde(default = "one")]
+    pub time: String,
+    /// mass unit
+    #[serde(default = "one")]
+    pub mass: String,
+    /// temperature in K
+    pub temperature: Option<f64>,
+}
+
+fn kt() -> String {
+    "kT".into()
+}
+fn one() -> String {
+    "1".into()
+}
+
+impl Default for UnitsSection {
+    fn default() -> Self {
+        Self {
+            energy: kt(),
+            length: one(),
+            time: one(),
+            mass: one(),
+            temperature: None,
+        }
+    }
+}
+
+/// `[particle]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ParticleSection {
+    /// mass in units.mass
+    pub mass: Option<f64>,
+    /// friction rate gamma per units.time
+    pub friction: Option<f64>,
+    /// diffusion coefficient in length²/time
+    pub diffusion: Option<f64>,
+    /// position-dependent D(x)
+    pub diffusion_expr: Option<String>,
+}
+
+/// `[potential]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PotentialSection {
+    /// U(x) formula
+    pub expr: Option<String>,
+    /// profile file
+    pub table: Option<String>,
+    /// family name
+    pub family: Option<String>,
+    /// domain for expr and family
+    pub domain: Option<[f64; 2]>,
+    /// named constants usable in expr and diffusion_expr
+    pub constants: Option<BTreeMap<String, f64>>,
+    /// family: barrier height (double-well, cubic)
+    pub barrier: Option<f64>,
+    /// double-well: half the distance between the minima
+    pub half_width: Option<f64>,
+    /// cubic: position of the barrier top
+    pub width: Option<f64>,
+    /// washboard: amplitude (the untilted barrier is twice this)
+    pub amplitude: Option<f64>,
+    /// washboard: period
+    pub period: Option<f64>,
+    /// washboard: tilt force (energy per length)
+    pub tilt: Option<f64>,
+}
+
+/// `[states]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StatesSection {
+    /// the reactant minimum is the one nearest this point
+    pub start: Option<f64>,
+    /// the absorbing point
+    pub target: Option<f64>,
+}
+
+/// `[simulation]` (read and range-checked here; used by the simulation commands)
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SimulationSection {
+    /// "underdamped" | "overdamped"
+    pub dynamics: Option<String>,
+    /// integrator
+    pub scheme: Option<String>,
+    /// number of trajectories
+    pub trajectories: Option<u64>,
+    /// time step in units.time
+    pub dt: Option<f64>,
+    /// censoring horizon in units.time
+    pub max_time: Option<f64>,
+    /// master seed
+    pub seed: Option<u64>,
+    /// "minimum" | "thermal"
+    pub start: Option<String>,
+    /// "brute-force" | "ffs" | "reactive-flux" | "auto"
+    pub method: Option<String>,
+    /// step budget for method = "auto"
+    pub budget_steps: Option<f64>,
+}
+
+/// The file as written.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ScenarioFile {
+    /// free text
+    pub title: Option<String>,
+    /// `[units]`
+    #[serde(default)]
+    pub units: UnitsSection,
+    /// `[particle]`
+    pub particle: Option<ParticleSection>,
+    /// `[potential]`
+    pub potential: Option<PotentialSection>,
+    /// `[states]`
+    #[serde(default)]
+    pub states: StatesSection,
+    /// `[simulation]`
+    pub simulation: Option<SimulationSection>,
+}
+
+/// One `--set section.key=value`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Override {
+    /// path of keys
+    pub path: Vec<String>,
+    /// the TOML value
+    pub value: toml::Value,
+    /// the argument as given
+    pub arg: String,
+}
+
+impl Override {
+    /// Parses `section.key=value`; the value is read as TOML (a number, boolean, array, quoted
+    /// string) and otherwise taken as a bare string.
+    ///
+    /// # Errors
+    /// No `=`, or an empty key part.
+    pub fn parse(arg: &str) -> Result<Self, ScenarioError> {
+        let bad = |m: &str| ScenarioError::Override {
+            arg: arg.to_string(),
+            message: m.to_string(),
+        };
+        let (k, v) = arg
+            .split_once('=')
+            .ok_or_else(|| bad("expected section.key=value"))?;
+        let path: Vec<String> = k.trim().split('.').map(|s| s.trim().to_string()).collect();
+        if path.iter().any(String::is_empty) {
+            return Err(bad("empty key name (expected section.key=value)"));
+        }
+        let v = v.trim();
+        let value = format!("v = {v}")
+            .parse::<toml::Table>()
+            .ok()
+            .and_then(|mut t| t.remove("v"))
+            .unwrap_or_else(|| toml::Value::String(v.to_string()));
+        Ok(Self {
+            path,
+            value,
+            arg: arg.to_string(),
+        })
+    }
+}
+
+/// The potential in internal units.
+#[derive(Debug, Clone)]
+pub enum AnyPotential {
+    /// user formula
+    Formula(FormulaPotential),
+    /// built-in family
+    Family(Family),
+    /// profile table
+    Table(Table),
+}
+
+macro_rules! dispatch {
+    ($self:ident, $p:ident => $e:expr) => {
+        match $self {
+            AnyPotential::Formula($p) => $e,
+            AnyPotential::Family($p) => $e,
+            AnyPotential::Table($p) => $e,
+        }
+    };
+}
+
+impl Potential for AnyPotential {
+    #[inline]
+    fn u(&self, x: f64) -> f64 {
+        dispatch!(self, p => p.u(x))
+    }
+    #[inline]
+    fn du(&self, x: f64) -> f64 {
+        dispatch!(self, p => p.du(x))
+    }
+    #[inline]
+    fn d2u(&self, x: f64) -> f64 {
+        dispatch!(self, p => p.d2u(x))
+    }
+    fn domain(&self) -> (f64, f64) {
+        dispatch!(self, p => p.domain())
+    }
+    fn scan_points(&self) -> Vec<f64> {
+        dispatch!(self, p => p.scan_points())
+    }
+    fn stationary_points(&self) -> Option<Vec<f64>> {
+        dispatch!(self, p => p.stationary_points())
+    }
+    fn knots(&self) -> Option<&[f64]> {
+        dispatch!(self, p => p.knots())
+    }
+    fn is_interpolated(&self) -> bool {
+        dispatch!(self, p => p.is_interpolated())
+    }
+}
+
+/// A validated scenario in internal units (energies in kT, lengths in units.length, times in
+/// units.time, masses in kT·time²/length²).
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// the file the scenario came from (for messages)
+    pub source: String,
+    /// free text
+    pub title: Option<String>,
+    /// unit conversion
+    pub units: UnitSystem,
+    /// U(x)
+    pub potential: AnyPotential,
+    /// a short description of the potential for reports
+    pub potential_label: String,
+    /// mass (internal), if given
+    pub mass: Option<f64>,
+    /// friction rate gamma, if given or derivable (kT/(m D))
+    pub friction: Option<f64>,
+    /// D(x)
+    pub diffusion: Diffusion,
+    /// states.start
+    pub start: Option<f64>,
+    /// states.target
+    pub target: Option<f64>,
+    /// the `[simulation]` section, if any
+    pub simulation: Option<SimulationSection>,
+}
+
+impl Model {
+    /// Reads, overrides and validates a scenario file.
+    ///
+    /// # Errors
+    /// See [`ScenarioError`]: every message names the file and the line or key.
+    pub fn load(path: &Path, overrides: &[Override]) -> Result<Self, ScenarioError> {
+        let file = path.display().to_string();
+        let bytes = std::fs::read(path).map_err(|e| ScenarioError::Io {
+            file: file.clone(),
+            message: e.to_string(),
+        })?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            let line = e.as_bytes()[..e.utf8_error().valid_up_to()]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count()
+                + 1;
+            ScenarioError::Line {
+                file: file.clone(),
+                line,
+                key: String::new(),
+                message: "the file is not UTF-8 text".into(),
+            }
+        })?;
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        Self::from_text(&text, &file, &base, overrides)
+    }
+
+    /// Validates scenario text; `base` is the folder that relative table paths start from.
+    ///
+    /// # Errors
+    /// See [`ScenarioError`].
+    pub fn from_text(
+        text: &str,
+        file: &str,
+        base: &Path,
+        overrides: &[Override],
+    ) -> Result<Self, ScenarioError> {
+        let sf: ScenarioFile = toml::from_str(text).map_err(|e| toml_error(text, file, &e))?;
+        let sf = if overrides.is_empty() {
+            sf
+        } else {
+            let mut doc: toml::Table = text.parse().map_err(|e| toml_error(text, file, &e))?;
+            for o in overrides {
+                apply_override(&mut doc, o)?;
+            }
+            doc.try_into().map_err(|e: toml::de::Error| {
+                let args: Vec<&str> = overrides.iter().map(|o| o.arg.as_str()).collect();
+                ScenarioError::Override {
+                    arg: args.join(" "),
+                    message: e.message().to_string(),
+                }
+            })?
+        };
+        Validator { file, base }.build(sf)
+    }
+}
+
+fn apply_override(doc: &mut toml::Table, o: &Override) -> Result<(), ScenarioError> {
+    let mut t = doc;
+    let (last, sections) = o.path.split_last().expect("non-empty path");
+    for s in sections {
+        let entry = t
+            .entry(s.clone())
+            .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+        t = match entry {
+            toml::Value::Table(inner) => inner,
+            _ => {
+                return Err(ScenarioError::Override {
+                    arg: o.arg.clone(),
+                    message: format!("\"{s}\" is a value, not a section"),
+                });
+            }
+        };
+    }
+    t.insert(last.clone(), o.value.clone());
+    Ok(())
+}
+
+/// Turns a toml error into one line with the line number and, when the line holds `key = ...`,
+/// the dotted key.
+fn toml_error(text: &str, file: &str, e: &toml::de::Error) -> ScenarioError {
+    let message = e.message().trim().replace('\n', " ");
+    match e.span() {
+        Some(span) => {
+            let start = span.start.min(text.len());
+            let line = text[..start].bytes().filter(|&b| b == b'\n').count() + 1;
+            ScenarioError::Line {
+                file: file.to_string(),
+                line,
+                key: key_at_line(text, line)
+                    .map(|k| format!(" (key {k})"))
+                    .unwrap_or_default(),
+                message,
+            }
+        }
+        None => ScenarioError::Key {
+            file: file.to_string(),
+            key: "(file)".into(),
+            message,
+        },
+    }
+}
+
+fn key_at_line(text: &str, line: usize) -> Option<String> {
+    let mut section = String::new();
+    for (i, l) in text.lines().enumerate() {
+        let t = l.trim();
+        if t.starts_with('[') {
+            section = t.trim_matches(|c| c == '[' || c == ']').trim().to_string();
+        }
+        if i + 1 == line {
+            let (k, _) = t.split_once('=')?;
+            let k = k.trim();
+            return Some(if section.is_empty() {
+                k.to_string()
+            } else {
+                format!("{section}.{k}")
+            });
+        }
+    }
+    None
+}
+
+struct Validator<'a> {
+    file: &'a str,
+    base: &'a Path,
+}
+
+impl Validator<'_> {
+    fn err(&self, key: &str, message: impl Into<String>) -> ScenarioError {
+        ScenarioError::Key {
+            file: self.file.to_string(),
+            key: key.to_string(),
+            message: message.into(),
+        }
+    }
+
+    fn positive(&self, key: &str, v: Option<f64>) -> Result<Option<f64>, ScenarioError> {
+        match v {
+            Some(x) if !(x.is_finite() && x > 0.0) => {
+                Err(self.err(key, format!("must be a positive number, got {x}")))
+            }
+            other => Ok(other),
+        }
+    }
+
+    fn require(&self, key: &str, v: Option<f64>) -> Result<f64, ScenarioError> {
+        self.positive(key, v)?
+            .ok_or_else(|| self.err(key, "is required (a positive number)"))
+    }
+
+    fn build(&self, sf: ScenarioFile) -> Result<Model, ScenarioError> {
+        let particle = sf
+            .particle
+            .clone()
+            .ok_or_else(|| self.err("particle", "the [particle] section is required"))?;
+        let pot = sf
+            .potential
+            .clone()
+            .ok_or_else(|| self.err("potential", "the [potential] section is required"))?;
+        let mass = self.positive("particle.mass", particle.mass)?;
+        let friction = self.positive("particle.friction", particle.friction)?;
+        let diffusion = self.positive("particle.diffusion", particle.diffusion)?;
+        if friction.is_some() && diffusion.is_some() {
+            return Err(self.err(
+                "particle.diffusion",
+                "give particle.friction or particle.diffusion, not both (D = kT/(m gamma))",
+            ));
+        }
+        if friction.is_some() && particle.diffusion_expr.is_some() {
+            return Err(self.err(
+                "particle.diffusion_expr",
+                "a position-dependent D(x) goes with overdamped input: drop particle.friction",
+            ));
+        }
+        if friction.is_some() && mass.is_none() {
+            return Err(self.err(
+                "particle.mass",
+                "is required with particle.friction (D = kT/(m gamma))",
+            ));
+        }
+        let u = &sf.units;
+        let units = UnitSystem::new(
+            UnitNames {
+                energy: u.energy.clone(),
+                length: u.length.clone(),
+                time: u.time.clone(),
+                mass: u.mass.clone(),
+            },
+            u.temperature,
+            mass.is_some(),
+        )
+        .map_err(|e| {
+            let key = match &e {
+                crate::units::UnitError::Unknown { kind, .. } => format!("units.{kind}"),
+                crate::units::UnitError::Mixed { .. } => "units.mass".to_string(),
+                _ => "units.temperature".to_string(),
+            };
+            self.err(&key, e.to_string())
+        })?;
+        let mass_int = mass.and_then(|m| units.mass_to_internal(m));
+        let constants = pot.constants.clone().unwrap_or_default();
+        for (k, v) in &constants {
+            if !v.is_finite() {
+                return Err(self.err(&format!("potential.constants.{k}"), "must be finite"));
+            }
+        }
+        let (potential, label, table_d) = self.potential(&pot, &units, &constants)?;
+        let (lo, hi) = potential.domain();
+
+        let diffusion_model = if let Some(src) = &particle.diffusion_expr {
+            if diffusion.is_some() {
+                return Err(self.err(
+                    "particle.diffusion_expr",
+                    "give particle.diffusion or particle.diffusion_expr, not both",
+                ));
+            }
+            let f = Formula::parse(src, &constants)
+                .map_err(|e| self.err("particle.diffusion_expr", e.to_string()))?;
+            check_positive_on(&f, lo, hi).map_err(|m| self.err("particle.diffusion_expr", m))?;
+            Diffusion::Formula(f)
+        } else if let Some(d) = diffusion {
+            if table_d.is_some() {
+                return Err(self.err(
+                    "particle.diffusion",
+                    "the table has a D column: drop particle.diffusion",
+                ));
+            }
+            Diffusion::Constant(d)
+        } else if let Some(spline) = table_d {
+            Diffusion::Table(spline)
+        } else if let (Some(g), Some(m)) = (friction, mass_int) {
+            // Einstein relation, internal units (kT = 1)
+            Diffusion::Constant(1.0 / (m * g))
+        } else {
+            return Err(self.err(
+                "particle.friction",
+                "give particle.friction (with mass) or particle.diffusion",
+            ));
+        };
+        // gamma from D when only D is given and a mass is known (at the barrier for D(x): decided later)
+        let friction_int = friction.or_else(|| {
+            let m = mass_int?;
+            diffusion_model.constant().map(|d| 1.0 / (m * d))
+        });
+
+        let inside = |key: &str, v: Option<f64>| -> Result<Option<f64>, ScenarioError> {
+            match v {
+                Some(x) if !(x.is_finite() && x >= lo && x <= hi) => {
+                    Err(self.err(key, format!("{x} lies outside the domain [{lo}, {hi}]")))
+                }
+                other => Ok(other),
+            }
+        };
+        let start = inside("states.start", sf.states.start)?;
+        let target = inside("states.target", sf.states.target)?;
+        // the washboard's reference well is the one at the origin
+        let start = start.or(match potential {
+            AnyPotential::Family(Family::Washboard { .. }) => Some(0.0),
+            _ => None,
+        });
+        if let Some(sim) = &sf.simulation {
+            self.check_simulation(sim)?;
+        }
+        Ok(Model {
+            source: self.file.to_string(),
+            title: sf.title,
+            units,
+            potential,
+            potential_label: label,
+            mass: mass_int,
+            friction: friction_int,
+            diffusion: diffusion_model,
+            start,
+            target,
+            simulation: sf.simulation,
+        })
+    }
+
+    fn check_simulation(&self, s: &SimulationSection) -> Result<(), ScenarioError> {
+        let one_of = |key: &str, v: &Option<String>, allowed: &[&str]| {
+            if let Some(v) = v
+                && !allowed.contains(&v.as_str())
+            {
+                return Err(self.err(key, format!("\"{v}\" is not one of {}", allowed.join(", "))));
+            }
+            Ok(())
+        };
+        one_of(
+            "simulation.dynamics",
+            &s.dynamics,
+            &["underdamped", "overdamped"],
+        )?;
+        one_of(
+            "simulation.scheme",
+            &s.scheme,
+            &["baoab", "leimkuhler-matthews", "euler-maruyama"],
+        )?;
+        one_of("simulation.start", &s.start, &["minimum", "thermal"])?;
+        one_of(
+            "simulation.method",
+            &s.method,
+            &["brute-force", "ffs", "reactive-flux", "auto"],
+        )?;
+        self.positive("simulation.dt", s.dt)?;
+        self.positive("simulation.max_time", s.max_time)?;
+        self.positive("simulation.budget_steps", s.budget_steps)?;
+        if s.trajectories == Some(0) {
+            return Err(self.err("simulation.trajectories", "must be at least 1"));
+        }
+        Ok(())
+    }
+
+    fn domain(&self, pot: &PotentialSection) -> Result<Option<(f64, f64)>, ScenarioError> {
+        match pot.domain {
+            None => Ok(None),
+            Some([a, b]) if a.is_finite() && b.is_finite() && a < b => Ok(Some((a, b))),
+            Some([a, b]) => Err(self.err(
+                "potential.domain",
+                format!("must be [lo, hi] with finite lo < hi, got [{a}, {b}]"),
+            )),
+        }
+    }
+
+    #[allow(clippy::type_complexity)] // (potential, label, optional D column) is used once
+    fn potential(
+        &self,
+        pot: &PotentialSection,
+        units: &UnitSystem,
+        constants: &BTreeMap<String, f64>,
+    ) -> Result<(AnyPotential, String, Option<crate::potential::Spline>), ScenarioError> {
+        let given = [
+            pot.expr.is_some(),
+            pot.table.is_some(),
+            pot.family.is_some(),
+        ]
+        .iter()
+        .filter(|&&b| b)
+        .count();
+        if given != 1 {
+            return Err(self.err(
+                "potential",
+                format!("give exactly one of expr, table or family ({given} given)"),
+            ));
+        }
+        let scale = 1.0 / units.kt_in_energy_unit;
+        let family_keys: [(&str, Option<f64>); 6] = [
+            ("barrier", pot.barrier),
+            ("half_width", pot.half_width),
+            ("width", pot.width),
+            ("amplitude", pot.amplitude),
+            ("period", pot.period),
+            ("tilt", pot.tilt),
+        ];
+        let only = |allowed: &[&str], what: &str| -> Result<(), ScenarioError> {
+            for (k, v) in family_keys {
+                if v.is_some() && !allowed.contains(&k) {
+                    return Err(self.err(
+                        &format!("potential.{k}"),
+                        format!("is not a parameter of {what}"),
+                    ));
+                }
+            }
+            Ok(())
+        };
+        let domain = self.domain(pot)?;
+        if let Some(src) = &pot.expr {
+            only(&[], "a formula potential (use potential.constants)")?;
+            let f = Formula::parse(src, constants)
+                .map_err(|e| self.err("potential.expr", e.to_string()))?;
+            let (lo, hi) = domain
+                .ok_or_else(|| self.err("potential.domain", "is required with potential.expr"))?;
+            return Ok((
+                AnyPotential::Formula(FormulaPotential::new(f, scale, (lo, hi))),
+                format!("U(x) = {src}"),
+                None,
+            ));
+        }
+        if let Some(t) = &pot.table {
+            only(&[], "a table potential")?;
+            if pot.domain.is_some() {
+                return Err(self.err(
+                    "potential.domain",
+                    "a table's domain is its x range: drop potential.domain",
+                ));
+            }
+            let path: PathBuf = self.base.join(t);
+            let shown = path.display().to_string();
+            let bytes = std::fs::read(&path)
+                .map_err(|e| self.err("potential.table", format!("cannot read {shown}: {e}")))?;
+            let cols = read_columns(&bytes).map_err(|e| ScenarioError::Key {
+                file: shown.clone(),
+                key: "potential.table".into(),
+                message: e.to_string(),
+            })?;
+            let table = Table::new(&cols, scale);
+            let d = table.diffusion().cloned();
+            return Ok((
+                AnyPotential::Table(table),
+                format!("table {t} ({} rows)", cols.x.len()),
+                d,
+            ));
+        }
+        let name = pot.family.as_deref().unwrap_or_default();
+        let fam = match name {
+            "double-well" => {
+                only(&["barrier", "half_width"], "the double-well family")?;
+                let eb = self.require("potential.barrier", pot.barrier)? * scale;
+                let a = self.require("potential.half_width", pot.half_width)?;
+                Family::DoubleWell {
+                    eb,
+                    a,
+                    domain: domain.unwrap_or((-3.0 * a, 3.0 * a)),
+                }
+            }
+            "cubic" => {
+                only(&["barrier", "width"], "the cubic family")?;
+                let eb = self.require("potential.barrier", pot.barrier)? * scale;
+                let w = self.require("potential.width", pot.width)?;
+                let l = 1.5 * w;
+                Family::Cubic {
+                    eb,
+                    l,
+                    domain: domain.unwrap_or((-l, cubic_far_end(eb) * l)),
+                }
+            }
+            "washboard" => {
+                only(&["amplitude", "period", "tilt"], "the washboard family")?;
+                let amp = self.require("potential.amplitude", pot.amplitude)? * scale;
+                let period = self.require("potential.period", pot.period)?;
+                let tilt = pot.tilt.unwrap_or(0.0);
+                if !tilt.is_finite() {
+                    return Err(self.err("potential.tilt", "must be finite"));
+                }
+                Family::Washboard {
+                    amp,
+                    period,
+                    tilt: tilt * scale,
+                    domain: domain.unwrap_or((-0.5 * period, 1.5 * period)),
+                }
+            }
+            other => {
+                return Err(self.err(
+                    "potential.family",
+                    format!("unknown family \"{other}\" (double-well, cubic, washboard)"),
+                ));
+            }
+        };
+        Ok((AnyPotential::Family(fam), format!("{name} family"), None))
+    }
+}
+
+/// Far end (in units of L) of the default cubic domain: where U has dropped 12 kT below the
+/// barrier top (2 kT past the default target), and at least s = 2.
+fn cubic_far_end(eb: f64) -> f64 {
+    // drop(s) = eb + 6.75 eb s^2 (s - 1) grows monotonically for s > 1
+    let drop = |s: f64| eb + 6.75 * eb * s * s * (s - 1.0);
+    let (mut lo, mut hi) = (1.0, 2.0);
+    while drop(hi) < 12.0 + eb {
+        hi *= 2.0;
+    }
+    for _ in 0..100 {
+        let mid = 0.5 * (lo + hi);
+        if drop(mid) < 12.0 + eb {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    hi.max(2.0)
+}
+
+/// D(x) must be finite and positive on a fine grid over the domain.
+fn check_positive_on(f: &Formula, lo: f64, hi: f64) -> Result<(), String> {
+    let n = 2000;
+    for i in 0..=n {
+        let x = lo + (hi - lo) * f64::from(i) / f64::from(n);
+        let v = f.value(x);
+        if !(v.is_finite() && v > 0.0) {
+            return Err(format!(
+                "D({x}) = {v}: D(x) must be finite and positive on the domain"
+            ));
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn load(text: &str) -> Result<Model, ScenarioError> {
+        Model::from_text(text, "s.toml", Path::new("."), &[])
+    }
+
+    const OK: &str = "[particle]\nmass = 1.0\nfriction = 2.0\n[potential]\nfamily = \"double-well\"\nbarrier = 5.0\nhalf_width = 1.0\n";
+
+    #[test]
+    fn loads_and_derives_diffusion() {
+        let m = load(OK).unwrap();
+        assert_eq!(m.diffusion.constant(), Some(0.5));
+        assert_eq!(m.friction, Some(2.0));
+    }
+
+    #[test]
+    fn errors_name_line_or_key() {
+        let e = load("[particle]\nmass = \"a\"\n").unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("particle.mass"), "{e}");
+        let e = load(&OK.replace("mass = 1.0", "mas = 1.0"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 2") && e.contains("mas"), "{e}");
+        let e = load(&OK.replace("friction = 2.0", "friction = -2.0"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("particle.friction"), "{e}");
+        let e = load(&format!("[units]\ntemperature = -3\n{OK}"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("units.temperature"), "{e}");
+        let e = load(&OK.replace("barrier = 5.0\n", ""))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("potential.barrier"), "{e}");
+    }
+
+    #[test]
+    fn overrides_apply_and_are_checked() {
+        let o = [Override::parse("potential.barrier=8").unwrap()];
+        let m = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap();
+        assert!((m.potential.u(0.0) - 8.0).abs() < 1e-12);
+        let o = [Override::parse("potential.family=cubic").unwrap()];
+        let e = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap_err();
+        assert!(e.to_string().contains("potential.half_width"), "{e}");
+        let o = [Override::parse("particle.nope=1").unwrap()];
+        let e = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap_err();
+        assert!(e.to_string().contains("--set"), "{e}");
+        assert!(Override::parse("novalue").is_err());
+    }
+}

@@ -1,0 +1,311 @@
+//! Rate theory: every Kramers-type rate for a scenario, the exact overdamped MFPT, and the regime
+//! diagnosis that says which of them hold. Formulas and sources live in the submodules; all
+//! quantities here are internal (kT = 1, scenario length and time units), and rates are computed
+//! as logarithms so barriers up to hundreds of kT neither overflow nor underflow.
+
+pub mod kramers;
+pub mod mfpt;
+pub mod regime;
+pub mod tst;
+pub mod turnover;
+
+use crate::landscape::{LOW_BARRIER_KT, Landscape, LandscapeError};
+use crate::potential::{Diffusion, Potential};
+use crate::scenario::Model;
+use mfpt::Mfpt;
+use regime::{DELTA_ED_VALID, DELTA_SPATIAL, RegimeName};
+use serde::Serialize;
+use thiserror::Error;
+
+/// Theory problems.
+#[derive(Debug, Error, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum TheoryError {
+    /// The landscape could not be analysed.
+    #[error(transparent)]
+    Landscape(#[from] LandscapeError),
+}
+
+impl TheoryError {
+    /// The scenario key to look at.
+    pub fn key(&self) -> &'static str {
+        match self {
+            Self::Landscape(e) => e.key(),
+        }
+    }
+}
+
+/// The rates (per time unit); `None` where a formula does not apply (no mass, or no friction).
+#[derive(Debug, Clone, Copy, Default, Serialize)]
+pub struct Rates {
+    /// harmonic TST
+    pub tst: Option<f64>,
+    /// exact 1-D TST (flux over population)
+    pub tst_exact: Option<f64>,
+    /// Kramers spatial-diffusion
+    pub kramers: Option<f64>,
+    /// Smoluchowski (overdamped) limit
+    pub smoluchowski: Option<f64>,
+    /// energy-diffusion (escape from the well)
+    pub energy_diffusion: Option<f64>,
+    /// Mel'nikov–Meshkov turnover (escape from the well)
+    pub turnover: Option<f64>,
+    /// 1 / exact overdamped MFPT
+    pub mfpt: Option<f64>,
+}
+
+/// One rate with its standing in this regime.
+#[derive(Debug, Clone, Serialize)]
+pub struct RateRow {
+    /// the JSON key
+    pub key: &'static str,
+    /// a readable name
+    pub label: &'static str,
+    /// the rate (per time unit), if it applies
+    pub rate: Option<f64>,
+    /// whether it is trustworthy here
+    pub valid: bool,
+    /// why, or what it is
+    pub note: String,
+}
+
+/// The regime diagnosis.
+#[derive(Debug, Clone, Serialize)]
+pub struct RegimeReport {
+    /// regime name
+    pub name: RegimeName,
+    /// γ/ω_b, if a mass and friction are known
+    pub gamma_over_omega_barrier: Option<f64>,
+    /// δ = γ I_b / kT
+    pub delta: Option<f64>,
+    /// E_b / kT
+    pub barrier_kt: f64,
+    /// keys of the rates that hold here
+    pub trusted: Vec<&'static str>,
+    /// everything a user should know
+    pub warnings: Vec<String>,
+}
+
+/// Everything the analytic half computes.
+#[derive(Debug, Clone, Serialize)]
+pub struct TheoryReport {
+    /// landscape
+    pub landscape: Landscape,
+    /// regime
+    pub regime: RegimeReport,
+    /// rates
+    pub rates: Rates,
+    /// rates with validity, in display order
+    pub rows: Vec<RateRow>,
+    /// the MFPT and its convergence
+    pub mfpt: Mfpt,
+    /// γ used for friction-dependent rates
+    pub friction: Option<f64>,
+    /// D at the barrier top
+    pub diffusion_barrier: f64,
+    /// A(δ)
+    pub depopulation: Option<f64>,
+}
+
+/// Stationary points strictly between two positions (panel breakpoints for quadrature).
+fn between(l: &Landscape, a: f64, b: f64) -> Vec<f64> {
+    let (lo, hi) = (a.min(b), a.max(b));
+    l.points
+        .iter()
+        .map(|p| p.x)
+        .filter(|&x| x > lo && x < hi)
+        .collect()
+}
+
+/// Analyses the landscape and computes every rate.
+///
+/// # Errors
+/// Landscape problems (no minimum, no barrier, no target, …).
+pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
+    let pot = &model.potential;
+    let l = Landscape::analyse(pot, model.start, model.target, model.mass)?;
+    Ok(rates_for(
+        pot,
+        &model.diffusion,
+        model.mass,
+        model.friction,
+        l,
+    ))
+}
+
+/// Computes the rates for an analysed landscape.
+pub fn rates_for(
+    pot: &dyn Potential,
+    diffusion: &Diffusion,
+    mass: Option<f64>,
+    friction: Option<f64>,
+    l: Landscape,
+) -> TheoryReport {
+    let eb = l.barrier_height;
+    let d_b = diffusion.value(l.barrier);
+    // γ: as given, or from D at the barrier when D varies (Einstein relation, kT = 1)
+    let gamma = friction.or_else(|| mass.map(|m| 1.0 / (m * d_b)));
+    let mut warnings = l.warnings.clone();
+
+    let extra = between(&l, l.wall, l.target);
+    let m = mfpt::mfpt(pot, diffusion, l.wall, l.reactant, l.target, &extra);
+    if m.last_change > 1e-8 {
+        warnings.push(format!(
+            "the MFPT quadrature changed by {:.1e} (relative) at the last panel doubling: it may be inaccurate",
+            m.last_change
+        ));
+    }
+    let ln_tst = l.omega_reactant.map(|w| tst::ln_harmonic(w, eb));
+    let extra_b = between(&l, l.wall, l.barrier);
+    let ln_tst_exact = mass.map(|m| tst::ln_exact(pot, m, l.wall, l.barrier, &extra_b));
+    let transmission = match (gamma, l.omega_barrier) {
+        (Some(g), Some(wb)) => Some(kramers::lambda_plus(g, wb) / wb),
+        _ => None,
+    };
+    let delta = match (gamma, l.action) {
+        (Some(g), Some(i)) => Some(g * i),
+        _ => None,
+    };
+    let ln_a = delta.map(turnover::ln_depopulation);
+    let ln_kramers = ln_tst.zip(transmission).map(|(k, t)| k + t.ln());
+    let ln_smol = Some(kramers::ln_smoluchowski(
+        d_b,
+        l.curvature_reactant,
+        l.curvature_barrier,
+        eb,
+    ));
+    let ln_ed = ln_tst.zip(delta).map(|(k, d)| k + d.ln());
+    let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
+
+    let g_over_wb = gamma.zip(l.omega_barrier).map(|(g, w)| g / w);
+    let name = regime::classify(g_over_wb, delta);
+    let high = eb >= LOW_BARRIER_KT;
+    let over = name == RegimeName::Overdamped;
+    let exp = |v: Option<f64>| v.map(f64::exp);
+    let rates = Rates {
+        tst: exp(ln_tst),
+        tst_exact: exp(ln_tst_exact),
+        kramers: exp(ln_kramers),
+        smoluchowski: exp(ln_smol),
+        energy_diffusion: exp(ln_ed),
+        turnover: exp(ln_mm),
+        mfpt: Some((-m.ln_time).exp()),
+    };
+    let low_note = "barrier below 5 kT: asymptotic formula unreliable";
+    let pick = |ok: bool, good: &str, bad: &str| -> (bool, String) {
+        if !high {
+            (false, low_note.to_string())
+        } else if ok {
+            (true, good.to_string())
+        } else {
+            (false, bad.to_string())
+        }
+    };
+    let d_ok = delta.is_some_and(|d| d >= DELTA_SPATIAL) || (over && delta.is_none());
+    let mut rows = vec![
+        RateRow {
+            key: "tst",
+            label: "harmonic TST",
+            rate: rates.tst,
+            valid: false,
+            note: "upper bound: no recrossing, harmonic well".into(),
+        },
+        RateRow {
+            key: "tst_exact",
+            label: "exact 1-D TST",
+            rate: rates.tst_exact,
+            valid: false,
+            note: "upper bound: no recrossing".into(),
+        },
+    ];
+    let (v, n) = pick(
+        d_ok,
+        "holds: strong enough friction (delta >= 10)",
+        "needs delta >= 10 (energy supply limits the rate here)",
+    );
+    rows.push(RateRow {
+        key: "kramers",
+        label: "Kramers (spatial diffusion)",
+        rate: rates.kramers,
+        valid: v && rates.kramers.is_some(),
+        note: n,
+    });
+    let (v, n) = pick(
+        over,
+        "holds: overdamped (gamma/omega_b >= 5)",
+        "needs gamma/omega_b >= 5",
+    );
+    rows.push(RateRow {
+        key: "smoluchowski",
+        label: "Smoluchowski limit",
+        rate: rates.smoluchowski,
+        valid: v,
+        note: n,
+    });
+    let (v, n) = pick(
+        delta.is_some_and(|d| d < DELTA_ED_VALID),
+        "holds: weak friction (delta < 0.02)",
+        "needs delta < 0.02 (within ~12% of the turnover rate)",
+    );
+    rows.push(RateRow {
+        key: "energy_diffusion",
+        label: "energy diffusion (escape)",
+        rate: rates.energy_diffusion,
+        valid: v && rates.energy_diffusion.is_some(),
+        note: n,
+    });
+    let (v, n) = pick(
+        true,
+        "holds at all frictions (finite-barrier error ~10% at weak friction)",
+        "",
+    );
+    rows.push(RateRow {
+        key: "turnover",
+        label: "Mel'nikov-Meshkov (escape)",
+        rate: rates.turnover,
+        valid: v && rates.turnover.is_some(),
+        note: n,
+    });
+    rows.push(RateRow {
+        key: "mfpt",
+        label: "1/MFPT (exact overdamped)",
+        rate: rates.mfpt,
+        valid: over,
+        note: if over {
+            "exact for overdamped dynamics, any barrier".into()
+        } else {
+            "exact for the overdamped model only; inertia matters here".into()
+        },
+    });
+    for r in rows.iter_mut().filter(|r| r.rate.is_none()) {
+        r.valid = false;
+        r.note = if mass.is_none() {
+            "needs particle.mass".into()
+        } else {
+            "needs a friction".into()
+        };
+    }
+    if !diffusion.constant().is_some() {
+        warnings.push(format!(
+            "D depends on x: the Smoluchowski and friction-dependent rates use D at the barrier top, D(x_b) = {d_b:.4}; the MFPT uses D(x) exactly"
+        ));
+    }
+    let trusted = rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
+    TheoryReport {
+        regime: RegimeReport {
+            name,
+            gamma_over_omega_barrier: g_over_wb,
+            delta,
+            barrier_kt: eb,
+            trusted,
+            warnings,
+        },
+        landscape: l,
+        rates,
+        rows,
+        mfpt: m,
+        friction: gamma,
+        diffusion_barrier: d_b,
+        depopulation: ln_a.map(f64::exp),
+    }
+}
