@@ -27,6 +27,7 @@ import sys
 
 import mpmath
 from mpmath import mp, mpf
+from mpmath.calculus.quadrature import GaussLegendre, TanhSinh
 
 DPS = 30            # working precision for groups A, B, C
 DPS_MELNIKOV = 40   # working precision for group D
@@ -77,9 +78,50 @@ def num(x):
     return float(x)
 
 
-def wrapped_quad(f, pts, method="tanh-sinh"):
-    v, e = mp.quad(f, pts, method=method, error=True)
+class _ConservativeError:
+    """mp.quad's default error estimate extrapolates |I_k - I_{k-1}| and |I_k - I_{k-2}| assuming the
+    number of correct digits doubles with each degree; for some integrands here that declared convergence
+    one level too early (true error 1e-25 relative with estimate 1e-35).  This override uses the plain
+    difference of the last two levels, so a subinterval is accepted only when I_{k-1} itself already
+    agrees with I_k to the tolerance (I_k is then far more accurate than the estimate)."""
+
+    def estimate_error(self, results, prec, epsilon):
+        return abs(results[-1] - results[-2])
+
+
+class ConservativeTanhSinh(_ConservativeError, TanhSinh):
+    pass
+
+
+class ConservativeGaussLegendre(_ConservativeError, GaussLegendre):
+    pass
+
+
+_RULES = {}
+
+
+def _rule(method):
+    """quad `method` argument for a cached (node-reusing) conservative rule instance."""
+    if method not in _RULES:
+        cls = {"tanh-sinh": ConservativeTanhSinh, "gauss-legendre": ConservativeGaussLegendre}[method]
+        _RULES[method] = cls(mp)
+    inst = _RULES[method]
+    return lambda ctx: inst
+
+
+def quad(f, pts, method="tanh-sinh"):
+    """mp.quad over the subdivision pts with the conservative error estimate.  The maximal degree is two
+    above mpmath's default.  Returns (value, estimated absolute error)."""
+    rule = _rule(method)
+    maxdeg = rule(mp).guess_degree(mp.prec) + 2
+    v, e = mp.quad(f, pts, method=rule, error=True, maxdegree=maxdeg)
+    if e > mp.eps:
+        QUAD_STATS["not_converged"] += 1
+    QUAD_STATS["calls"] += 1
     return v, e
+
+
+QUAD_STATS = {"calls": 0, "not_converged": 0}
 
 
 # --------------------------------------------------------------------------------------------------
@@ -166,11 +208,11 @@ def mfpt(U, D, a, x0, b, stats, method="tanh-sinh"):
     pout = lambda y: mp.exp(U(y) - Umax) / D(y)
 
     # J(x0) over [a, x0]
-    J0, _ = wrapped_quad(pin, breakpoints(a, x0, stats), method)
+    J0, _ = quad(pin, breakpoints(a, x0, stats), method)
     panels = breakpoints(x0, b, stats)
     Jp = [J0]
     for i in range(len(panels) - 1):
-        v, _ = wrapped_quad(pin, [panels[i], panels[i + 1]], method)
+        v, _ = quad(pin, [panels[i], panels[i + 1]], method)
         Jp.append(Jp[-1] + v)
 
     Q = mpf(0)
@@ -181,8 +223,8 @@ def mfpt(U, D, a, x0, b, stats, method="tanh-sinh"):
         def g(y, p=p, Jbase=Jbase):
             if y == p:
                 return pout(y) * Jbase
-            return pout(y) * (Jbase + mp.quad(pin, [p, y], method=method))
-        v, e = wrapped_quad(g, [p, panels[i + 1]], method)
+            return pout(y) * (Jbase + quad(pin, [p, y], method)[0])
+        v, e = quad(g, [p, panels[i + 1]], method)
         Q += v
         err += e
     lnT = (Umax - Umin) + mp.log(Q)
@@ -198,7 +240,7 @@ def tst_rate(U, a, xb, stats, method="tanh-sinh"):
     a, xb = mpf(a), mpf(xb)
     inside = [s for s in stats if a <= s["x"] <= xb]
     Umin = min([U(a), U(xb)] + [s["U"] for s in inside])
-    Z, e = wrapped_quad(lambda z: mp.exp(-(U(z) - Umin)), breakpoints(a, xb, stats), method)
+    Z, e = quad(lambda z: mp.exp(-(U(z) - Umin)), breakpoints(a, xb, stats), method)
     lnk = -mp.log(2 * mp.pi) / 2 - U(xb) + Umin - mp.log(Z)
     return mp.exp(lnk), lnk, e / Z
 
@@ -219,12 +261,26 @@ def turning_point(U, E, x_from, direction, step=mpf("0.01")):
         x = y
 
 
-def action(U, x_left, x_right, E, xmin, method="tanh-sinh"):
-    """I = 2 Int_{x_left}^{x_right} sqrt(2 m (E - U(x))) dx, split at the well minimum; tanh-sinh copes
-    with the square-root end point singularity at a simple turning point (and the kink at the barrier
-    top).  Tiny negative round-off of E - U at the end points is clipped to 0."""
+def action(U, x_left, x_right, E, xmin, simple_end, method="tanh-sinh"):
+    """I = 2 Int_{x_left}^{x_right} sqrt(2 m (E - U(x))) dx, split at the well minimum.  Tiny negative
+    round-off of E - U at the end points is clipped to 0.
+
+    At the barrier-top end (a double root of E - U) the integrand behaves like |x - x_b| and is analytic
+    on the interval.  At the other, simple turning point x_t (`simple_end` = 'left' or 'right') it has a
+    square-root singularity:
+      * tanh-sinh (the reference rule) integrates it directly (double-exponential end point clustering);
+      * for the Gauss-Legendre cross-check the singularity is removed by x = x_t + (x_min - x_t) t^2,
+        dx = 2 |x_min - x_t| t dt on t in [0, 1]."""
     f = lambda x: mp.sqrt(2 * max(E - U(x), mpf(0)))
-    v, e = wrapped_quad(f, [x_left, xmin, x_right], method)
+    if method == "tanh-sinh":
+        v, e = quad(f, [x_left, xmin, x_right], method)
+    else:
+        xt, other = (x_left, [xmin, x_right]) if simple_end == "left" else (x_right, [x_left, xmin])
+        h = xmin - xt
+        g = lambda t: f(xt + h * t * t) * 2 * abs(h) * t
+        v1, e1 = quad(g, [0, 1], method)
+        v2, e2 = quad(f, other, method)
+        v, e = v1 + v2, e1 + e2
     return 2 * v, e / v
 
 
@@ -252,7 +308,7 @@ def melnikov_lnA(delta, method="tanh-sinh"):
     s = 1 / mp.sqrt(delta)
     pts = {mpf(0), mpf(1) / 2, mpf(2)} | {c * s for c in (mpf(1) / 4, mpf(1) / 2, 1, 2, 4, 8, 16, 32)}
     pts = sorted(pts) + [mp.inf]
-    v, e = wrapped_quad(f, pts, method)
+    v, e = quad(f, pts, method)
     return v * scale / mp.pi, abs(e / v)
 
 
@@ -264,7 +320,7 @@ def melnikov_lnA_alt(delta, method="tanh-sinh"):
     f = lambda th: log1mexp(delta / (4 * mp.cos(th) ** 2)) / scale if th < mp.pi / 2 else mpf(0)
     s = 2 / mp.sqrt(delta)       # y-scale of the second form
     pts = {mpf(0), mp.pi / 2} | {mp.atan(c * s) for c in (mpf(1) / 4, mpf(1) / 2, 1, 2, 4, 8, 16, 32)} | {mp.atan(1)}
-    v, e = wrapped_quad(f, sorted(pts), method)
+    v, e = quad(f, sorted(pts), method)
     return 2 * v * scale / mp.pi
 
 
@@ -320,6 +376,7 @@ def compute(dps, dps_mel, method="tanh-sinh", melnikov=True, log=print):
     """Compute every group at working precision dps (dps_mel for group D).  Returns a dict of results with
     mpf values (serialised by to_json)."""
     mp.dps = dps
+    QUAD_STATS.update(calls=0, not_converged=0)
     R = {"mfpt": [], "tst_exact": [], "action": [], "melnikov_A": [], "checks": {}, "diag": {}}
 
     # ---- landscapes --------------------------------------------------------------------------------
@@ -411,7 +468,7 @@ def compute(dps, dps_mel, method="tanh-sinh", melnikov=True, log=print):
             xl, xr = turning_point(U, E, xmin, -1), xtop
         else:
             xl, xr = xtop, turning_point(U, E, xmin, +1)
-        I, ierr = action(U, xl, xr, E, xmin, method)
+        I, ierr = action(U, xl, xr, E, xmin, side, method)
         e = {"name": name, "U": src, "x_left": num(xl), "x_right": num(xr), "E": num(E), "I": num(I)}
         d = {"I": I, "quad_err": ierr}
         if closed is not None:
@@ -477,6 +534,8 @@ def compute(dps, dps_mel, method="tanh-sinh", melnikov=True, log=print):
             "A/expansion - 1 = %s" % (mp.nstr(c, 12), mp.nstr(A, 15), mp.nstr(approx, 15),
                                       mp.nstr(A / approx - 1, 6)))
     mp.dps = dps
+    log("  mp.quad calls: %d, of which not converged to the tolerance: %d"
+        % (QUAD_STATS["calls"], QUAD_STATS["not_converged"]))
     return R
 
 

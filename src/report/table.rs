@@ -1,0 +1,224 @@
+//! Plain-text renderer for people: comfy-table tables with the units in the column headings.
+
+use super::{Header, LandscapeOut, RateReport, SurveyReport};
+use crate::units::UnitNames;
+use comfy_table::{Cell, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use std::fmt::Write;
+
+/// Six significant digits, switching to scientific notation outside [1e-3, 1e6).
+pub fn num(v: f64) -> String {
+    if v == 0.0 {
+        return "0".into();
+    }
+    if !v.is_finite() {
+        return format!("{v}");
+    }
+    let a = v.abs();
+    if (1e-3..1e6).contains(&a) {
+        let digits = (5 - a.log10().floor() as i32).max(0) as usize;
+        format!("{v:.digits$}")
+    } else {
+        format!("{v:.5e}")
+    }
+}
+
+fn opt(v: Option<f64>) -> String {
+    v.map_or_else(|| "—".into(), num)
+}
+
+/// Display names of the units ("1" shows as L and τ).
+struct U<'a> {
+    e: &'a str,
+    l: &'a str,
+    t: &'a str,
+}
+
+impl<'a> U<'a> {
+    fn new(n: &'a UnitNames) -> Self {
+        Self {
+            e: &n.energy,
+            l: if n.length == "1" { "L" } else { &n.length },
+            t: if n.time == "1" { "τ" } else { &n.time },
+        }
+    }
+}
+
+fn table() -> Table {
+    let mut t = Table::new();
+    t.load_style(UTF8_FULL_CONDENSED)
+        .set_content_arrangement(ContentArrangement::Dynamic)
+        .set_width(110);
+    t
+}
+
+fn header(out: &mut String, h: &Header, names: &UnitNames) {
+    if let Some(title) = &h.title {
+        let _ = writeln!(out, "{title}");
+    }
+    let _ = write!(out, "scenario {} · {}", h.source, h.potential);
+    match h.temperature {
+        Some(t) => {
+            let _ = writeln!(out, " · T = {t} K, kT = {} {}", num(h.kt), names.energy);
+        }
+        None => {
+            let _ = writeln!(out, " · energies in kT");
+        }
+    }
+    if names.length == "1" || names.time == "1" {
+        let _ = writeln!(
+            out,
+            "reduced units: L = length unit, τ = time unit = L·sqrt(M/{})",
+            names.energy
+        );
+    }
+}
+
+fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
+    let mut t = table();
+    t.set_header(vec![
+        "point".to_string(),
+        format!("x ({})", u.l),
+        format!("U − U(reactant) ({})", u.e),
+        "U − U(reactant) (kT)".to_string(),
+        format!("U'' ({}/{}²)", u.e, u.l),
+    ]);
+    let u0 = l
+        .stationary_points
+        .iter()
+        .find(|p| p.x == l.reactant)
+        .map_or(0.0, |p| p.u);
+    let u0_kt = l
+        .stationary_points
+        .iter()
+        .find(|p| p.x == l.reactant)
+        .map_or(0.0, |p| p.u_kt);
+    for p in &l.stationary_points {
+        let role = if p.x == l.reactant {
+            "reactant minimum"
+        } else if p.x == l.barrier {
+            "barrier top"
+        } else if Some(p.x) == l.product {
+            "product minimum"
+        } else {
+            match p.kind {
+                crate::landscape::Kind::Minimum => "minimum",
+                crate::landscape::Kind::Maximum => "maximum",
+            }
+        };
+        t.add_row(vec![
+            Cell::new(role),
+            Cell::new(num(p.x)),
+            Cell::new(num(p.u - u0)),
+            Cell::new(num(p.u_kt - u0_kt)),
+            Cell::new(num(p.curvature)),
+        ]);
+    }
+    let rule = match l.target_rule {
+        crate::landscape::TargetRule::Given => "target (given)",
+        crate::landscape::TargetRule::ProductMinimum => "target (= product minimum)",
+        crate::landscape::TargetRule::MetastableDrop => "target (10 kT below the barrier)",
+    };
+    t.add_row(vec![
+        Cell::new(rule),
+        Cell::new(num(l.target)),
+        Cell::new(""),
+        Cell::new(""),
+        Cell::new(""),
+    ]);
+    t.add_row(vec![
+        Cell::new("reflecting wall"),
+        Cell::new(num(l.wall)),
+        Cell::new(""),
+        Cell::new(""),
+        Cell::new(""),
+    ]);
+    let _ = writeln!(out, "{t}");
+    let mut s = table();
+    s.set_header(vec!["landscape", "value", "unit"]);
+    let rows: Vec<(&str, String, String)> = vec![
+        ("barrier height E_b", num(l.barrier_height), u.e.to_string()),
+        ("E_b / kT", num(l.barrier_height_kt), String::new()),
+        ("reaction energy", opt(l.reaction_energy), u.e.to_string()),
+        (
+            "well frequency ω_a",
+            opt(l.omega_reactant),
+            format!("1/{}", u.t),
+        ),
+        (
+            "barrier frequency ω_b",
+            opt(l.omega_barrier),
+            format!("1/{}", u.t),
+        ),
+        (
+            "action I_b at the barrier energy",
+            opt(l.action),
+            format!("{}·{}", u.e, u.t),
+        ),
+    ];
+    for (k, v, un) in rows {
+        s.add_row(vec![k.to_string(), v, un]);
+    }
+    let _ = writeln!(out, "{s}");
+}
+
+fn warnings(out: &mut String, w: &[String]) {
+    for line in w {
+        let _ = writeln!(out, "warning: {line}");
+    }
+}
+
+/// Renders `survey`.
+pub fn survey(r: &SurveyReport) -> String {
+    let mut out = String::new();
+    header(&mut out, &r.header, &r.units);
+    landscape(&mut out, &r.landscape, &U::new(&r.units));
+    warnings(&mut out, &r.warnings);
+    out
+}
+
+/// Renders `rate`.
+pub fn rate(r: &RateReport) -> String {
+    let mut out = String::new();
+    let u = U::new(&r.units);
+    header(&mut out, &r.header, &r.units);
+    landscape(&mut out, &r.landscape, &u);
+    let reg = &r.regime;
+    let _ = writeln!(
+        out,
+        "regime: {} (E_b = {} kT, γ/ω_b = {}, δ = γ·I_b/kT = {}, A(δ) = {})",
+        reg.name.as_str(),
+        num(reg.barrier_kt),
+        opt(reg.gamma_over_omega_barrier),
+        opt(reg.delta),
+        opt(r.depopulation)
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "formula".to_string(),
+        format!("rate (1/{})", u.t),
+        format!("1/rate ({})", u.t),
+        "holds here".to_string(),
+        "why".to_string(),
+    ]);
+    for row in &r.formulas {
+        t.add_row(vec![
+            Cell::new(row.label),
+            Cell::new(opt(row.rate)),
+            Cell::new(opt(row.rate.map(|k| 1.0 / k))),
+            Cell::new(if row.valid { "yes" } else { "no" }),
+            Cell::new(&row.note),
+        ]);
+    }
+    let _ = writeln!(out, "{t}");
+    let _ = writeln!(
+        out,
+        "exact overdamped MFPT reactant → target: {} {}",
+        num(r.mfpt_time),
+        u.t
+    );
+    if !reg.trusted.is_empty() {
+        let _ = writeln!(out, "trust here: {}", reg.trusted.join(", "));
+    }
+    warnings(&mut out, &reg.warnings);
+    out
+}
