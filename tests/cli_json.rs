@@ -1,0 +1,146 @@
+//! The JSON contract of `survey --json` and `rate --json` on every example, the `--set` override,
+//! unit conversions at the output boundary (CODATA 2018), and the demo command.
+
+use assert_cmd::Command;
+use serde_json::Value;
+
+fn examples() -> Vec<std::path::PathBuf> {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("examples");
+    let mut v: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "toml"))
+        .collect();
+    v.sort();
+    v
+}
+
+fn json(args: &[&str]) -> Value {
+    let out = Command::cargo_bin("escapade")
+        .unwrap()
+        .args(args)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+fn is_num_or_null(v: &Value) -> bool {
+    v.is_null() || v.as_f64().is_some_and(f64::is_finite)
+}
+
+#[test]
+fn rate_json_follows_the_contract_on_every_example() {
+    let files = examples();
+    assert!(files.len() >= 4);
+    for f in files {
+        let f = f.to_str().unwrap();
+        let v = json(&["rate", f, "--json"]);
+        for k in ["energy", "length", "time", "mass"] {
+            assert!(v["units"][k].is_string(), "{f}: units.{k}");
+        }
+        let l = &v["landscape"];
+        for k in [
+            "reactant",
+            "barrier",
+            "target",
+            "barrier_height",
+            "barrier_height_kT",
+        ] {
+            assert!(l[k].as_f64().is_some(), "{f}: landscape.{k}");
+        }
+        for k in ["product", "omega_reactant", "omega_barrier", "action"] {
+            assert!(l.get(k).is_some_and(is_num_or_null), "{f}: landscape.{k}");
+        }
+        let r = &v["regime"];
+        let name = r["name"].as_str().unwrap();
+        assert!(
+            [
+                "energy-diffusion",
+                "turnover",
+                "spatial-diffusion",
+                "overdamped"
+            ]
+            .contains(&name),
+            "{f}: {name}"
+        );
+        for k in ["gamma_over_omega_barrier", "delta"] {
+            assert!(r.get(k).is_some_and(is_num_or_null), "{f}: regime.{k}");
+        }
+        assert!(r["warnings"].is_array());
+        for k in [
+            "tst",
+            "tst_exact",
+            "kramers",
+            "smoluchowski",
+            "energy_diffusion",
+            "turnover",
+            "mfpt",
+        ] {
+            assert!(
+                v["rates"].get(k).is_some_and(is_num_or_null),
+                "{f}: rates.{k}"
+            );
+        }
+        let t = v["mfpt_time"].as_f64().unwrap();
+        let k = v["rates"]["mfpt"].as_f64().unwrap();
+        // rate = 1/MFPT by construction: rounding only
+        assert!((t * k - 1.0).abs() < 1e-12, "{f}");
+        let s = json(&["survey", f, "--json"]);
+        assert!(s["landscape"]["stationary_points"].is_array());
+        assert!(s.get("rates").is_none());
+    }
+}
+
+// kT at 300 K is 2.4943387854 kJ/mol (R = N_A k_B, CODATA 2018), so E_b in kJ/mol / E_b in kT
+// must equal it to rounding.
+#[test]
+fn molecular_units_convert_with_codata() {
+    let f = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/isomerization_kjmol.toml"
+    );
+    let v = json(&["rate", f, "--json"]);
+    let l = &v["landscape"];
+    let ratio = l["barrier_height"].as_f64().unwrap() / l["barrier_height_kT"].as_f64().unwrap();
+    assert!((ratio - 2.494_338_785_4).abs() < 1e-9, "{ratio}");
+    assert_eq!(v["units"]["energy"], "kJ/mol");
+}
+
+#[test]
+fn set_overrides_a_value() {
+    let f = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/double_well_reduced.toml"
+    );
+    let v = json(&["rate", f, "--json", "--set", "potential.barrier=9.5"]);
+    assert!((v["landscape"]["barrier_height"].as_f64().unwrap() - 9.5).abs() < 1e-12);
+    let v = json(&[
+        "rate",
+        f,
+        "--json",
+        "--set",
+        "particle.friction=50",
+        "--set",
+        "particle.mass=2",
+    ]);
+    assert_eq!(v["regime"]["name"], "overdamped");
+}
+
+#[test]
+fn demo_runs_and_prints_a_table() {
+    let out = Command::cargo_bin("escapade")
+        .unwrap()
+        .arg("demo")
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("regime:") && text.contains("Kramers"));
+    let v = json(&["demo", "--json"]);
+    assert!(v["rates"]["turnover"].as_f64().unwrap() > 0.0);
+}
