@@ -100,8 +100,17 @@ fn main() -> ExitCode {
     };
     match run(cli) {
         Ok(text) => {
-            println!("{}", text.trim_end());
-            ExitCode::SUCCESS
+            use std::io::Write;
+            // a closed pipe (e.g. `| head`) is not an error worth a message
+            let mut out = std::io::stdout().lock();
+            match writeln!(out, "{}", text.trim_end()).and_then(|()| out.flush()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: cannot write the output: {e}");
+                    ExitCode::from(1)
+                }
+            }
         }
         Err(f) => {
             eprintln!("error: {}", f.message);

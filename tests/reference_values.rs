@@ -83,22 +83,33 @@ fn mfpt_through_the_scenario_pipeline() {
             None => {
                 // symmetric domains put the far wall beyond the product minimum; the cubic's far
                 // end only needs to lie past the target
-                let (lo, hi) = if name == "cubic8" { (a, 1.5) } else { (-a.abs(), a.abs()) };
+                let (lo, hi) = if name == "cubic8" {
+                    (a, 1.5)
+                } else {
+                    (-a.abs(), a.abs())
+                };
                 let u = case["U"].as_str().unwrap();
                 (format!("expr = \"{u}\"\ndomain = [{lo}, {hi}]"), SMOOTH_REL)
             }
         };
         // the cubic has no product minimum: its target is given
-        let target = if name == "cubic8" { format!("target = {b}") } else { String::new() };
-        let text = format!(
-            "[particle]\n{dline}\n[potential]\n{pot}\n[states]\nstart = {x0}\n{target}\n"
-        );
+        let target = if name == "cubic8" {
+            format!("target = {b}")
+        } else {
+            String::new()
+        };
+        let text =
+            format!("[particle]\n{dline}\n[potential]\n{pot}\n[states]\nstart = {x0}\n{target}\n");
         let m = Model::from_text(&text, name, Path::new("reference"), &[]).unwrap();
         let t = theory::analyse(&m).unwrap_or_else(|e| panic!("{name}: {e}"));
         let l = &t.landscape;
         assert!((l.wall - a).abs() < 1e-12, "{name}: wall {}", l.wall);
         // minima from Brent (1e-15) or the spline (O(h^4) ~ 1e-8 shift)
-        assert!((l.reactant - x0).abs() < 1e-6, "{name}: reactant {}", l.reactant);
+        assert!(
+            (l.reactant - x0).abs() < 1e-6,
+            "{name}: reactant {}",
+            l.reactant
+        );
         assert!((l.target - b).abs() < 1e-6, "{name}: target {}", l.target);
         let want = f(case, "ln_T");
         assert!(

@@ -74,14 +74,19 @@ fn header(out: &mut String, h: &Header, names: &UnitNames) {
 }
 
 fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
+    // a second energy column in kT only when the scenario's unit is not kT
+    let in_kt = u.e == "kT";
     let mut t = table();
-    t.set_header(vec![
+    let mut head = vec![
         "point".to_string(),
         format!("x ({})", u.l),
         format!("U − U(reactant) ({})", u.e),
-        "U − U(reactant) (kT)".to_string(),
-        format!("U'' ({}/{}²)", u.e, u.l),
-    ]);
+    ];
+    if !in_kt {
+        head.push("U − U(reactant) (kT)".to_string());
+    }
+    head.push(format!("U'' ({}/{}²)", u.e, u.l));
+    t.set_header(head);
     let u0 = l
         .stationary_points
         .iter()
@@ -105,33 +110,24 @@ fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
                 crate::landscape::Kind::Maximum => "maximum",
             }
         };
-        t.add_row(vec![
+        let mut row = vec![
             Cell::new(role),
             Cell::new(num(p.x)),
             Cell::new(num(p.u - u0)),
-            Cell::new(num(p.u_kt - u0_kt)),
-            Cell::new(num(p.curvature)),
-        ]);
+        ];
+        if !in_kt {
+            row.push(Cell::new(num(p.u_kt - u0_kt)));
+        }
+        row.push(Cell::new(num(p.curvature)));
+        t.add_row(row);
     }
     let rule = match l.target_rule {
         crate::landscape::TargetRule::Given => "target (given)",
         crate::landscape::TargetRule::ProductMinimum => "target (= product minimum)",
         crate::landscape::TargetRule::MetastableDrop => "target (10 kT below the barrier)",
     };
-    t.add_row(vec![
-        Cell::new(rule),
-        Cell::new(num(l.target)),
-        Cell::new(""),
-        Cell::new(""),
-        Cell::new(""),
-    ]);
-    t.add_row(vec![
-        Cell::new("reflecting wall"),
-        Cell::new(num(l.wall)),
-        Cell::new(""),
-        Cell::new(""),
-        Cell::new(""),
-    ]);
+    t.add_row(vec![Cell::new(rule), Cell::new(num(l.target))]);
+    t.add_row(vec![Cell::new("reflecting wall"), Cell::new(num(l.wall))]);
     let _ = writeln!(out, "{t}");
     let mut s = table();
     s.set_header(vec!["landscape", "value", "unit"]);

@@ -232,7 +232,11 @@ pub fn rates_for(
     });
     let (v, n) = pick(
         over,
-        "holds: overdamped (gamma/omega_b >= 5)",
+        if g_over_wb.is_some() {
+            "holds: overdamped (gamma/omega_b >= 5)"
+        } else {
+            "holds: overdamped input (D only)"
+        },
         "needs gamma/omega_b >= 5",
     );
     rows.push(RateRow {
@@ -285,7 +289,7 @@ pub fn rates_for(
             "needs a friction".into()
         };
     }
-    if !diffusion.constant().is_some() {
+    if diffusion.constant().is_none() {
         warnings.push(format!(
             "D depends on x: the Smoluchowski and friction-dependent rates use D at the barrier top, D(x_b) = {d_b:.4}; the MFPT uses D(x) exactly"
         ));
