@@ -120,31 +120,31 @@ fn num(v: f64) -> Node {
 fn add(a: Node, b: Node) -> Node {
     match (a, b) {
         (Num(x), Num(y)) => Num(x + y),
-        (Num(z), o) | (o, Num(z)) if z == 0.0 => o,
+        (Num(0.0), o) | (o, Num(0.0)) => o,
         (a, b) => Add(Box::new(a), Box::new(b)),
     }
 }
 fn sub(a: Node, b: Node) -> Node {
     match (a, b) {
         (Num(x), Num(y)) => Num(x - y),
-        (o, Num(z)) if z == 0.0 => o,
-        (Num(z), o) if z == 0.0 => neg(o),
+        (o, Num(0.0)) => o,
+        (Num(0.0), o) => neg(o),
         (a, b) => Sub(Box::new(a), Box::new(b)),
     }
 }
 fn mul(a: Node, b: Node) -> Node {
     match (a, b) {
         (Num(x), Num(y)) => Num(x * y),
-        (Num(z), _) | (_, Num(z)) if z == 0.0 => Num(0.0),
-        (Num(z), o) | (o, Num(z)) if z == 1.0 => o,
+        (Num(0.0), _) | (_, Num(0.0)) => Num(0.0),
+        (Num(1.0), o) | (o, Num(1.0)) => o,
         (a, b) => Mul(Box::new(a), Box::new(b)),
     }
 }
 fn div(a: Node, b: Node) -> Node {
     match (a, b) {
         (Num(x), Num(y)) => Num(x / y),
-        (Num(z), _) if z == 0.0 => Num(0.0),
-        (o, Num(z)) if z == 1.0 => o,
+        (Num(0.0), _) => Num(0.0),
+        (o, Num(1.0)) => o,
         (a, b) => Div(Box::new(a), Box::new(b)),
     }
 }

@@ -54,27 +54,27 @@ pub fn mfpt(
             let half = 0.5 * (q - p);
             let mid = 0.5 * (p + q);
             let mut m = f64::INFINITY;
-            for j in 0..NODES {
-                f[j] = pot.u(s * (mid + half * r.t[j]));
-                m = m.min(f[j]);
+            for (fj, tj) in f.iter_mut().zip(&r.t) {
+                *fj = pot.u(s * (mid + half * tj));
+                m = m.min(*fj);
             }
-            for j in 0..NODES {
-                g[j] = (m - f[j]).exp();
+            for (gj, fj) in g.iter_mut().zip(&f) {
+                *gj = (m - fj).exp();
             }
             let ln_scale = half.ln() - m;
             if p >= z0 {
-                for j in 0..NODES {
-                    let c: f64 = (0..NODES).map(|k| r.s[j][k] * g[k]).sum();
+                for (j, fj) in f.iter().enumerate() {
+                    let c: f64 = r.s[j].iter().zip(&g).map(|(sk, gk)| sk * gk).sum();
                     let ln_i = if c > 0.0 {
                         log_add(ln_inner, ln_scale + c.ln())
                     } else {
                         ln_inner
                     };
                     let y = s * (mid + half * r.t[j]);
-                    outer.add((r.w[j] * half).ln() + f[j] - diff.value(y).ln() + ln_i);
+                    outer.add((r.w[j] * half).ln() + fj - diff.value(y).ln() + ln_i);
                 }
             }
-            let total: f64 = (0..NODES).map(|k| r.w[k] * g[k]).sum();
+            let total: f64 = r.w.iter().zip(&g).map(|(w, gk)| w * gk).sum();
             ln_inner = log_add(ln_inner, ln_scale + total.ln());
         }
         outer.ln()
