@@ -89,12 +89,15 @@ fn main() -> ExitCode {
                 let _ = e.print();
                 return ExitCode::SUCCESS;
             }
+            // clap's message, folded to one line (without its usage block)
             let text = e.to_string();
-            let first = text
+            let line: Vec<&str> = text
                 .lines()
-                .find(|l| !l.trim().is_empty())
-                .unwrap_or("invalid arguments");
-            eprintln!("{} (see escapade --help)", first.trim());
+                .map(str::trim)
+                .take_while(|l| !l.starts_with("Usage:"))
+                .filter(|l| !l.is_empty())
+                .collect();
+            eprintln!("{} (see escapade --help)", line.join(" "));
             return ExitCode::from(2);
         }
     };

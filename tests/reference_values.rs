@@ -196,3 +196,45 @@ fn potential_values_are_the_formula() {
     let xm = c["maxima"][0].as_f64().unwrap();
     assert!((pot.u(xm) - c["U_at_maxima"][0].as_f64().unwrap()).abs() < 1e-13);
 }
+
+#[test]
+fn table_with_a_diffusion_column_matches_mpmath() {
+    // dw6_Dx sampled into a 2000-row table with a D column: the splines of U and D reproduce the
+    // smooth functions to O(h^4) ~ 1e-9, so the MFPT must agree within TABLE_REL.
+    let v = values();
+    let case = v["mfpt"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "dw6_Dx")
+        .unwrap();
+    let u = formula(case["U"].as_str().unwrap());
+    let d = formula(case["D"].as_str().unwrap());
+    let dir = std::env::temp_dir().join(format!("escapade-test-dcol-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut text = String::from("x,U,D\n");
+    for i in 0..2000 {
+        let x = -3.0 + 6.0 * f64::from(i) / 1999.0;
+        text.push_str(&format!(
+            "{x:.17e},{:.17e},{:.17e}\n",
+            u.value(x),
+            d.value(x)
+        ));
+    }
+    std::fs::write(dir.join("dcol.csv"), text).unwrap();
+    let m = Model::from_text(
+        "[particle]\n[potential]\ntable = \"dcol.csv\"\n[states]\nstart = -1.0\n",
+        "dcol",
+        &dir,
+        &[],
+    )
+    .unwrap();
+    let t = theory::analyse(&m).unwrap();
+    std::fs::remove_dir_all(&dir).ok();
+    let want = f(case, "ln_T");
+    assert!(
+        (t.mfpt.ln_time - want).abs() < TABLE_REL,
+        "ln T {} vs {want}",
+        t.mfpt.ln_time
+    );
+}
