@@ -207,12 +207,33 @@ pub fn stationary_points(pot: &dyn Potential) -> Result<Vec<Stationary>, Landsca
             let mut xs = Vec::new();
             for i in 0..grid.len() - 1 {
                 let (a, b) = (vals[i], vals[i + 1]);
+                // A pole between two samples: U jumps against what U' predicts (trapezoid rule).
+                // Smooth potentials and kinks (abs) miss by far less than 1 kT per interval.
+                let du = pot.u(grid[i + 1]) - pot.u(grid[i]);
+                let trap = 0.5 * (a + b) * (grid[i + 1] - grid[i]);
+                if (du - trap).abs() > 1.0 && (du - trap).abs() > 0.5 * (du.abs() + trap.abs()) {
+                    return Err(LandscapeError::NotFinite {
+                        what: "U(x) (a pole or jump between scan points)",
+                        x: 0.5 * (grid[i] + grid[i + 1]),
+                    });
+                }
                 if a == 0.0 {
                     if i > 0 {
                         xs.push(grid[i]);
                     }
                 } else if a * b < 0.0 {
-                    xs.push(brent(|x| pot.du(x), grid[i], grid[i + 1]));
+                    let r = brent(|x| pot.du(x), grid[i], grid[i + 1]);
+                    // U' that changes sign without passing through zero is a pole or a jump
+                    let d = pot.du(r);
+                    if !(pot.u(r).is_finite() && d.is_finite())
+                        || d.abs() > 1e-6 * a.abs().max(b.abs())
+                    {
+                        return Err(LandscapeError::NotFinite {
+                            what: "U(x) (U' changes sign through a pole or jump)",
+                            x: r,
+                        });
+                    }
+                    xs.push(r);
                 }
             }
             xs
@@ -339,7 +360,7 @@ impl Landscape {
                     .ok_or_else(|| LandscapeError::NoBarrier {
                         reactant: xa,
                         towards: format!(
-                            "states.target = {t} (the target lies inside the reactant well)"
+                            "states.target = {t} (no maximum lies strictly between them: the target is inside the reactant well or at the barrier top)"
                         ),
                         target_given: true,
                     })?;

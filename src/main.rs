@@ -116,7 +116,19 @@ fn main() -> ExitCode {
             }
         }
         Err(f) => {
-            eprintln!("error: {}", f.message);
+            // echoed user text may hold control characters: keep the message on one line
+            let line: String = f
+                .message
+                .chars()
+                .map(|c| {
+                    if c.is_control() {
+                        c.escape_default().to_string()
+                    } else {
+                        c.to_string()
+                    }
+                })
+                .collect();
+            eprintln!("error: {line}");
             ExitCode::from(f.code)
         }
     }

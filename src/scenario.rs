@@ -58,6 +58,10 @@ pub enum ScenarioError {
     },
 }
 
+/// Internal masses, frictions and diffusion coefficients must lie in this range: beyond it actions
+/// and Boltzmann factors overflow double precision in intermediate steps.
+pub const INTERNAL_RANGE: (f64, f64) = (1e-150, 1e150);
+
 /// `[units]`
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -358,18 +362,28 @@ impl Model {
             sf
         } else {
             let mut doc: toml::Table = text.parse().map_err(|e| toml_error(text, file, &e))?;
+            // check after each override, so an error names the one that caused it
+            let mut last = None;
             for o in overrides {
                 apply_override(&mut doc, o)?;
+                let checked: ScenarioFile =
+                    doc.clone().try_into().map_err(|e: toml::de::Error| {
+                        ScenarioError::Override {
+                            arg: o.arg.clone(),
+                            message: e.message().trim().replace('\n', " "),
+                        }
+                    })?;
+                last = Some(checked);
             }
-            doc.try_into().map_err(|e: toml::de::Error| {
-                let args: Vec<&str> = overrides.iter().map(|o| o.arg.as_str()).collect();
-                ScenarioError::Override {
-                    arg: args.join(" "),
-                    message: e.message().to_string(),
-                }
-            })?
+            last.expect("at least one override")
         };
-        Validator { file, base }.build(sf)
+        let overridden = overrides.iter().map(|o| o.path.join(".")).collect();
+        Validator {
+            file,
+            base,
+            overridden,
+        }
+        .build(sf)
     }
 }
 
@@ -442,12 +456,19 @@ fn key_at_line(text: &str, line: usize) -> Option<String> {
 struct Validator<'a> {
     file: &'a str,
     base: &'a Path,
+    /// keys set by --set (their errors say so)
+    overridden: Vec<String>,
 }
 
 impl Validator<'_> {
     fn err(&self, key: &str, message: impl Into<String>) -> ScenarioError {
+        let from_set = self.overridden.iter().any(|k| k == key);
         ScenarioError::Key {
-            file: self.file.to_string(),
+            file: if from_set {
+                format!("{} (value from --set)", self.file)
+            } else {
+                self.file.to_string()
+            },
             key: key.to_string(),
             message: message.into(),
         }
@@ -517,6 +538,25 @@ impl Validator<'_> {
             self.err(&key, e.to_string())
         })?;
         let mass_int = mass.and_then(|m| units.mass_to_internal(m));
+        // Internal values far from 1 overflow the actions and exponents (sqrt(2 m E) for m ~ 1e308):
+        // refuse them with a hint instead of reporting infinities.
+        for (key, v) in [
+            ("particle.mass", mass_int),
+            ("particle.friction", friction),
+            ("particle.diffusion", diffusion),
+        ] {
+            if let Some(v) = v
+                && !(INTERNAL_RANGE.0..=INTERNAL_RANGE.1).contains(&v)
+            {
+                return Err(self.err(
+                    key,
+                    format!(
+                        "{v:e} in internal units (kT, the scenario's length and time) is outside [{:e}, {:e}]: choose units closer to the problem's scale",
+                        INTERNAL_RANGE.0, INTERNAL_RANGE.1
+                    ),
+                ));
+            }
+        }
         let constants = pot.constants.clone().unwrap_or_default();
         for (k, v) in &constants {
             if !v.is_finite() {
@@ -600,7 +640,7 @@ impl Validator<'_> {
             if let Some(v) = v
                 && !allowed.contains(&v.as_str())
             {
-                return Err(self.err(key, format!("\"{v}\" is not one of {}", allowed.join(", "))));
+                return Err(self.err(key, format!("{v:?} is not one of {}", allowed.join(", "))));
             }
             Ok(())
         };
@@ -760,7 +800,7 @@ impl Validator<'_> {
             other => {
                 return Err(self.err(
                     "potential.family",
-                    format!("unknown family \"{other}\" (double-well, cubic, washboard)"),
+                    format!("unknown family {other:?} (double-well, cubic, washboard)"),
                 ));
             }
         };

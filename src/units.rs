@@ -30,7 +30,7 @@ pub const CALORIE: f64 = 4.184;
 #[non_exhaustive]
 pub enum UnitError {
     /// A unit name that is not one of the allowed names.
-    #[error("unknown {kind} unit \"{name}\" (allowed: {allowed})")]
+    #[error("unknown {kind} unit {name:?} (allowed: {allowed})")]
     Unknown {
         /// which quantity
         kind: &'static str,

@@ -114,8 +114,8 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
         let fields = split_fields(line);
         let numbers: Vec<Option<f64>> = fields.iter().map(|f| f.parse::<f64>().ok()).collect();
         if layout.is_none() {
-            if numbers.iter().any(Option::is_none) {
-                // a header line
+            if numbers.iter().all(Option::is_none) {
+                // a header line (no field is a number)
                 let mut named = Vec::new();
                 for f in &fields {
                     match header_name(f) {
@@ -125,7 +125,7 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
                             return Err(line_err(
                                 line_no,
                                 format!(
-                                    "unknown column \"{f}\" in the header (expected x, U, sigma_U, D)"
+                                    "unknown column {f:?} in the header (expected x, U, sigma_U, D, separated by commas or whitespace)"
                                 ),
                             ));
                         }

@@ -162,10 +162,17 @@ pub fn rates_for(
         (Some(g), Some(wb)) => Some(kramers::lambda_plus(g, wb) / wb),
         _ => None,
     };
+    // extreme inputs (a mass of 1e300, say) can make the action or δ degenerate: such rates are
+    // then reported as not applicable rather than computed from nonsense
     let delta = match (gamma, l.action) {
-        (Some(g), Some(i)) => Some(g * i),
+        (Some(g), Some(i)) => Some(g * i).filter(|d| d.is_finite() && *d > 0.0),
         _ => None,
     };
+    if gamma.is_some() && l.action.is_some() && delta.is_none() {
+        warnings.push(
+            "delta = gamma I_b/kT is zero or not finite for these values (extreme mass or friction): the energy-diffusion and turnover rates are not given".into(),
+        );
+    }
     let ln_a = delta.map(turnover::ln_depopulation);
     let ln_kramers = ln_tst.zip(transmission).map(|(k, t)| k + t.ln());
     let ln_smol = Some(kramers::ln_smoluchowski(
