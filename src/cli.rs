@@ -26,6 +26,23 @@ pub struct Common {
     pub set: Vec<String>,
 }
 
+/// Options of the commands that simulate.
+#[derive(Debug, Args, Clone)]
+pub struct SimOpts {
+    /// Worker threads (default: all cores); results do not depend on it.
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub threads: usize,
+    /// Append each finished trajectory to this CSV record file.
+    #[arg(long, value_name = "FILE")]
+    pub records: Option<PathBuf>,
+    /// Continue the run in --records, skipping the trajectories already recorded.
+    #[arg(long, requires = "records")]
+    pub resume: bool,
+    /// Run only part K of N of the trajectory indices (for job arrays), e.g. --shard 2/8.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+}
+
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -43,9 +60,41 @@ pub enum Command {
         #[command(flatten)]
         common: Common,
     },
-    /// The analytic report of an embedded example scenario.
+    /// Simulated escape: an ensemble of Langevin trajectories, with rate, interval and MFPT.
+    Simulate {
+        /// scenario file (TOML)
+        file: PathBuf,
+        #[command(flatten)]
+        common: Common,
+        #[command(flatten)]
+        sim: SimOpts,
+    },
+    /// Theory and simulation side by side, with a verdict on which theories agree.
+    Compare {
+        /// scenario file (TOML)
+        file: PathBuf,
+        #[command(flatten)]
+        common: Common,
+        #[command(flatten)]
+        sim: SimOpts,
+    },
+    /// Union record files of one run (shards or pieces) and report their statistics.
+    Merge {
+        /// record files
+        #[arg(required = true)]
+        files: Vec<PathBuf>,
+        /// Print one JSON object on stdout instead of a table.
+        #[arg(long)]
+        json: bool,
+        /// Also write the union as one record file.
+        #[arg(long, value_name = "FILE")]
+        output: Option<PathBuf>,
+    },
+    /// `compare` on an embedded invented scenario where the friction regime matters.
     Demo {
         #[command(flatten)]
         common: Common,
+        #[command(flatten)]
+        sim: SimOpts,
     },
 }

@@ -15,6 +15,8 @@ pub mod potential;
 pub mod quad;
 pub mod report;
 pub mod scenario;
+pub mod simulate;
+pub mod stats;
 pub mod theory;
 pub mod units;
 

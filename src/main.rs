@@ -1,15 +1,25 @@
 //! The `escapade` binary: parse arguments, call the library, render, and map errors to one line
-//! on stderr with exit code 2 (user mistakes) or 1 (anything else).
+//! on stderr with exit code 2 (user mistakes) or 1 (anything else). Ctrl-C during a simulation
+//! stops it cleanly: finished records are kept and the summary so far is printed (exit 130).
 
 mod cli;
 
 use clap::Parser;
-use cli::{Cli, Command, Common};
-use escapade::report::{RateReport, SurveyReport, json, table};
+use cli::{Cli, Command, Common, SimOpts};
+use escapade::report::{
+    CompareReport, RateReport, SimulateReport, SimulationOut, SurveyReport, compare_rows, json,
+    table,
+};
 use escapade::scenario::{Model, Override};
-use escapade::{landscape::Landscape, theory};
+use escapade::simulate::{self, Plan, RunOptions, records};
+use escapade::{landscape::Landscape, stats, theory};
+use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
+
+/// Set by Ctrl-C; the simulation loops poll it.
+static STOP: AtomicBool = AtomicBool::new(false);
 
 /// A user-facing failure: the message is one line.
 struct Failure {
@@ -24,6 +34,16 @@ impl Failure {
             code: 2,
         }
     }
+}
+
+/// What a command produced: text for stdout and the exit code.
+struct Done {
+    text: String,
+    code: u8,
+}
+
+fn ok(text: String) -> Result<Done, Failure> {
+    Ok(Done { text, code: 0 })
 }
 
 fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
@@ -45,36 +65,179 @@ fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
     .map_err(|e| Failure::user(e.to_string()))
 }
 
-fn theory_error(m: &Model, e: &theory::TheoryError) -> Failure {
-    Failure::user(format!("{}: {}: {e}", m.source, e.key()))
+fn theory_of(m: &Model) -> Result<theory::TheoryReport, Failure> {
+    theory::analyse(m).map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
 }
 
-fn run(cli: Cli) -> Result<String, Failure> {
+fn run(cli: Cli) -> Result<Done, Failure> {
     match cli.command {
         Command::Survey { file, common } => {
             let m = load(Some(&file), &common)?;
             let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass)
-                .map_err(|e| theory_error(&m, &e.into()))?;
+                .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             let r = SurveyReport::new(&m, &l);
-            Ok(if common.json {
+            ok(if common.json {
                 json::render(&r)
             } else {
                 table::survey(&r)
             })
         }
-        Command::Rate { file, common } => rate(Some(&file), &common),
-        Command::Demo { common } => rate(None, &common),
+        Command::Rate { file, common } => {
+            let m = load(Some(&file), &common)?;
+            let t = theory_of(&m)?;
+            let r = RateReport::new(&m, &t);
+            ok(if common.json {
+                json::render(&r)
+            } else {
+                table::rate(&r)
+            })
+        }
+        Command::Simulate { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, false),
+        Command::Compare { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, true),
+        Command::Demo { common, sim } => simulate_cmd(None, &common, &sim, true),
+        Command::Merge {
+            files,
+            json: as_json,
+            output,
+        } => merge_cmd(&files, as_json, output.as_deref()),
     }
 }
 
-fn rate(file: Option<&Path>, common: &Common) -> Result<String, Failure> {
+/// A progress bar on stderr once a run has lasted a second, if anyone can see it.
+struct Progress {
+    show: bool,
+    start: std::time::Instant,
+    bar: Option<indicatif::ProgressBar>,
+    total: u64,
+    escaped: u64,
+    steps: u64,
+    dt: f64,
+}
+
+impl Progress {
+    fn update(&mut self, o: &stats::Outcome, done: usize) {
+        self.escaped += u64::from(o.escaped);
+        self.steps += o.steps;
+        if !self.show {
+            return;
+        }
+        if self.bar.is_none() && self.start.elapsed().as_secs_f64() > 1.0 {
+            let b = indicatif::ProgressBar::new(self.total);
+            b.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "{bar:30} {pos}/{len} trajectories · {msg} · {elapsed_precise} (eta {eta})",
+                )
+                .expect("a valid template"),
+            );
+            self.bar = Some(b);
+        }
+        if let Some(b) = &self.bar {
+            b.set_position(done as u64);
+            let k = self.escaped as f64 / (self.steps as f64 * self.dt);
+            b.set_message(format!("{} escaped, rate so far {k:.4e}", self.escaped));
+        }
+    }
+    fn finish(&self) {
+        if let Some(b) = &self.bar {
+            b.finish_and_clear();
+        }
+    }
+}
+
+fn simulate_cmd(
+    file: Option<&Path>,
+    common: &Common,
+    sim: &SimOpts,
+    with_theory: bool,
+) -> Result<Done, Failure> {
     let m = load(file, common)?;
-    let t = theory::analyse(&m).map_err(|e| theory_error(&m, &e))?;
-    let r = RateReport::new(&m, &t);
-    Ok(if common.json {
+    let t = theory_of(&m)?;
+    let plan = Plan::new(&m, &t).map_err(|e| Failure::user(format!("{}: {e}", m.source)))?;
+    let shard = sim
+        .shard
+        .as_deref()
+        .map(simulate::parse_shard)
+        .transpose()
+        .map_err(Failure::user)?;
+    let opts = RunOptions {
+        threads: sim.threads,
+        shard,
+        records: sim.records.clone(),
+        resume: sim.resume,
+    };
+    // a second Ctrl-C falls through to the default (the first one already asked for a stop)
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    let show = !common.quiet
+        && std::io::stderr().is_terminal()
+        && !(common.json && !std::io::stdout().is_terminal());
+    let mut progress = Progress {
+        show,
+        start: std::time::Instant::now(),
+        bar: None,
+        total: simulate::shard_range(plan.trajectories, shard).count() as u64,
+        escaped: 0,
+        steps: 0,
+        dt: plan.params.dt,
+    };
+    if !common.quiet && !common.json {
+        eprintln!(
+            "simulating {} trajectories, dt = {:.4e} ({})",
+            progress.total,
+            plan.params.dt,
+            if plan.dt_given {
+                "given"
+            } else {
+                "default from the landscape"
+            }
+        );
+    }
+    let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
+        .map_err(|e| Failure::user(e.to_string()))?;
+    progress.finish();
+    let out = SimulationOut::new(&plan, &result, shard);
+    let code = if result.interrupted { 130 } else { 0 };
+    let text = if with_theory {
+        let theory = RateReport::new(&m, &t);
+        let (comparison, verdict) = compare_rows(&theory.formulas, &out);
+        let r = CompareReport {
+            theory,
+            simulation: out,
+            comparison,
+            verdict,
+        };
+        if common.json {
+            json::render(&r)
+        } else {
+            table::compare(&r)
+        }
+    } else {
+        let r = SimulateReport {
+            header: escapade::report::Header::new(&m),
+            units: m.units.names.clone(),
+            landscape: escapade::report::LandscapeOut::new(&t.landscape, &m.units),
+            simulation: out,
+        };
+        if common.json {
+            json::render(&r)
+        } else {
+            table::simulate(&r)
+        }
+    };
+    Ok(Done { text, code })
+}
+
+fn merge_cmd(files: &[PathBuf], as_json: bool, output: Option<&Path>) -> Result<Done, Failure> {
+    let paths: Vec<&Path> = files.iter().map(PathBuf::as_path).collect();
+    let c = records::merge(&paths).map_err(|e| Failure::user(e.to_string()))?;
+    if let Some(out) = output {
+        records::write_all(out, &c).map_err(|e| Failure::user(e.to_string()))?;
+    }
+    let s = stats::summarise(&c.outcomes, c.header.dt, c.header.max_steps);
+    let r = escapade::report::MergeReport::new(&c, s);
+    ok(if as_json {
         json::render(&r)
     } else {
-        table::rate(&r)
+        table::merge(&r)
     })
 }
 
@@ -102,13 +265,13 @@ fn main() -> ExitCode {
         }
     };
     match run(cli) {
-        Ok(text) => {
+        Ok(done) => {
             use std::io::Write;
             // a closed pipe (e.g. `| head`) is not an error worth a message
             let mut out = std::io::stdout().lock();
-            match writeln!(out, "{}", text.trim_end()).and_then(|()| out.flush()) {
-                Ok(()) => ExitCode::SUCCESS,
-                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+            match writeln!(out, "{}", done.text.trim_end()).and_then(|()| out.flush()) {
+                Ok(()) => ExitCode::from(done.code),
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::from(done.code),
                 Err(e) => {
                     eprintln!("error: cannot write the output: {e}");
                     ExitCode::from(1)

@@ -199,3 +199,240 @@ impl RateReport {
         }
     }
 }
+
+/// A simulation summary in scenario units (JSON key "simulation").
+#[derive(Debug, Clone, Serialize)]
+pub struct SimulationOut {
+    /// "brute-force"
+    pub method: &'static str,
+    /// dynamics
+    pub dynamics: crate::simulate::Dynamics,
+    /// integrator
+    pub scheme: &'static str,
+    /// trajectories of this run (or shard)
+    pub trajectories: u64,
+    /// finished so far (less than trajectories after an interruption)
+    pub finished: u64,
+    /// escaped
+    pub escaped: u64,
+    /// censored at max_time
+    pub censored: u64,
+    /// censored maximum-likelihood rate, per time unit
+    pub rate: f64,
+    /// its 95% interval
+    pub rate_ci95: [f64; 2],
+    /// how the interval was made
+    pub rate_ci_method: &'static str,
+    /// mean first-passage time of the escaped trajectories
+    pub mfpt: Option<f64>,
+    /// its standard error
+    pub mfpt_se: Option<f64>,
+    /// median first-passage time
+    pub median: Option<f64>,
+    /// coefficient of variation of the first-passage times
+    pub cv: Option<f64>,
+    /// Kolmogorov–Smirnov distance to the fitted exponential
+    pub ks_distance: Option<f64>,
+    /// its p-value
+    pub ks_p_value: Option<f64>,
+    /// steps of all recorded trajectories
+    pub total_steps: u64,
+    /// wall time of this invocation
+    pub wall_seconds: f64,
+    /// time step
+    pub dt: f64,
+    /// the landscape's default time step
+    pub dt_default: f64,
+    /// horizon
+    pub max_time: f64,
+    /// master seed
+    pub seed: u64,
+    /// threads used
+    pub threads: usize,
+    /// "K/N" when sharded
+    pub shard: Option<String>,
+    /// stopped by Ctrl-C
+    pub interrupted: bool,
+    /// warnings
+    pub warnings: Vec<String>,
+}
+
+impl SimulationOut {
+    /// From a plan and a run.
+    pub fn new(
+        plan: &crate::simulate::Plan,
+        run: &crate::simulate::RunResult,
+        shard: Option<(u64, u64)>,
+    ) -> Self {
+        let s = crate::stats::summarise(&run.outcomes, plan.params.dt, plan.params.max_steps);
+        let mut warnings = plan.warnings.clone();
+        warnings.extend(run.warnings.iter().cloned());
+        warnings.extend(s.warnings.iter().cloned());
+        if s.censored > 0 {
+            warnings.push(
+                "the rate interval is the Poisson (chi-square) interval: approximate under censoring".into(),
+            );
+        }
+        if run.interrupted {
+            warnings.push(format!(
+                "interrupted: {} of {} trajectories finished; the numbers are those of the finished ones",
+                run.outcomes.len(),
+                run.expected
+            ));
+        }
+        Self {
+            method: "brute-force",
+            dynamics: plan.dynamics,
+            scheme: plan.scheme,
+            trajectories: run.expected,
+            finished: run.outcomes.len() as u64,
+            escaped: s.escaped,
+            censored: s.censored,
+            rate: s.rate,
+            rate_ci95: s.rate_ci95,
+            rate_ci_method: "chi-square (Poisson count in the total observed time)",
+            mfpt: s.mfpt,
+            mfpt_se: s.mfpt_se,
+            median: s.median,
+            cv: s.cv,
+            ks_distance: s.ks_distance,
+            ks_p_value: s.ks_p_value,
+            total_steps: s.total_steps,
+            wall_seconds: run.wall_seconds,
+            dt: plan.params.dt,
+            dt_default: plan.dt_default,
+            max_time: plan.max_time(),
+            seed: plan.params.seed,
+            threads: run.threads,
+            shard: shard.map(|(k, n)| format!("{k}/{n}")),
+            interrupted: run.interrupted,
+            warnings,
+        }
+    }
+}
+
+/// One theory against the simulation.
+#[derive(Debug, Clone, Serialize)]
+pub struct ComparisonRow {
+    /// the theory's JSON key
+    pub method: &'static str,
+    /// its readable name
+    pub label: &'static str,
+    /// its rate
+    pub rate: Option<f64>,
+    /// theory / simulation
+    pub ratio_to_simulation: Option<f64>,
+    /// the ratio's 95% interval (from the simulation's)
+    pub ratio_ci95: Option<[f64; 2]>,
+    /// whether the theory holds in this regime
+    pub valid: bool,
+    /// whether the theory rate lies inside the simulation's 95% interval
+    pub agrees: bool,
+}
+
+/// The comparison rows and a one-line verdict.
+pub fn compare_rows(t: &[RateRow], sim: &SimulationOut) -> (Vec<ComparisonRow>, String) {
+    let [lo, hi] = sim.rate_ci95;
+    let rows: Vec<ComparisonRow> = t
+        .iter()
+        .map(|r| {
+            let ratio = r.rate.filter(|_| sim.rate > 0.0).map(|k| k / sim.rate);
+            let ci = r
+                .rate
+                .filter(|_| lo > 0.0 && hi.is_finite())
+                .map(|k| [k / hi, k / lo]);
+            ComparisonRow {
+                method: r.key,
+                label: r.label,
+                rate: r.rate,
+                ratio_to_simulation: ratio,
+                ratio_ci95: ci,
+                valid: r.valid,
+                agrees: r.rate.is_some_and(|k| k >= lo && k <= hi),
+            }
+        })
+        .collect();
+    let agree: Vec<&str> = rows.iter().filter(|r| r.agrees).map(|r| r.method).collect();
+    let verdict = if sim.escaped == 0 {
+        "no escapes were simulated: no verdict (raise max_time or trajectories)".to_string()
+    } else if agree.is_empty() {
+        "no theory lies within the simulation's 95% interval".to_string()
+    } else {
+        format!("within the simulation's 95% interval: {}", agree.join(", "))
+    };
+    (rows, verdict)
+}
+
+/// `simulate` output.
+#[derive(Debug, Clone, Serialize)]
+pub struct SimulateReport {
+    /// scenario facts
+    #[serde(skip)]
+    pub header: Header,
+    /// unit names
+    pub units: UnitNames,
+    /// landscape
+    pub landscape: LandscapeOut,
+    /// the simulation
+    pub simulation: SimulationOut,
+}
+
+/// `compare` output: everything of `rate` plus the simulation and the comparison.
+#[derive(Debug, Clone, Serialize)]
+pub struct CompareReport {
+    /// the analytic part
+    #[serde(flatten)]
+    pub theory: RateReport,
+    /// the simulation
+    pub simulation: SimulationOut,
+    /// theory against simulation
+    pub comparison: Vec<ComparisonRow>,
+    /// one line naming the theories that agree
+    pub verdict: String,
+}
+
+/// `merge` output.
+#[derive(Debug, Clone, Serialize)]
+pub struct MergeReport {
+    /// run fingerprint
+    pub fingerprint: String,
+    /// seed
+    pub seed: u64,
+    /// trajectories of the whole run
+    pub trajectories: u64,
+    /// trajectories in the files
+    pub recorded: u64,
+    /// true when every index of the run is present
+    pub complete: bool,
+    /// time step
+    pub dt: f64,
+    /// statistics of the union
+    pub summary: crate::stats::Summary,
+    /// warnings
+    pub warnings: Vec<String>,
+}
+
+impl MergeReport {
+    /// From merged records.
+    pub fn new(c: &crate::simulate::records::Contents, s: crate::stats::Summary) -> Self {
+        let recorded = c.outcomes.len() as u64;
+        let mut warnings = c.warnings.clone();
+        warnings.extend(s.warnings.iter().cloned());
+        if recorded < c.header.trajectories {
+            warnings.push(format!(
+                "{} of {} trajectories recorded: the run is incomplete",
+                recorded, c.header.trajectories
+            ));
+        }
+        Self {
+            fingerprint: format!("{:016x}", c.header.fingerprint),
+            seed: c.header.seed,
+            trajectories: c.header.trajectories,
+            recorded,
+            complete: recorded == c.header.trajectories,
+            dt: c.header.dt,
+            summary: s,
+            warnings,
+        }
+    }
+}

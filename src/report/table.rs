@@ -218,3 +218,152 @@ pub fn rate(r: &RateReport) -> String {
     warnings(&mut out, &reg.warnings);
     out
 }
+
+fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
+    let _ = writeln!(
+        out,
+        "simulation: {} {} ({}), {} trajectories{}, dt = {} {} (default {}), max_time = {} {}, seed {}, {} threads, {:.2} s",
+        s.method,
+        match s.dynamics {
+            crate::simulate::Dynamics::Underdamped => "underdamped",
+            crate::simulate::Dynamics::Overdamped => "overdamped",
+        },
+        s.scheme,
+        s.trajectories,
+        s.shard
+            .as_ref()
+            .map(|k| format!(" (shard {k})"))
+            .unwrap_or_default(),
+        num(s.dt),
+        u.t,
+        num(s.dt_default),
+        num(s.max_time),
+        u.t,
+        s.seed,
+        s.threads,
+        s.wall_seconds
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "escaped".to_string(),
+        "censored".to_string(),
+        format!("rate (1/{})", u.t),
+        "95% interval".to_string(),
+        format!("MFPT ± se ({})", u.t),
+        format!("median ({})", u.t),
+        "CV".to_string(),
+        "KS distance (p)".to_string(),
+    ]);
+    t.add_row(vec![
+        s.escaped.to_string(),
+        s.censored.to_string(),
+        num(s.rate),
+        format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
+        match (s.mfpt, s.mfpt_se) {
+            (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
+            (Some(m), None) => num(m),
+            _ => "—".into(),
+        },
+        opt(s.median),
+        opt(s.cv),
+        match (s.ks_distance, s.ks_p_value) {
+            (Some(d), Some(p)) => format!("{} ({})", num(d), num(p)),
+            _ => "—".into(),
+        },
+    ]);
+    let _ = writeln!(out, "{t}");
+    let _ = writeln!(
+        out,
+        "{} steps; rate interval: {}",
+        s.total_steps, s.rate_ci_method
+    );
+    warnings(out, &s.warnings);
+}
+
+/// Renders `simulate`.
+pub fn simulate(r: &super::SimulateReport) -> String {
+    let mut out = String::new();
+    let u = U::new(&r.units);
+    header(&mut out, &r.header, &r.units);
+    simulation(&mut out, &r.simulation, &u);
+    out
+}
+
+/// Renders `compare`.
+pub fn compare(r: &super::CompareReport) -> String {
+    let mut out = rate(&r.theory);
+    let u = U::new(&r.theory.units);
+    out.push('\n');
+    simulation(&mut out, &r.simulation, &u);
+    let mut t = table();
+    t.set_header(vec![
+        "method".to_string(),
+        format!("rate (1/{})", u.t),
+        "ratio to simulation".to_string(),
+        "ratio 95% interval".to_string(),
+        "holds here".to_string(),
+        "within interval".to_string(),
+    ]);
+    let s = &r.simulation;
+    t.add_row(vec![
+        format!("simulation ({})", s.method),
+        num(s.rate),
+        "1".into(),
+        "—".into(),
+        "—".into(),
+        "—".into(),
+    ]);
+    for c in &r.comparison {
+        t.add_row(vec![
+            c.label.to_string(),
+            opt(c.rate),
+            opt(c.ratio_to_simulation),
+            c.ratio_ci95
+                .map(|[a, b]| format!("[{}, {}]", num(a), num(b)))
+                .unwrap_or_else(|| "—".into()),
+            if c.valid { "yes" } else { "no" }.into(),
+            if c.agrees { "yes" } else { "no" }.into(),
+        ]);
+    }
+    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "verdict: {}", r.verdict);
+    out
+}
+
+/// Renders `merge` (times in the run's time unit).
+pub fn merge(r: &super::MergeReport) -> String {
+    let s = &r.summary;
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "merged records: {} of {} trajectories (run {}, seed {}, dt = {})",
+        r.recorded,
+        r.trajectories,
+        r.fingerprint,
+        r.seed,
+        num(r.dt)
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "escaped",
+        "censored",
+        "rate",
+        "95% interval",
+        "MFPT ± se",
+        "median",
+    ]);
+    t.add_row(vec![
+        s.escaped.to_string(),
+        s.censored.to_string(),
+        num(s.rate),
+        format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
+        match (s.mfpt, s.mfpt_se) {
+            (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
+            _ => "—".into(),
+        },
+        opt(s.median),
+    ]);
+    let _ = writeln!(out, "{t}");
+    warnings(&mut out, &r.warnings);
+    out
+}

@@ -1,0 +1,463 @@
+//! Simulated escape: ensembles of Langevin trajectories from the reactant minimum to the target,
+//! with censoring at a horizon, seeded per trajectory so results depend on the seed alone.
+//!
+//! - [`Plan`]: the validated run in internal units — dynamics, integrator, time step (default: 1%
+//!   of the shortest period 2π/ω, or 2% of the shortest overdamped relaxation time kT/(D|U''|), at
+//!   the reactant well and the barrier), horizon (default 20 expected escape times, so censoring
+//!   costs e^{-20} of the rate), trajectories, seed, start.
+//! - [`execute`]: runs a set of trajectory indices on a rayon pool, streaming each finished
+//!   outcome to a callback on the calling thread (records, progress), stopping cleanly on a flag.
+//! - [`engine`] holds the inner loop and its integrators; [`force`] the fast forces; [`records`]
+//!   the record files, resume and merge.
+
+pub mod engine;
+pub mod force;
+pub mod records;
+
+use crate::potential::{Diffusion, Potential};
+use crate::scenario::{AnyPotential, Model};
+use crate::stats::Outcome;
+use crate::theory::TheoryReport;
+use engine::{Kind, Params, Start};
+use force::{ConstD, FastForce, GridD};
+use rayon::prelude::*;
+use serde::Serialize;
+use std::sync::atomic::AtomicBool;
+use std::sync::mpsc;
+use thiserror::Error;
+
+/// Default time step: this fraction of the shortest period 2π/ω (underdamped).
+pub const DT_PERIOD_FRACTION: f64 = 0.01;
+/// Default time step: this fraction of the shortest relaxation time kT/(D|U''|) (overdamped).
+pub const DT_RELAXATION_FRACTION: f64 = 0.02;
+/// Default horizon, in expected escape times.
+pub const HORIZON_ESCAPE_TIMES: f64 = 20.0;
+/// Default ensemble size.
+pub const DEFAULT_TRAJECTORIES: u64 = 1000;
+/// Trajectory indices per parallel work item.
+const CHUNK: usize = 64;
+
+/// Simulation set-up problems.
+#[derive(Debug, Error, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum SimError {
+    /// A value that cannot be used.
+    #[error("{key}: {message}")]
+    Key {
+        /// the scenario key
+        key: &'static str,
+        /// what is wrong
+        message: String,
+    },
+}
+
+fn key_err(key: &'static str, message: impl Into<String>) -> SimError {
+    SimError::Key {
+        key,
+        message: message.into(),
+    }
+}
+
+/// Dynamics.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Dynamics {
+    /// m ẍ = −U' − mγẋ + ξ
+    Underdamped,
+    /// ẋ = −D U'/kT + sqrt(2D) η
+    Overdamped,
+}
+
+/// A validated simulation plan (internal units).
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// dynamics
+    pub dynamics: Dynamics,
+    /// integrator name as reported
+    pub scheme: &'static str,
+    /// loop parameters
+    pub params: Params,
+    /// ensemble size
+    pub trajectories: u64,
+    /// the default dt for this landscape
+    pub dt_default: f64,
+    /// true when the user set dt
+    pub dt_given: bool,
+    /// force and mobility for the loop
+    pub force: FastForce,
+    /// D(x) tabulated, if it varies
+    pub mobility: Option<GridD>,
+    /// constant D (overdamped)
+    pub d_const: f64,
+    /// notes and warnings for the report
+    pub warnings: Vec<String>,
+    /// fingerprint of everything that determines the outcomes
+    pub fingerprint: u64,
+}
+
+/// FNV-1a, 64 bit: a stable fingerprint (not a cryptographic hash).
+pub fn fnv1a(bytes: &[u8]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    h
+}
+
+impl Plan {
+    /// Builds the plan from a model and its theory (for the landscape, defaults and horizon).
+    ///
+    /// # Errors
+    /// Underdamped dynamics without mass or friction, or a scheme that does not fit the dynamics.
+    pub fn new(m: &Model, t: &TheoryReport) -> Result<Self, SimError> {
+        let s = m.simulation.clone().unwrap_or_default();
+        let l = &t.landscape;
+        let dynamics = match s.dynamics.as_deref() {
+            Some("underdamped") => Dynamics::Underdamped,
+            Some(_) => Dynamics::Overdamped,
+            None if m.mass.is_some() && t.friction.is_some() => Dynamics::Underdamped,
+            None => Dynamics::Overdamped,
+        };
+        let (kind, scheme) = match (dynamics, s.scheme.as_deref()) {
+            (Dynamics::Underdamped, None | Some("baoab")) => (Kind::Baoab, "baoab"),
+            (Dynamics::Underdamped, Some(other)) => {
+                return Err(key_err(
+                    "simulation.scheme",
+                    format!(
+                        "{other:?} is an overdamped scheme; underdamped dynamics uses \"baoab\""
+                    ),
+                ));
+            }
+            (Dynamics::Overdamped, None | Some("leimkuhler-matthews")) => {
+                (Kind::LeimkuhlerMatthews, "leimkuhler-matthews")
+            }
+            (Dynamics::Overdamped, Some("euler-maruyama")) => {
+                (Kind::EulerMaruyama, "euler-maruyama")
+            }
+            (Dynamics::Overdamped, Some(other)) => {
+                return Err(key_err(
+                    "simulation.scheme",
+                    format!(
+                        "{other:?} is an underdamped scheme; overdamped dynamics uses \"leimkuhler-matthews\" or \"euler-maruyama\""
+                    ),
+                ));
+            }
+        };
+        let (mass, gamma) = match dynamics {
+            Dynamics::Underdamped => (
+                m.mass
+                    .ok_or_else(|| key_err("particle.mass", "underdamped dynamics needs a mass"))?,
+                t.friction.ok_or_else(|| {
+                    key_err("particle.friction", "underdamped dynamics needs a friction")
+                })?,
+            ),
+            Dynamics::Overdamped => (1.0, 0.0),
+        };
+        let (lo, hi) = m.potential.domain();
+        let d_a = m.diffusion.value(l.reactant);
+        let d_b = m.diffusion.value(l.barrier);
+        let dt_default = match dynamics {
+            Dynamics::Underdamped => {
+                let w = (l.curvature_reactant.max(l.curvature_barrier) / mass).sqrt();
+                DT_PERIOD_FRACTION * 2.0 * std::f64::consts::PI / w
+            }
+            Dynamics::Overdamped => {
+                let tau =
+                    (1.0 / (d_a * l.curvature_reactant)).min(1.0 / (d_b * l.curvature_barrier));
+                DT_RELAXATION_FRACTION * tau
+            }
+        };
+        let mut warnings = Vec::new();
+        let dt = s.dt.unwrap_or(dt_default);
+        if s.dt.is_some() && dt > dt_default {
+            warnings.push(format!(
+                "simulation.dt = {dt:.4e} is larger than the default {dt_default:.4e} for this landscape: expect a time-step bias in the rate (first passages are checked once per step)"
+            ));
+        }
+        // expected escape rate: the trusted theory for these dynamics
+        let k_expect = match dynamics {
+            Dynamics::Underdamped => t.rates.turnover.or(t.rates.kramers),
+            Dynamics::Overdamped => t.rates.mfpt,
+        }
+        .or(t.rates.mfpt)
+        .unwrap_or(1.0);
+        let max_time = s.max_time.unwrap_or(HORIZON_ESCAPE_TIMES / k_expect);
+        let max_steps_f = (max_time / dt).ceil();
+        if !(1.0..1e18).contains(&max_steps_f) {
+            return Err(key_err(
+                "simulation.max_time",
+                format!("max_time / dt = {max_steps_f:e} steps is not a usable horizon"),
+            ));
+        }
+        let max_steps = max_steps_f as u64;
+        let start = match s.start.as_deref() {
+            Some("thermal") => Start::Thermal(thermal_table(&m.potential, l.wall, l.barrier)),
+            _ => Start::At(l.reactant),
+        };
+        let force = FastForce::new(&m.potential);
+        if force.rel_error() > 1e-6 {
+            warnings.push(format!(
+                "the tabulated force has a relative interpolation error of {:.1e}",
+                force.rel_error()
+            ));
+        }
+        let mobility = match (&m.diffusion, dynamics) {
+            (Diffusion::Constant(_), _) | (_, Dynamics::Underdamped) => None,
+            (d, Dynamics::Overdamped) => Some(GridD::new(d, lo, hi)),
+        };
+        let params = Params {
+            kind,
+            dt,
+            max_steps,
+            seed: s.seed.unwrap_or(1),
+            target: l.target,
+            dir: l.direction,
+            lo,
+            hi,
+            mass,
+            gamma,
+            start,
+        };
+        let trajectories = s.trajectories.unwrap_or(DEFAULT_TRAJECTORIES);
+        let fingerprint = fingerprint(m, &params, trajectories);
+        Ok(Self {
+            dynamics,
+            scheme,
+            params,
+            trajectories,
+            dt_default,
+            dt_given: s.dt.is_some(),
+            force,
+            mobility,
+            d_const: d_a,
+            warnings,
+            fingerprint,
+        })
+    }
+
+    /// Horizon in time units.
+    pub fn max_time(&self) -> f64 {
+        self.params.max_steps as f64 * self.params.dt
+    }
+}
+
+/// Inverse-CDF table of exp(−U) on the reactant side between the wall and the barrier.
+fn thermal_table(pot: &AnyPotential, wall: f64, barrier: f64) -> Vec<(f64, f64)> {
+    let n = 4096;
+    let (a, b) = (wall.min(barrier), wall.max(barrier));
+    let xs: Vec<f64> = (0..=n).map(|i| a + (b - a) * i as f64 / n as f64).collect();
+    let umin = xs.iter().map(|&x| pot.u(x)).fold(f64::INFINITY, f64::min);
+    let w: Vec<f64> = xs.iter().map(|&x| (umin - pot.u(x)).exp()).collect();
+    let mut cdf = vec![0.0; n + 1];
+    for i in 1..=n {
+        cdf[i] = cdf[i - 1] + 0.5 * (w[i - 1] + w[i]);
+    }
+    let total = cdf[n];
+    xs.into_iter()
+        .zip(cdf)
+        .map(|(x, c)| (x, c / total))
+        .collect()
+}
+
+/// A fingerprint of everything that determines the outcomes: U' and D sampled across the domain,
+/// the loop parameters, the ensemble size and seed.
+fn fingerprint(m: &Model, p: &Params, n: u64) -> u64 {
+    let (lo, hi) = (p.lo, p.hi);
+    let mut s = format!(
+        "{:?}|{:?}|{:?}|{}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{n}|",
+        p.kind,
+        p.dt,
+        p.max_steps,
+        p.seed,
+        p.target,
+        p.dir,
+        lo,
+        hi,
+        p.mass,
+        p.gamma,
+        matches!(p.start, Start::Thermal(_))
+    );
+    for i in 0..=64 {
+        let x = lo + (hi - lo) * f64::from(i) / 64.0;
+        s.push_str(&format!(
+            "{:?},{:?};",
+            m.potential.du(x),
+            m.diffusion.value(x)
+        ));
+    }
+    fnv1a(s.as_bytes())
+}
+
+/// Runs the trajectories `indices` of `plan` on `threads` threads, calling `on_done` on this thread
+/// for each finished one as it completes. Returns the outcomes in index order. When `stop` is set
+/// the run ends early and only finished trajectories are returned.
+pub fn execute(
+    plan: &Plan,
+    indices: &[u64],
+    threads: usize,
+    stop: &AtomicBool,
+    mut on_done: impl FnMut(&Outcome),
+) -> Vec<Outcome> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.max(1))
+        .build()
+        .expect("a thread pool");
+    let (tx, rx) = mpsc::channel::<Outcome>();
+    let mut out = Vec::with_capacity(indices.len());
+    std::thread::scope(|s| {
+        s.spawn(move || {
+            pool.install(|| {
+                indices.par_chunks(CHUNK).for_each_with(tx, |tx, chunk| {
+                    let mut send = |o: Outcome| {
+                        let _ = tx.send(o);
+                    };
+                    run_one_chunk(plan, chunk, stop, &mut send);
+                });
+            });
+        });
+        for o in rx {
+            on_done(&o);
+            out.push(o);
+        }
+    });
+    out.sort_unstable();
+    out
+}
+
+fn run_one_chunk(plan: &Plan, chunk: &[u64], stop: &AtomicBool, send: &mut dyn FnMut(Outcome)) {
+    let p = &plan.params;
+    match (&plan.force, &plan.mobility) {
+        (FastForce::Family(f), None) => {
+            engine::run_chunk(p, f, &ConstD(plan.d_const), chunk, stop, send)
+        }
+        (FastForce::Grid(g), None) => {
+            engine::run_chunk(p, g, &ConstD(plan.d_const), chunk, stop, send)
+        }
+        (FastForce::Family(f), Some(mob)) => engine::run_chunk(p, f, mob, chunk, stop, send),
+        (FastForce::Grid(g), Some(mob)) => engine::run_chunk(p, g, mob, chunk, stop, send),
+    }
+}
+
+/// How to run an ensemble.
+#[derive(Debug, Clone, Default)]
+pub struct RunOptions {
+    /// worker threads (0 = all cores)
+    pub threads: usize,
+    /// run only part K (1-based) of N of the index range
+    pub shard: Option<(u64, u64)>,
+    /// append records to this file
+    pub records: Option<std::path::PathBuf>,
+    /// continue the run recorded in `records`
+    pub resume: bool,
+}
+
+/// Parses `K/N` (1 ≤ K ≤ N).
+///
+/// # Errors
+/// Anything else.
+pub fn parse_shard(s: &str) -> Result<(u64, u64), String> {
+    let (k, n) = s
+        .split_once('/')
+        .ok_or_else(|| format!("--shard {s}: expected K/N, e.g. 2/5"))?;
+    let (k, n): (u64, u64) = (
+        k.trim()
+            .parse()
+            .map_err(|_| format!("--shard {s}: K is not a whole number"))?,
+        n.trim()
+            .parse()
+            .map_err(|_| format!("--shard {s}: N is not a whole number"))?,
+    );
+    if n == 0 || k == 0 || k > n {
+        return Err(format!("--shard {s}: need 1 <= K <= N"));
+    }
+    Ok((k, n))
+}
+
+/// The index range of shard K of N over `total` trajectories: contiguous parts.
+pub fn shard_range(total: u64, shard: Option<(u64, u64)>) -> std::ops::Range<u64> {
+    match shard {
+        None => 0..total,
+        Some((k, n)) => {
+            let part = |j: u64| ((u128::from(total) * u128::from(j)) / u128::from(n)) as u64;
+            part(k - 1)..part(k)
+        }
+    }
+}
+
+/// The result of an ensemble run.
+#[derive(Debug, Clone)]
+pub struct RunResult {
+    /// every outcome of this shard (including resumed ones), by index
+    pub outcomes: Vec<Outcome>,
+    /// trajectories this shard should have
+    pub expected: u64,
+    /// wall time of this invocation
+    pub wall_seconds: f64,
+    /// stopped by the flag before finishing
+    pub interrupted: bool,
+    /// resume and record notes
+    pub warnings: Vec<String>,
+    /// threads used
+    pub threads: usize,
+}
+
+/// Runs (or resumes) the ensemble of `plan` with records and sharding; `on_done` sees every newly
+/// finished trajectory with the count finished so far (for progress displays).
+///
+/// # Errors
+/// Record-file problems (exists, mismatched, malformed, unwritable).
+pub fn run_ensemble(
+    plan: &Plan,
+    opts: &RunOptions,
+    stop: &AtomicBool,
+    mut on_done: impl FnMut(&Outcome, usize),
+) -> Result<RunResult, records::RecordError> {
+    let range = shard_range(plan.trajectories, opts.shard);
+    let mut warnings = Vec::new();
+    let (mut writer, mut previous) = match (&opts.records, opts.resume) {
+        (Some(path), true) => {
+            let (w, c) = records::resume(path, plan)?;
+            warnings.extend(c.warnings);
+            (Some(w), c.outcomes)
+        }
+        (Some(path), false) => (Some(records::create(path, plan)?), Vec::new()),
+        (None, _) => (None, Vec::new()),
+    };
+    previous.retain(|o| range.contains(&o.index));
+    let done: std::collections::BTreeSet<u64> = previous.iter().map(|o| o.index).collect();
+    let todo: Vec<u64> = range.clone().filter(|i| !done.contains(i)).collect();
+    let threads = if opts.threads == 0 {
+        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
+    } else {
+        opts.threads
+    };
+    let t0 = std::time::Instant::now();
+    let mut count = previous.len();
+    let mut write_error = None;
+    let fresh = execute(plan, &todo, threads, stop, |o| {
+        count += 1;
+        if let Some(w) = writer.as_mut()
+            && write_error.is_none()
+            && let Err(e) = w.append(o)
+        {
+            write_error = Some(e);
+        }
+        on_done(o, count);
+    });
+    if let Some(e) = write_error {
+        return Err(e);
+    }
+    let wall_seconds = t0.elapsed().as_secs_f64();
+    let interrupted = fresh.len() < todo.len();
+    previous.extend(fresh);
+    previous.sort_unstable();
+    Ok(RunResult {
+        outcomes: previous,
+        expected: range.end - range.start,
+        wall_seconds,
+        interrupted,
+        warnings,
+        threads,
+    })
+}

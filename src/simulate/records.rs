@@ -1,0 +1,378 @@
+//! Record files: one CSV line per finished trajectory (index, steps, time, outcome), appended and
+//! flushed as each trajectory completes, under a header that carries the run's fingerprint so that
+//! `--resume` and `merge` refuse files from another scenario. A torn last line (a write cut off by a
+//! kill) is discarded with a warning; any other malformed line is an error naming its line.
+
+use super::{Dynamics, Plan};
+use crate::stats::Outcome;
+use std::collections::BTreeSet;
+use std::fs::{File, OpenOptions};
+use std::io::{BufWriter, Write};
+use std::path::Path;
+use thiserror::Error;
+
+/// Record-file problems.
+#[derive(Debug, Error)]
+#[non_exhaustive]
+pub enum RecordError {
+    /// Reading or writing failed.
+    #[error("{path}: {message}")]
+    Io {
+        /// file
+        path: String,
+        /// OS message
+        message: String,
+    },
+    /// A malformed line.
+    #[error("{path}: line {line}: {message}")]
+    Format {
+        /// file
+        path: String,
+        /// 1-based line
+        line: usize,
+        /// what is wrong
+        message: String,
+    },
+    /// Files from different runs.
+    #[error("{path}: {message}")]
+    Mismatch {
+        /// file
+        path: String,
+        /// what differs
+        message: String,
+    },
+}
+
+/// What a record file's header says.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Header {
+    /// run fingerprint (hex)
+    pub fingerprint: u64,
+    /// master seed
+    pub seed: u64,
+    /// ensemble size of the whole run
+    pub trajectories: u64,
+    /// time step (time units)
+    pub dt: f64,
+    /// horizon in steps
+    pub max_steps: u64,
+    /// dynamics name
+    pub dynamics: String,
+}
+
+impl Header {
+    /// The header of a plan.
+    pub fn of(plan: &Plan) -> Self {
+        Self {
+            fingerprint: plan.fingerprint,
+            seed: plan.params.seed,
+            trajectories: plan.trajectories,
+            dt: plan.params.dt,
+            max_steps: plan.params.max_steps,
+            dynamics: match plan.dynamics {
+                Dynamics::Underdamped => "underdamped".into(),
+                Dynamics::Overdamped => "overdamped".into(),
+            },
+        }
+    }
+
+    fn text(&self) -> String {
+        format!(
+            "# escapade trajectory records: one line per finished trajectory\n# fingerprint={:016x} seed={} trajectories={} dt={:?} max_steps={} dynamics={}\nindex,steps,time,outcome\n",
+            self.fingerprint, self.seed, self.trajectories, self.dt, self.max_steps, self.dynamics
+        )
+    }
+}
+
+fn io(path: &Path, e: impl std::fmt::Display) -> RecordError {
+    RecordError::Io {
+        path: path.display().to_string(),
+        message: e.to_string(),
+    }
+}
+
+/// An open record file.
+pub struct Writer {
+    out: BufWriter<File>,
+    dt: f64,
+    path: String,
+}
+
+impl Writer {
+    /// Appends one record as a whole line and flushes it.
+    ///
+    /// # Errors
+    /// The write failed.
+    pub fn append(&mut self, o: &Outcome) -> Result<(), RecordError> {
+        let line = format!(
+            "{},{},{:?},{}\n",
+            o.index,
+            o.steps,
+            o.steps as f64 * self.dt,
+            if o.escaped { "escaped" } else { "censored" }
+        );
+        self.out
+            .write_all(line.as_bytes())
+            .and_then(|()| self.out.flush())
+            .map_err(|e| RecordError::Io {
+                path: self.path.clone(),
+                message: e.to_string(),
+            })
+    }
+}
+
+/// A record file as read.
+#[derive(Debug, Clone)]
+pub struct Contents {
+    /// its header
+    pub header: Header,
+    /// its records
+    pub outcomes: Vec<Outcome>,
+    /// byte length of the whole lines (a torn tail is beyond it)
+    pub valid_len: usize,
+    /// warnings (a discarded torn line)
+    pub warnings: Vec<String>,
+}
+
+fn parse_header(path: &Path, line_no: usize, line: &str) -> Result<Header, RecordError> {
+    let bad = |m: &str| RecordError::Format {
+        path: path.display().to_string(),
+        line: line_no,
+        message: m.to_string(),
+    };
+    let mut fp = None;
+    let (mut seed, mut n, mut dt, mut ms, mut dy) = (None, None, None, None, None);
+    for tok in line.trim_start_matches('#').split_whitespace() {
+        let Some((k, v)) = tok.split_once('=') else {
+            continue;
+        };
+        match k {
+            "fingerprint" => fp = u64::from_str_radix(v, 16).ok(),
+            "seed" => seed = v.parse().ok(),
+            "trajectories" => n = v.parse().ok(),
+            "dt" => dt = v.parse().ok(),
+            "max_steps" => ms = v.parse().ok(),
+            "dynamics" => dy = Some(v.to_string()),
+            _ => {}
+        }
+    }
+    Ok(Header {
+        fingerprint: fp.ok_or_else(|| bad("header without a fingerprint"))?,
+        seed: seed.ok_or_else(|| bad("header without a seed"))?,
+        trajectories: n.ok_or_else(|| bad("header without trajectories"))?,
+        dt: dt.ok_or_else(|| bad("header without dt"))?,
+        max_steps: ms.ok_or_else(|| bad("header without max_steps"))?,
+        dynamics: dy.ok_or_else(|| bad("header without dynamics"))?,
+    })
+}
+
+/// Reads a record file.
+///
+/// # Errors
+/// Unreadable file, missing header, malformed or duplicate lines.
+pub fn read(path: &Path) -> Result<Contents, RecordError> {
+    let bytes = std::fs::read(path).map_err(|e| io(path, e))?;
+    let text = String::from_utf8_lossy(&bytes);
+    let whole = text.rfind('\n').map_or(0, |i| i + 1);
+    let mut warnings = Vec::new();
+    if whole < text.len() {
+        warnings.push(format!(
+            "{}: discarded a torn last line (a write cut off mid-line)",
+            path.display()
+        ));
+    }
+    let mut header = None;
+    let mut outcomes = Vec::new();
+    let mut seen = BTreeSet::new();
+    for (i, line) in text[..whole].lines().enumerate() {
+        let line_no = i + 1;
+        let t = line.trim();
+        if t.is_empty() || t.starts_with("index,") {
+            continue;
+        }
+        if t.starts_with('#') {
+            if t.contains("fingerprint=") {
+                header = Some(parse_header(path, line_no, t)?);
+            }
+            continue;
+        }
+        let bad = |m: String| RecordError::Format {
+            path: path.display().to_string(),
+            line: line_no,
+            message: m,
+        };
+        let f: Vec<&str> = t.split(',').collect();
+        if f.len() != 4 {
+            return Err(bad(format!("{} fields, expected 4", f.len())));
+        }
+        let index: u64 = f[0].parse().map_err(|_| bad(format!("index {:?}", f[0])))?;
+        let steps: u64 = f[1].parse().map_err(|_| bad(format!("steps {:?}", f[1])))?;
+        let escaped = match f[3] {
+            "escaped" => true,
+            "censored" => false,
+            other => return Err(bad(format!("outcome {other:?} (escaped or censored)"))),
+        };
+        if !seen.insert(index) {
+            return Err(bad(format!("trajectory {index} recorded twice")));
+        }
+        outcomes.push(Outcome {
+            index,
+            steps,
+            escaped,
+        });
+    }
+    let header = header.ok_or_else(|| RecordError::Format {
+        path: path.display().to_string(),
+        line: 1,
+        message: "no header line with the run's fingerprint".into(),
+    })?;
+    Ok(Contents {
+        header,
+        outcomes,
+        valid_len: whole,
+        warnings,
+    })
+}
+
+/// Creates a record file for a new run (an existing file is refused, so no finished work is lost).
+///
+/// # Errors
+/// The file exists or cannot be created.
+pub fn create(path: &Path, plan: &Plan) -> Result<Writer, RecordError> {
+    let mut f = OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(path)
+        .map_err(|e| {
+            if e.kind() == std::io::ErrorKind::AlreadyExists {
+                io(
+                    path,
+                    "exists already: use --resume to continue it, or choose another file",
+                )
+            } else {
+                io(path, e)
+            }
+        })?;
+    f.write_all(Header::of(plan).text().as_bytes())
+        .and_then(|()| f.flush())
+        .map_err(|e| io(path, e))?;
+    Ok(Writer {
+        out: BufWriter::new(f),
+        dt: plan.params.dt,
+        path: path.display().to_string(),
+    })
+}
+
+/// Opens a record file to continue a run: checks it belongs to `plan`, drops a torn last line,
+/// and returns the writer with the records already there. A missing file starts a new one.
+///
+/// # Errors
+/// A file from another scenario or seed, or a malformed file.
+pub fn resume(path: &Path, plan: &Plan) -> Result<(Writer, Contents), RecordError> {
+    if !path.exists() {
+        let w = create(path, plan)?;
+        return Ok((
+            w,
+            Contents {
+                header: Header::of(plan),
+                outcomes: Vec::new(),
+                valid_len: 0,
+                warnings: Vec::new(),
+            },
+        ));
+    }
+    let c = read(path)?;
+    let h = Header::of(plan);
+    if c.header.fingerprint != h.fingerprint {
+        return Err(RecordError::Mismatch {
+            path: path.display().to_string(),
+            message: format!(
+                "records of another run (fingerprint {:016x}, this run {:016x}): same scenario, seed, dt and trajectories are needed to resume",
+                c.header.fingerprint, h.fingerprint
+            ),
+        });
+    }
+    let f = OpenOptions::new()
+        .write(true)
+        .open(path)
+        .map_err(|e| io(path, e))?;
+    f.set_len(c.valid_len as u64).map_err(|e| io(path, e))?;
+    drop(f);
+    let f = OpenOptions::new()
+        .append(true)
+        .open(path)
+        .map_err(|e| io(path, e))?;
+    Ok((
+        Writer {
+            out: BufWriter::new(f),
+            dt: plan.params.dt,
+            path: path.display().to_string(),
+        },
+        c,
+    ))
+}
+
+/// Unions record files of one run (same fingerprint), refusing duplicate indices.
+///
+/// # Errors
+/// Unreadable or malformed files, different runs, a trajectory recorded in two files.
+pub fn merge(paths: &[&Path]) -> Result<Contents, RecordError> {
+    let mut all: Option<Contents> = None;
+    let mut owner = std::collections::BTreeMap::new();
+    for &p in paths {
+        let c = read(p)?;
+        for o in &c.outcomes {
+            if let Some(prev) = owner.insert(o.index, p.display().to_string()) {
+                return Err(RecordError::Mismatch {
+                    path: p.display().to_string(),
+                    message: format!("trajectory {} is also recorded in {prev}", o.index),
+                });
+            }
+        }
+        match &mut all {
+            None => all = Some(c),
+            Some(a) => {
+                if a.header.fingerprint != c.header.fingerprint {
+                    return Err(RecordError::Mismatch {
+                        path: p.display().to_string(),
+                        message: format!(
+                            "records of another run (fingerprint {:016x}, first file {:016x})",
+                            c.header.fingerprint, a.header.fingerprint
+                        ),
+                    });
+                }
+                a.outcomes.extend(c.outcomes);
+                a.warnings.extend(c.warnings);
+            }
+        }
+    }
+    let mut a = all.ok_or_else(|| RecordError::Io {
+        path: String::new(),
+        message: "no record files given".into(),
+    })?;
+    a.outcomes.sort_unstable();
+    Ok(a)
+}
+
+/// Writes merged contents as one record file (refusing to overwrite).
+///
+/// # Errors
+/// The file exists or cannot be written.
+pub fn write_all(path: &Path, c: &Contents) -> Result<(), RecordError> {
+    let mut f = OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(path)
+        .map_err(|e| io(path, e))?;
+    let mut text = c.header.text();
+    for o in &c.outcomes {
+        text.push_str(&format!(
+            "{},{},{:?},{}\n",
+            o.index,
+            o.steps,
+            o.steps as f64 * c.header.dt,
+            if o.escaped { "escaped" } else { "censored" }
+        ));
+    }
+    f.write_all(text.as_bytes()).map_err(|e| io(path, e))
+}
