@@ -167,9 +167,9 @@ fn simulate_cmd(
     };
     // a second Ctrl-C falls through to the default (the first one already asked for a stop)
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
-    let show = !common.quiet
-        && std::io::stderr().is_terminal()
-        && !(common.json && !std::io::stdout().is_terminal());
+    // no bar with --quiet, when nobody sees stderr, or when JSON goes to a pipe
+    let json_to_pipe = common.json && !std::io::stdout().is_terminal();
+    let show = !common.quiet && std::io::stderr().is_terminal() && !json_to_pipe;
     let mut progress = Progress {
         show,
         start: std::time::Instant::now(),
