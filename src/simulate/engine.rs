@@ -131,6 +131,112 @@ fn reflect(x: &mut f64, v: &mut f64, lo: f64, hi: f64) {
     }
 }
 
+/// Step constants derived once per run.
+struct Consts {
+    hdt_m: f64,
+    c1: f64,
+    c2: f64,
+    d0: f64,
+    noise0: f64,
+}
+
+impl Consts {
+    fn new<M: Mobility>(p: &Params, mob: &M) -> Self {
+        let dt = p.dt;
+        let d0 = mob.d(0.0).0;
+        Self {
+            hdt_m: 0.5 * dt / p.mass,
+            c1: (-p.gamma * dt).exp(),
+            // sqrt(1 - c1^2) without cancellation for small gamma dt
+            c2: (-(-2.0 * p.gamma * dt).exp_m1()).sqrt() / p.mass.sqrt(),
+            d0,
+            noise0: (2.0 * d0 * dt).sqrt(),
+        }
+    }
+}
+
+/// One integrator step of one trajectory (x, v, the force at x, the previous Gaussian for
+/// Leimkuhler–Matthews), with reflection at the walls.
+#[allow(clippy::too_many_arguments)] // the lane state is passed as its parts to stay in registers
+#[inline(always)]
+fn step<F: Force, M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    force: &F,
+    mob: &M,
+    x: &mut f64,
+    v: &mut f64,
+    f: &mut f64,
+    r: &mut f64,
+    rng: &mut Pcg64,
+) {
+    let dt = p.dt;
+    match p.kind {
+        Kind::Baoab => {
+            let mut vv = *v + c.hdt_m * *f;
+            *x += 0.5 * dt * vv;
+            let rr: f64 = rng.sample(StandardNormal);
+            vv = c.c1 * vv + c.c2 * rr;
+            *x += 0.5 * dt * vv;
+            reflect(x, &mut vv, p.lo, p.hi);
+            let ff = force.force(*x);
+            *v = vv + c.hdt_m * ff;
+            *f = ff;
+        }
+        Kind::LeimkuhlerMatthews | Kind::EulerMaruyama => {
+            let rr: f64 = rng.sample(StandardNormal);
+            let (d, dd, noise) = if M::CONSTANT {
+                (c.d0, 0.0, c.noise0)
+            } else {
+                let (d, dd) = mob.d(*x);
+                (d, dd, (2.0 * d * dt).sqrt())
+            };
+            let kick = if p.kind == Kind::LeimkuhlerMatthews {
+                let k = 0.5 * (*r + rr);
+                *r = rr;
+                k
+            } else {
+                rr
+            };
+            *x += dt * (d * *f + dd) + noise * kick;
+            let mut vv = 0.0;
+            reflect(x, &mut vv, p.lo, p.hi);
+            *f = force.force(*x);
+        }
+    }
+}
+
+/// One trajectory of `steps` steps with no absorbing target (for stationary and diffusion checks),
+/// returning (x, v) every `every` steps, starting from `x0` with a Maxwell velocity.
+pub fn sample_path<F: Force, M: Mobility>(
+    p: &Params,
+    force: &F,
+    mob: &M,
+    index: u64,
+    x0: f64,
+    steps: u64,
+    every: u64,
+) -> Vec<(f64, f64)> {
+    let c = Consts::new(p, mob);
+    let mut rng = stream(p.seed, index);
+    let mut x = x0;
+    let mut v = if p.kind == Kind::Baoab {
+        rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
+    } else {
+        0.0
+    };
+    let mut r: f64 = rng.sample(StandardNormal);
+    let mut f = force.force(x);
+    let mut out = Vec::with_capacity((steps / every.max(1)) as usize);
+    for s in 1..=steps {
+        step(p, &c, force, mob, &mut x, &mut v, &mut f, &mut r, &mut rng);
+        if s % every.max(1) == 0 {
+            out.push((x, v));
+        }
+    }
+    out
+}
+
 /// Runs the trajectories `indices`, calling `done` for each finished one. Stops early (dropping the
 /// unfinished trajectories) when `stop` is set.
 pub fn run_chunk<F: Force, M: Mobility>(
@@ -182,13 +288,7 @@ pub fn run_chunk<F: Force, M: Mobility>(
     for k in 0..LANES {
         start(&mut l, k, &mut next);
     }
-    let dt = p.dt;
-    let hdt_m = 0.5 * dt / p.mass;
-    let c1 = (-p.gamma * dt).exp();
-    let c2 = (-(-2.0 * p.gamma * dt).exp_m1()).sqrt() * inv_sqrt_m;
-    let (lo, hi, target, dir) = (p.lo, p.hi, p.target, p.dir);
-    let d0 = mob.d(0.0).0;
-    let noise0 = (2.0 * d0 * dt).sqrt();
+    let c = Consts::new(p, mob);
     while l.active.iter().any(|&a| a) {
         if stop.load(Ordering::Relaxed) {
             return;
@@ -199,50 +299,20 @@ pub fn run_chunk<F: Force, M: Mobility>(
                     continue;
                 }
                 let mut x = l.x[k];
-                let rng = &mut l.rng[k];
-                match p.kind {
-                    Kind::Baoab => {
-                        let mut v = l.v[k] + hdt_m * l.f[k];
-                        x += 0.5 * dt * v;
-                        let rr: f64 = rng.sample(StandardNormal);
-                        v = c1 * v + c2 * rr;
-                        x += 0.5 * dt * v;
-                        reflect(&mut x, &mut v, lo, hi);
-                        let f = force.force(x);
-                        l.v[k] = v + hdt_m * f;
-                        l.f[k] = f;
-                    }
-                    Kind::LeimkuhlerMatthews => {
-                        let rr: f64 = rng.sample(StandardNormal);
-                        let (d, dd, noise) = if M::CONSTANT {
-                            (d0, 0.0, noise0)
-                        } else {
-                            let (d, dd) = mob.d(x);
-                            (d, dd, (2.0 * d * dt).sqrt())
-                        };
-                        x += dt * (d * l.f[k] + dd) + noise * 0.5 * (l.r[k] + rr);
-                        l.r[k] = rr;
-                        let mut v = 0.0;
-                        reflect(&mut x, &mut v, lo, hi);
-                        l.f[k] = force.force(x);
-                    }
-                    Kind::EulerMaruyama => {
-                        let rr: f64 = rng.sample(StandardNormal);
-                        let (d, dd, noise) = if M::CONSTANT {
-                            (d0, 0.0, noise0)
-                        } else {
-                            let (d, dd) = mob.d(x);
-                            (d, dd, (2.0 * d * dt).sqrt())
-                        };
-                        x += dt * (d * l.f[k] + dd) + noise * rr;
-                        let mut v = 0.0;
-                        reflect(&mut x, &mut v, lo, hi);
-                        l.f[k] = force.force(x);
-                    }
-                }
+                step(
+                    p,
+                    &c,
+                    force,
+                    mob,
+                    &mut x,
+                    &mut l.v[k],
+                    &mut l.f[k],
+                    &mut l.r[k],
+                    &mut l.rng[k],
+                );
                 l.x[k] = x;
                 l.steps[k] += 1;
-                let escaped = dir * (x - target) >= 0.0;
+                let escaped = p.dir * (x - p.target) >= 0.0;
                 if escaped || l.steps[k] >= p.max_steps {
                     done(Outcome {
                         index: l.index[k],

@@ -221,6 +221,7 @@ pub fn read(path: &Path) -> Result<Contents, RecordError> {
             escaped,
         });
     }
+    outcomes.sort_unstable();
     let header = header.ok_or_else(|| RecordError::Format {
         path: path.display().to_string(),
         line: 1,
