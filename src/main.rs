@@ -198,7 +198,8 @@ fn simulate_cmd(
     let code = if result.interrupted { 130 } else { 0 };
     let text = if with_theory {
         let theory = RateReport::new(&m, &t);
-        let (comparison, verdict) = compare_rows(&theory.formulas, &out);
+        let (comparison, verdict) =
+            compare_rows(&theory.formulas, &out, t.landscape.barrier_height);
         let r = CompareReport {
             theory,
             simulation: out,

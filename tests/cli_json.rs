@@ -144,3 +144,75 @@ fn demo_runs_and_prints_a_table() {
     let v = json(&["demo", "--json"]);
     assert!(v["rates"]["turnover"].as_f64().unwrap() > 0.0);
 }
+
+/// `compare --json` on every example (400 trajectories to keep the suite fast): the contract's keys,
+/// and the acceptance check — the simulated rate is consistent with the exact MFPT rate
+/// (overdamped) or the turnover rate (underdamped, E_b >= 6 kT) within the documented accuracy of
+/// those theories (report::accuracy_band: the MFPT to the time-step bias of 1%, asymptotic rates
+/// to the finite-barrier correction kT/E_b).
+#[test]
+fn compare_json_follows_the_contract_and_agrees_on_every_example() {
+    for f in examples() {
+        let f = f.to_str().unwrap();
+        let v = json(&[
+            "compare",
+            f,
+            "--json",
+            "--quiet",
+            "--set",
+            "simulation.trajectories=400",
+        ]);
+        let s = &v["simulation"];
+        assert_eq!(s["method"], "brute-force");
+        for k in [
+            "trajectories",
+            "escaped",
+            "censored",
+            "rate",
+            "mfpt",
+            "mfpt_se",
+            "total_steps",
+            "wall_seconds",
+            "dt",
+            "seed",
+        ] {
+            assert!(s[k].as_f64().is_some(), "{f}: simulation.{k}");
+        }
+        assert!(s["rate_ci95"].as_array().is_some_and(|a| a.len() == 2));
+        assert!(s["dynamics"].is_string());
+        let rows = v["comparison"].as_array().unwrap();
+        assert_eq!(rows.len(), 7, "{f}");
+        for r in rows {
+            for k in ["method", "valid"] {
+                assert!(r.get(k).is_some(), "{f}: comparison.{k}");
+            }
+            assert!(r.get("rate").is_some_and(is_num_or_null));
+            assert!(r.get("ratio_to_simulation").is_some_and(is_num_or_null));
+            assert!(r.get("ratio_ci95").is_some());
+        }
+        let key = if s["dynamics"] == "overdamped" {
+            "mfpt"
+        } else {
+            "turnover"
+        };
+        let row = rows.iter().find(|r| r["method"] == key).unwrap();
+        assert_eq!(row["consistent"], true, "{f}: {key} vs simulation: {row}");
+        assert!(v["verdict"].as_str().unwrap().contains(key), "{f}");
+    }
+}
+
+#[test]
+fn simulate_json_has_units_landscape_and_simulation_only() {
+    let f = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/colloid_trap_um.toml");
+    let v = json(&[
+        "simulate",
+        f,
+        "--json",
+        "--quiet",
+        "--set",
+        "simulation.trajectories=100",
+    ]);
+    assert!(v["units"].is_object() && v["landscape"].is_object() && v["simulation"].is_object());
+    assert!(v.get("rates").is_none() && v.get("comparison").is_none());
+    assert_eq!(v["simulation"]["dynamics"], "overdamped");
+}

@@ -328,10 +328,32 @@ pub struct ComparisonRow {
     pub valid: bool,
     /// whether the theory rate lies inside the simulation's 95% interval
     pub agrees: bool,
+    /// the band [low, high] that simulated/theory may fill given the theory's documented accuracy
+    pub accuracy_band: [f64; 2],
+    /// whether simulated/theory's 95% interval meets that band
+    pub consistent: bool,
+}
+
+/// The documented accuracy of each rate against a simulated escape rate, as a band for
+/// simulated/theory: asymptotic formulas neglect finite-barrier corrections of order kT/E_b, which
+/// make the simulated escape rate lower (PHYSICS.md §2, §4: 10–15% at 7 kT); TST is an upper
+/// bound; the exact MFPT is exact for overdamped dynamics up to the time-step bias (1% at the
+/// default dt). 3% on the high side covers the time-step bias of the simulation.
+pub fn accuracy_band(key: &str, barrier_kt: f64) -> [f64; 2] {
+    let finite = (1.0 / barrier_kt.max(1.0)).min(0.5);
+    match key {
+        "mfpt" => [0.99, 1.01],
+        "tst" | "tst_exact" => [0.0, 1.03],
+        _ => [1.0 - finite, 1.03],
+    }
 }
 
 /// The comparison rows and a one-line verdict.
-pub fn compare_rows(t: &[RateRow], sim: &SimulationOut) -> (Vec<ComparisonRow>, String) {
+pub fn compare_rows(
+    t: &[RateRow],
+    sim: &SimulationOut,
+    barrier_kt: f64,
+) -> (Vec<ComparisonRow>, String) {
     let [lo, hi] = sim.rate_ci95;
     let rows: Vec<ComparisonRow> = t
         .iter()
@@ -341,6 +363,11 @@ pub fn compare_rows(t: &[RateRow], sim: &SimulationOut) -> (Vec<ComparisonRow>, 
                 .rate
                 .filter(|_| lo > 0.0 && hi.is_finite())
                 .map(|k| [k / hi, k / lo]);
+            let band = accuracy_band(r.key, barrier_kt);
+            // simulated/theory interval [lo/k, hi/k] meets the band
+            let consistent = r
+                .rate
+                .is_some_and(|k| k > 0.0 && lo / k <= band[1] && hi / k >= band[0]);
             ComparisonRow {
                 method: r.key,
                 label: r.label,
@@ -349,16 +376,33 @@ pub fn compare_rows(t: &[RateRow], sim: &SimulationOut) -> (Vec<ComparisonRow>, 
                 ratio_ci95: ci,
                 valid: r.valid,
                 agrees: r.rate.is_some_and(|k| k >= lo && k <= hi),
+                accuracy_band: band,
+                consistent,
             }
         })
         .collect();
     let agree: Vec<&str> = rows.iter().filter(|r| r.agrees).map(|r| r.method).collect();
+    let fits: Vec<&str> = rows
+        .iter()
+        .filter(|r| r.consistent && !r.agrees && !r.method.starts_with("tst"))
+        .map(|r| r.method)
+        .collect();
     let verdict = if sim.escaped == 0 {
         "no escapes were simulated: no verdict (raise max_time or trajectories)".to_string()
-    } else if agree.is_empty() {
-        "no theory lies within the simulation's 95% interval".to_string()
     } else {
-        format!("within the simulation's 95% interval: {}", agree.join(", "))
+        let inside = if agree.is_empty() {
+            "no theory lies within the simulation's 95% interval".to_string()
+        } else {
+            format!("within the simulation's 95% interval: {}", agree.join(", "))
+        };
+        if fits.is_empty() {
+            inside
+        } else {
+            format!(
+                "{inside}; within the documented accuracy (finite-barrier corrections ~kT/E_b): {}",
+                fits.join(", ")
+            )
+        }
     };
     (rows, verdict)
 }

@@ -302,13 +302,15 @@ pub fn compare(r: &super::CompareReport) -> String {
         "ratio to simulation".to_string(),
         "ratio 95% interval".to_string(),
         "holds here".to_string(),
-        "within interval".to_string(),
+        "in sim. interval".to_string(),
+        "within accuracy".to_string(),
     ]);
     let s = &r.simulation;
     t.add_row(vec![
         format!("simulation ({})", s.method),
         num(s.rate),
         "1".into(),
+        "—".into(),
         "—".into(),
         "—".into(),
         "—".into(),
@@ -323,6 +325,15 @@ pub fn compare(r: &super::CompareReport) -> String {
                 .unwrap_or_else(|| "—".into()),
             if c.valid { "yes" } else { "no" }.into(),
             if c.agrees { "yes" } else { "no" }.into(),
+            if c.consistent {
+                format!(
+                    "yes [{}, {}]",
+                    num(c.accuracy_band[0]),
+                    num(c.accuracy_band[1])
+                )
+            } else {
+                "no".into()
+            },
         ]);
     }
     let _ = writeln!(out, "{t}");
