@@ -20,12 +20,13 @@ use crate::stats::Outcome;
 use rand::RngExt;
 use rand_distr::StandardNormal;
 use rand_pcg::Pcg64;
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// Lanes per thread: 8 independent chains cover the ~10 ns latency of one step.
 pub const LANES: usize = 8;
-/// Steps between checks of the stop flag.
-const BLOCK: u64 = 256;
+/// Steps per lock-step block (Gaussians are drawn a block at a time; the stop flag is polled once
+/// per block).
+const BLOCK: usize = 64;
 
 /// splitmix64 finaliser (Steele, Lea & Flood 2014).
 #[inline]
@@ -107,17 +108,6 @@ impl Start {
             }
         }
     }
-}
-
-struct Lanes {
-    x: [f64; LANES],
-    v: [f64; LANES],
-    f: [f64; LANES],
-    r: [f64; LANES],
-    steps: [u64; LANES],
-    index: [u64; LANES],
-    active: [bool; LANES],
-    rng: Vec<Pcg64>,
 }
 
 #[inline(always)]
@@ -239,87 +229,163 @@ pub fn sample_path<F: Force, M: Mobility>(
 
 /// Runs the trajectories `indices`, calling `done` for each finished one. Stops early (dropping the
 /// unfinished trajectories) when `stop` is set.
+///
+/// Workers share `next`, a cursor into `indices`: a lane that finishes takes the next index, so
+/// lanes and threads stay busy until the last trajectories (which trajectory a lane runs never
+/// changes its outcome).
 pub fn run_chunk<F: Force, M: Mobility>(
     p: &Params,
     force: &F,
     mob: &M,
     indices: &[u64],
+    next: &AtomicUsize,
     stop: &AtomicBool,
     done: &mut dyn FnMut(Outcome),
 ) {
-    let mut next = 0usize;
-    let mut l = Lanes {
-        x: [0.0; LANES],
-        v: [0.0; LANES],
-        f: [0.0; LANES],
-        r: [0.0; LANES],
-        steps: [0; LANES],
-        index: [0; LANES],
-        active: [false; LANES],
-        rng: (0..LANES).map(|_| stream(0, 0)).collect(),
-    };
+    match p.kind {
+        Kind::Baoab => lanes::<F, M, BAOAB>(p, force, mob, indices, next, stop, done),
+        Kind::LeimkuhlerMatthews => lanes::<F, M, LM>(p, force, mob, indices, next, stop, done),
+        Kind::EulerMaruyama => lanes::<F, M, EM>(p, force, mob, indices, next, stop, done),
+    }
+}
+
+const BAOAB: u8 = 0;
+const LM: u8 = 1;
+const EM: u8 = 2;
+
+/// The lock-step loop for one integrator (a compile-time constant, so the step has no branch on
+/// it). Each block first draws [`BLOCK`] Gaussians per lane from the lane's own stream (independent
+/// streams interleave, hiding the generator's latency), then advances all lanes [`BLOCK`] steps,
+/// noting each lane's first crossing. A lane that crossed mid-block keeps integrating to the block
+/// end; those steps and their draws are discarded, so each trajectory still sees exactly its own
+/// stream in order and its outcome is that of a one-at-a-time run.
+fn lanes<F: Force, M: Mobility, const K: u8>(
+    p: &Params,
+    force: &F,
+    mob: &M,
+    indices: &[u64],
+    next: &AtomicUsize,
+    stop: &AtomicBool,
+    done: &mut dyn FnMut(Outcome),
+) {
+    let c = Consts::new(p, mob);
+    let mut x = [0.0f64; LANES];
+    let mut v = [0.0f64; LANES];
+    let mut f = [0.0f64; LANES];
+    let mut r = [0.0f64; LANES];
+    let mut base = [0u64; LANES];
+    let mut index = [0u64; LANES];
+    let mut active = [false; LANES];
+    let mut rng: [Pcg64; LANES] = std::array::from_fn(|_| stream(0, 0));
+    let mut z = [[0.0f64; LANES]; BLOCK];
     let inv_sqrt_m = 1.0 / p.mass.sqrt();
-    let start = |l: &mut Lanes, k: usize, next: &mut usize| {
-        if *next >= indices.len() {
-            l.active[k] = false;
-            return;
-        }
-        let i = indices[*next];
-        *next += 1;
-        let mut rng = stream(p.seed, i);
-        let x = p.start.draw(&mut rng);
-        l.x[k] = x;
-        l.f[k] = force.force(x);
-        l.v[k] = if p.kind == Kind::Baoab {
-            inv_sqrt_m * rng.sample::<f64, _>(StandardNormal)
+    let start = |k: usize,
+                 x: &mut [f64; LANES],
+                 v: &mut [f64; LANES],
+                 f: &mut [f64; LANES],
+                 r: &mut [f64; LANES],
+                 rng: &mut [Pcg64; LANES]|
+     -> Option<u64> {
+        let i = *indices.get(next.fetch_add(1, Ordering::Relaxed))?;
+        let mut g = stream(p.seed, i);
+        x[k] = p.start.draw(&mut g);
+        f[k] = force.force(x[k]);
+        v[k] = if K == BAOAB {
+            inv_sqrt_m * g.sample::<f64, _>(StandardNormal)
         } else {
             0.0
         };
-        l.r[k] = if p.kind == Kind::LeimkuhlerMatthews {
-            rng.sample(StandardNormal)
+        r[k] = if K == LM {
+            g.sample(StandardNormal)
         } else {
             0.0
         };
-        l.steps[k] = 0;
-        l.index[k] = i;
-        l.active[k] = true;
-        l.rng[k] = rng;
+        rng[k] = g;
+        Some(i)
     };
     for k in 0..LANES {
-        start(&mut l, k, &mut next);
+        if let Some(i) = start(k, &mut x, &mut v, &mut f, &mut r, &mut rng) {
+            index[k] = i;
+            base[k] = 0;
+            active[k] = true;
+        }
     }
-    let c = Consts::new(p, mob);
-    while l.active.iter().any(|&a| a) {
+    let (lo, hi, target, dir, dt) = (p.lo, p.hi, p.target, p.dir, p.dt);
+    while active.iter().any(|&a| a) {
         if stop.load(Ordering::Relaxed) {
             return;
         }
-        for _ in 0..BLOCK {
+        for zs in z.iter_mut() {
+            for (zk, g) in zs.iter_mut().zip(rng.iter_mut()) {
+                *zk = g.sample(StandardNormal);
+            }
+        }
+        let mut first = [u32::MAX; LANES];
+        for (s, zs) in z.iter().enumerate() {
             for k in 0..LANES {
-                if !l.active[k] {
-                    continue;
+                let mut xk = x[k];
+                let rr = zs[k];
+                if K == BAOAB {
+                    let mut vk = v[k] + c.hdt_m * f[k];
+                    xk += 0.5 * dt * vk;
+                    vk = c.c1 * vk + c.c2 * rr;
+                    xk += 0.5 * dt * vk;
+                    reflect(&mut xk, &mut vk, lo, hi);
+                    let fk = force.force(xk);
+                    v[k] = vk + c.hdt_m * fk;
+                    f[k] = fk;
+                } else {
+                    let (d, dd, noise) = if M::CONSTANT {
+                        (c.d0, 0.0, c.noise0)
+                    } else {
+                        let (d, dd) = mob.d(xk);
+                        (d, dd, (2.0 * d * dt).sqrt())
+                    };
+                    let kick = if K == LM {
+                        let kk = 0.5 * (r[k] + rr);
+                        r[k] = rr;
+                        kk
+                    } else {
+                        rr
+                    };
+                    xk += dt * (d * f[k] + dd) + noise * kick;
+                    let mut vk = 0.0;
+                    reflect(&mut xk, &mut vk, lo, hi);
+                    f[k] = force.force(xk);
                 }
-                let mut x = l.x[k];
-                step(
-                    p,
-                    &c,
-                    force,
-                    mob,
-                    &mut x,
-                    &mut l.v[k],
-                    &mut l.f[k],
-                    &mut l.r[k],
-                    &mut l.rng[k],
-                );
-                l.x[k] = x;
-                l.steps[k] += 1;
-                let escaped = p.dir * (x - p.target) >= 0.0;
-                if escaped || l.steps[k] >= p.max_steps {
+                x[k] = xk;
+                let hit = dir * (xk - target) >= 0.0;
+                if hit && first[k] == u32::MAX {
+                    first[k] = s as u32;
+                }
+            }
+        }
+        for k in 0..LANES {
+            if !active[k] {
+                continue;
+            }
+            let outcome = if first[k] != u32::MAX && base[k] + u64::from(first[k]) < p.max_steps {
+                Some((base[k] + u64::from(first[k]) + 1, true))
+            } else if base[k] + BLOCK as u64 >= p.max_steps {
+                Some((p.max_steps, false))
+            } else {
+                None
+            };
+            match outcome {
+                None => base[k] += BLOCK as u64,
+                Some((steps, escaped)) => {
                     done(Outcome {
-                        index: l.index[k],
-                        steps: l.steps[k],
+                        index: index[k],
+                        steps,
                         escaped,
                     });
-                    start(&mut l, k, &mut next);
+                    match start(k, &mut x, &mut v, &mut f, &mut r, &mut rng) {
+                        Some(i) => {
+                            index[k] = i;
+                            base[k] = 0;
+                        }
+                        None => active[k] = false,
+                    }
                 }
             }
         }

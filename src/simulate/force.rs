@@ -20,25 +20,53 @@ pub trait Force: Sync + Send {
     fn force(&self, x: f64) -> f64;
 }
 
-impl Force for Family {
+/// −U' of the double well, E_b((x/a)² − 1)², with the constants folded (no division per step).
+#[derive(Debug, Clone, Copy)]
+pub struct DoubleWellForce {
+    c: f64,
+    inv_a2: f64,
+}
+
+impl Force for DoubleWellForce {
     #[inline(always)]
     fn force(&self, x: f64) -> f64 {
-        match *self {
-            Family::DoubleWell { eb, a, .. } => {
-                let s = x / a;
-                -4.0 * eb * s * (s * s - 1.0) / a
-            }
-            Family::Cubic { eb, l, .. } => {
-                let s = x / l;
-                -6.75 * eb * s * (2.0 - 3.0 * s) / l
-            }
-            Family::Washboard {
-                amp, period, tilt, ..
-            } => {
-                let k = 2.0 * PI / period;
-                tilt - amp * k * (k * x).sin()
-            }
-        }
+        -self.c * x * (x * x * self.inv_a2 - 1.0)
+    }
+}
+
+/// −U' of the cubic well, (27/4)E_b(s² − s³) with s = x/L: −(13.5 E_b/L²) x + (20.25 E_b/L³) x².
+#[derive(Debug, Clone, Copy)]
+pub struct CubicForce {
+    k1: f64,
+    k2: f64,
+}
+
+impl Force for CubicForce {
+    #[inline(always)]
+    fn force(&self, x: f64) -> f64 {
+        x * (self.k2 * x - self.k1)
+    }
+}
+
+/// −U' of the washboard, −A cos(kx) − F x: F − A k sin(kx).
+#[derive(Debug, Clone, Copy)]
+pub struct WashboardForce {
+    ak: f64,
+    k: f64,
+    tilt: f64,
+}
+
+impl Force for WashboardForce {
+    #[inline(always)]
+    fn force(&self, x: f64) -> f64 {
+        self.tilt - self.ak * (self.k * x).sin()
+    }
+}
+
+impl Force for Family {
+    #[inline]
+    fn force(&self, x: f64) -> f64 {
+        -crate::potential::Potential::du(self, x)
     }
 }
 
@@ -138,8 +166,12 @@ impl Force for GridForce {
 /// The force chosen for a potential.
 #[derive(Debug, Clone)]
 pub enum FastForce {
-    /// closed form
-    Family(Family),
+    /// closed-form double well
+    DoubleWell(DoubleWellForce),
+    /// closed-form cubic well
+    Cubic(CubicForce),
+    /// closed-form washboard
+    Washboard(WashboardForce),
     /// tabulated U'
     Grid(GridForce),
 }
@@ -148,7 +180,28 @@ impl FastForce {
     /// Chooses the fast form of `pot`'s force on `[lo, hi]`.
     pub fn new(pot: &crate::scenario::AnyPotential) -> Self {
         match pot {
-            crate::scenario::AnyPotential::Family(f) => Self::Family(*f),
+            crate::scenario::AnyPotential::Family(Family::DoubleWell { eb, a, .. }) => {
+                Self::DoubleWell(DoubleWellForce {
+                    c: 4.0 * eb / (a * a),
+                    inv_a2: 1.0 / (a * a),
+                })
+            }
+            crate::scenario::AnyPotential::Family(Family::Cubic { eb, l, .. }) => {
+                Self::Cubic(CubicForce {
+                    k1: 13.5 * eb / (l * l),
+                    k2: 20.25 * eb / (l * l * l),
+                })
+            }
+            crate::scenario::AnyPotential::Family(Family::Washboard {
+                amp, period, tilt, ..
+            }) => {
+                let k = 2.0 * PI / period;
+                Self::Washboard(WashboardForce {
+                    ak: amp * k,
+                    k,
+                    tilt: *tilt,
+                })
+            }
             other => {
                 let (lo, hi) = other.domain();
                 Self::Grid(GridForce(Grid::build(
@@ -164,8 +217,8 @@ impl FastForce {
     /// The relative interpolation error of the force (0 for closed forms).
     pub fn rel_error(&self) -> f64 {
         match self {
-            Self::Family(_) => 0.0,
             Self::Grid(g) => g.0.rel_error,
+            _ => 0.0,
         }
     }
 }
@@ -230,6 +283,43 @@ mod tests {
 
     // Hermite interpolation of a smooth function converges as h⁴ (de Boor, ch. IV): the built grid
     // must meet its own tolerance, checked here at points other than the midpoints.
+    // The folded closed forms equal the family's U' (rounding only).
+    #[test]
+    fn folded_forces_match_the_families() {
+        use crate::scenario::AnyPotential;
+        let fams = [
+            Family::DoubleWell {
+                eb: 5.0,
+                a: 1.3,
+                domain: (-4.0, 4.0),
+            },
+            Family::Cubic {
+                eb: 7.0,
+                l: 0.8,
+                domain: (-1.0, 3.0),
+            },
+            Family::Washboard {
+                amp: 3.0,
+                period: 2.0,
+                tilt: 0.7,
+                domain: (-2.0, 4.0),
+            },
+        ];
+        for fam in fams {
+            let ff = FastForce::new(&AnyPotential::Family(fam));
+            for &x in &[-0.9, 0.1, 0.77, 1.6] {
+                let want = -crate::potential::Potential::du(&fam, x);
+                let got = match &ff {
+                    FastForce::DoubleWell(f) => f.force(x),
+                    FastForce::Cubic(f) => f.force(x),
+                    FastForce::Washboard(f) => f.force(x),
+                    FastForce::Grid(f) => f.force(x),
+                };
+                assert!((got - want).abs() < 1e-12 * (1.0 + want.abs()), "{fam:?}");
+            }
+        }
+    }
+
     #[test]
     fn grid_meets_its_tolerance() {
         let g = Grid::build(
