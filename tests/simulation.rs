@@ -67,8 +67,14 @@ fn harmonic_equipartition_and_boltzmann() {
     // tabulated quadratic through the grid force: U' = κ x exactly representable by Hermite cubics
     let kappa = 4.0;
     let mass = 2.0;
-    let grid =
-        escapade::simulate::force::Grid::build(&|x| kappa * x, &|_| kappa, -20.0, 20.0, 1e-12);
+    let grid = escapade::simulate::force::Grid::build_scaled(
+        &|x| kappa * x,
+        &|_| kappa,
+        -20.0,
+        20.0,
+        1e-12,
+        -1.0,
+    );
     let force = escapade::simulate::force::GridForce(grid);
     let p = params(Kind::Baoab, 0.01, mass, 1.0, -20.0, 20.0);
     let path = sample_path(&p, &force, &ConstD(1.0), 0, 0.0, 4_000_000, 4);

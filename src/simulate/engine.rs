@@ -110,15 +110,15 @@ impl Start {
     }
 }
 
+/// Specular reflection at the walls, written as selects so the lane loop needs no branch.
 #[inline(always)]
 fn reflect(x: &mut f64, v: &mut f64, lo: f64, hi: f64) {
-    if *x < lo {
-        *x = 2.0 * lo - *x;
-        *v = -*v;
-    } else if *x > hi {
-        *x = 2.0 * hi - *x;
-        *v = -*v;
-    }
+    let below = *x < lo;
+    let above = *x > hi;
+    let wall = if below { lo } else { hi };
+    let out = below | above;
+    *x = if out { 2.0 * wall - *x } else { *x };
+    *v = if out { -*v } else { *v };
 }
 
 /// Step constants derived once per run.
@@ -322,6 +322,8 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
         }
         let mut first = [u32::MAX; LANES];
         for (s, zs) in z.iter().enumerate() {
+            // Three passes over the lanes (move, force, check) put the lanes' independent force
+            // evaluations next to each other, so their latencies overlap.
             for k in 0..LANES {
                 let mut xk = x[k];
                 let rr = zs[k];
@@ -331,9 +333,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                     vk = c.c1 * vk + c.c2 * rr;
                     xk += 0.5 * dt * vk;
                     reflect(&mut xk, &mut vk, lo, hi);
-                    let fk = force.force(xk);
-                    v[k] = vk + c.hdt_m * fk;
-                    f[k] = fk;
+                    v[k] = vk;
                 } else {
                     let (d, dd, noise) = if M::CONSTANT {
                         (c.d0, 0.0, c.noise0)
@@ -351,13 +351,22 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                     xk += dt * (d * f[k] + dd) + noise * kick;
                     let mut vk = 0.0;
                     reflect(&mut xk, &mut vk, lo, hi);
-                    f[k] = force.force(xk);
                 }
                 x[k] = xk;
-                let hit = dir * (xk - target) >= 0.0;
-                if hit && first[k] == u32::MAX {
-                    first[k] = s as u32;
+            }
+            for k in 0..LANES {
+                f[k] = force.force(x[k]);
+            }
+            for k in 0..LANES {
+                if K == BAOAB {
+                    v[k] += c.hdt_m * f[k];
                 }
+                let hit = dir * (x[k] - target) >= 0.0;
+                first[k] = if hit & (first[k] == u32::MAX) {
+                    s as u32
+                } else {
+                    first[k]
+                };
             }
         }
         for k in 0..LANES {

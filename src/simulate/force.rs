@@ -70,14 +70,15 @@ impl Force for Family {
     }
 }
 
-/// A uniform-grid cubic Hermite table of a function and its derivative.
+/// A uniform-grid cubic Hermite table of a function and its derivative, stored per interval as
+/// power-basis coefficients in the local coordinate u ∈ [0, 1) (one Horner evaluation per call).
 #[derive(Debug, Clone)]
 pub struct Grid {
     lo: f64,
     inv_h: f64,
-    last: usize,
-    /// per node: [value, derivative × h]
-    nodes: Vec<[f64; 2]>,
+    last: i64,
+    /// per interval: c0 + c1 u + c2 u² + c3 u³
+    coef: Vec<[f64; 4]>,
     /// the largest midpoint error found, relative to the largest |value|
     pub rel_error: f64,
 }
@@ -92,21 +93,31 @@ impl Grid {
         hi: f64,
         tol: f64,
     ) -> Self {
+        Self::build_scaled(f, df, lo, hi, tol, 1.0)
+    }
+
+    /// As [`Grid::build`], tabulating `scale · f` (e.g. −1 to store a force from U').
+    pub fn build_scaled(
+        f: &dyn Fn(f64) -> f64,
+        df: &dyn Fn(f64) -> f64,
+        lo: f64,
+        hi: f64,
+        tol: f64,
+        scale: f64,
+    ) -> Self {
         let mut log2 = 10;
         loop {
-            let g = Self::at(f, df, lo, hi, 1 << log2);
-            let scale = g
-                .nodes
-                .iter()
-                .fold(0.0f64, |m, n| m.max(n[0].abs()))
-                .max(1e-300);
-            let mut err: f64 = 0.0;
+            let g = Self::at(f, df, lo, hi, 1 << log2, scale);
             let h = 1.0 / g.inv_h;
-            for i in 0..g.last {
-                let x = lo + (i as f64 + 0.5) * h;
-                err = err.max((g.eval(x) - f(x)).abs());
+            let mut fmax: f64 = 1e-300;
+            let mut err: f64 = 0.0;
+            for i in 0..=g.last {
+                let x0 = lo + i as f64 * h;
+                fmax = fmax.max(f(x0).abs());
+                let x = x0 + 0.5 * h;
+                err = err.max((g.eval(x) - scale * f(x)).abs());
             }
-            let rel = err / scale;
+            let rel = err / (fmax * scale.abs());
             if rel <= tol || log2 >= MAX_GRID_LOG2 {
                 return Self {
                     rel_error: rel,
@@ -117,49 +128,62 @@ impl Grid {
         }
     }
 
-    fn at(f: &dyn Fn(f64) -> f64, df: &dyn Fn(f64) -> f64, lo: f64, hi: f64, n: usize) -> Self {
+    fn at(
+        f: &dyn Fn(f64) -> f64,
+        df: &dyn Fn(f64) -> f64,
+        lo: f64,
+        hi: f64,
+        n: usize,
+        scale: f64,
+    ) -> Self {
         let h = (hi - lo) / n as f64;
-        let nodes = (0..=n)
-            .map(|i| {
-                let x = if i == n { hi } else { lo + i as f64 * h };
-                [f(x), df(x) * h]
-            })
-            .collect();
+        let node = |i: usize| {
+            let x = if i == n { hi } else { lo + i as f64 * h };
+            (scale * f(x), scale * df(x) * h)
+        };
+        let mut prev = node(0);
+        let mut coef = Vec::with_capacity(n);
+        for i in 0..n {
+            let next = node(i + 1);
+            let (p0, m0) = prev;
+            let (p1, m1) = next;
+            coef.push([
+                p0,
+                m0,
+                3.0 * (p1 - p0) - 2.0 * m0 - m1,
+                2.0 * (p0 - p1) + m0 + m1,
+            ]);
+            prev = next;
+        }
         Self {
             lo,
             inv_h: 1.0 / h,
-            last: n - 1,
-            nodes,
+            last: n as i64 - 1,
+            coef,
             rel_error: f64::NAN,
         }
     }
 
-    /// The interpolant at x (clamped to the end intervals outside the range).
+    /// The interpolant at x (the end intervals' cubics continue outside the range).
     #[inline(always)]
     pub fn eval(&self, x: f64) -> f64 {
         let t = (x - self.lo) * self.inv_h;
-        let i = (t.max(0.0) as usize).min(self.last);
+        // i64 conversions are single instructions; clamp keeps the index in range
+        let i = (t as i64).clamp(0, self.last);
         let u = t - i as f64;
-        let a = self.nodes[i];
-        let b = self.nodes[i + 1];
-        // Hermite basis in Horner form
-        let u2 = u * u;
-        let h00 = (2.0 * u - 3.0) * u2 + 1.0;
-        let h10 = ((u - 2.0) * u + 1.0) * u;
-        let h01 = (3.0 - 2.0 * u) * u2;
-        let h11 = (u - 1.0) * u2;
-        h00 * a[0] + h10 * a[1] + h01 * b[0] + h11 * b[1]
+        let c = &self.coef[i as usize];
+        c[0] + u * (c[1] + u * (c[2] + u * c[3]))
     }
 }
 
-/// −U' from a grid of U'.
+/// −U' from a grid (stored with the sign folded in).
 #[derive(Debug, Clone)]
 pub struct GridForce(pub Grid);
 
 impl Force for GridForce {
     #[inline(always)]
     fn force(&self, x: f64) -> f64 {
-        -self.0.eval(x)
+        self.0.eval(x)
     }
 }
 
@@ -204,12 +228,13 @@ impl FastForce {
             }
             other => {
                 let (lo, hi) = other.domain();
-                Self::Grid(GridForce(Grid::build(
+                Self::Grid(GridForce(Grid::build_scaled(
                     &|x| other.du(x),
                     &|x| other.d2u(x),
                     lo,
                     hi,
                     FORCE_TOL,
+                    -1.0,
                 )))
             }
         }
