@@ -274,8 +274,17 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
     let _ = writeln!(out, "{t}");
     let _ = writeln!(
         out,
-        "{} steps; rate interval: {}",
-        s.total_steps, s.rate_ci_method
+        "{} steps; rate interval: {}{}",
+        s.total_steps,
+        s.rate_ci_method,
+        if s.force_rel_error > 0.0 {
+            format!(
+                "; force tabulated with relative error {:.1e}",
+                s.force_rel_error
+            )
+        } else {
+            String::new()
+        }
     );
     warnings(out, &s.warnings);
 }
@@ -303,7 +312,7 @@ pub fn compare(r: &super::CompareReport) -> String {
         "ratio 95% interval".to_string(),
         "holds here".to_string(),
         "in sim. interval".to_string(),
-        "within accuracy".to_string(),
+        "within accuracy [allowed ratio]".to_string(),
     ]);
     let s = &r.simulation;
     t.add_row(vec![
@@ -325,15 +334,12 @@ pub fn compare(r: &super::CompareReport) -> String {
                 .unwrap_or_else(|| "—".into()),
             if c.valid { "yes" } else { "no" }.into(),
             if c.agrees { "yes" } else { "no" }.into(),
-            if c.consistent {
-                format!(
-                    "yes [{}, {}]",
-                    num(c.accuracy_band[0]),
-                    num(c.accuracy_band[1])
-                )
-            } else {
-                "no".into()
-            },
+            format!(
+                "{} [{}, {}]",
+                if c.consistent { "yes" } else { "no" },
+                num(c.accuracy_band.0),
+                c.accuracy_band.1.map_or_else(|| "∞".into(), num)
+            ),
         ]);
     }
     let _ = writeln!(out, "{t}");
