@@ -18,9 +18,9 @@ esc="$here/target/release/escapade"
 args=(--eb 4 --dt 1e-3 --tmax 1e4 --n 2000 --seed 12345)
 
 median() { sort -g | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
-ns_escapade() { # threads
+ns_escapade() { # threads [scenario]
     for _ in $(seq "$reps"); do
-        "$esc" simulate "$here/benches/peer_task.toml" --json --quiet --threads "$1" |
+        "$esc" simulate "$here/benches/${2:-peer_task}.toml" --json --quiet --threads "$1" |
             python3 -c 'import json,sys; s=json.load(sys.stdin)["simulation"]; print(s["wall_seconds"]/s["total_steps"]*1e9)'
     done | median
 }
@@ -34,6 +34,8 @@ printf '%-28s %8s %8s   %s\n' "program" "threads" "ns/step" "time / escapade's"
 for t in 1 2; do
     e=$(ns_escapade "$t")
     printf '%-28s %8s %8.2f   %s\n' "escapade (this crate)" "$t" "$e" "1"
+    v=$(ns_escapade "$t" peer_task_formula)
+    printf '%-28s %8s %8.2f   %.2f\n' "escapade, formula potential" "$t" "$v" "$(echo "$v / $e" | bc -l)"
     for name in c c_portable; do
         v=$(ns_peer "$build/bin/peer_$name" "${args[@]}" --threads "$t")
         printf '%-28s %8s %8.2f   %.2f\n' "peer_$name" "$t" "$v" "$(echo "$v / $e" | bc -l)"
