@@ -92,6 +92,12 @@ pub enum Start {
 }
 
 impl Start {
+    /// One draw, as a trajectory's start does (exposed for tests).
+    #[doc(hidden)]
+    pub fn draw_for_test(&self, rng: &mut Pcg64) -> f64 {
+        self.draw(rng)
+    }
+
     fn draw(&self, rng: &mut Pcg64) -> f64 {
         match self {
             Self::At(x) => *x,

@@ -497,3 +497,47 @@ pub fn run_ensemble(
         threads,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::potential::Family;
+
+    // Thermal starts follow exp(−U/kT) on the reactant side: the mean and variance of 20 000 draws
+    // match the Boltzmann moments (computed here by a fine trapezoid sum, common practice, no
+    // source) within 4 standard errors; the table's linear interpolation is exact to O(h²) = 1e-7.
+    #[test]
+    fn thermal_starts_follow_the_boltzmann_law() {
+        let fam = Family::DoubleWell {
+            eb: 8.0,
+            a: 1.0,
+            domain: (-3.0, 3.0),
+        };
+        let pot = AnyPotential::Family(fam);
+        let start = Start::Thermal(thermal_table(&pot, -3.0, 0.0));
+        let n = 20_000;
+        let mut xs = Vec::with_capacity(n);
+        for i in 0..n as u64 {
+            xs.push(start.draw_for_test(&mut engine::stream(3, i)));
+        }
+        let mean = xs.iter().sum::<f64>() / n as f64;
+        let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64;
+        let (mut z, mut m1, mut m2) = (0.0, 0.0, 0.0);
+        let m = 200_000;
+        for i in 0..=m {
+            let x = -3.0 + 3.0 * f64::from(i) / f64::from(m);
+            let w = (-pot.u(x)).exp() * if i == 0 || i == m { 0.5 } else { 1.0 };
+            z += w;
+            m1 += w * x;
+            m2 += w * x * x;
+        }
+        let (em, ev) = (m1 / z, m2 / z - (m1 / z).powi(2));
+        let se = (ev / n as f64).sqrt();
+        assert!((mean - em).abs() < 4.0 * se, "{mean} vs {em} ± {se}");
+        // variance of the sample variance ~ 2σ⁴/n for a near-Gaussian law
+        assert!(
+            (var - ev).abs() < 4.0 * ev * (2.0 / n as f64).sqrt(),
+            "{var} vs {ev}"
+        );
+    }
+}
