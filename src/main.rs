@@ -144,6 +144,11 @@ impl Progress {
     }
 }
 
+/// JSON going to a pipe: no progress bar then.
+fn json_to_pipe(common: &Common) -> bool {
+    common.json && !std::io::stdout().is_terminal()
+}
+
 fn simulate_cmd(
     file: Option<&Path>,
     common: &Common,
@@ -159,43 +164,72 @@ fn simulate_cmd(
         .map(simulate::parse_shard)
         .transpose()
         .map_err(Failure::user)?;
-    let opts = RunOptions {
-        threads: sim.threads,
-        shard,
-        records: sim.records.clone(),
-        resume: sim.resume,
-    };
     // a second Ctrl-C falls through to the default (the first one already asked for a stop)
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
-    // no bar with --quiet, when nobody sees stderr, or when JSON goes to a pipe
-    let json_to_pipe = common.json && !std::io::stdout().is_terminal();
-    let show = !common.quiet && std::io::stderr().is_terminal() && !json_to_pipe;
-    let mut progress = Progress {
-        show,
-        start: std::time::Instant::now(),
-        bar: None,
-        total: simulate::shard_range(plan.trajectories, shard).count() as u64,
-        escaped: 0,
-        steps: 0,
-        dt: plan.params.dt,
-    };
-    if !common.quiet && !common.json {
-        eprintln!(
-            "simulating {} trajectories, dt = {:.4e} ({})",
-            progress.total,
-            plan.params.dt,
-            if plan.dt_given {
-                "given"
-            } else {
-                "default from the landscape"
+    let (out, interrupted) = if plan.method == simulate::Method::BruteForce {
+        let opts = RunOptions {
+            threads: sim.threads,
+            shard,
+            records: sim.records.clone(),
+            resume: sim.resume,
+        };
+        let show = !common.quiet && std::io::stderr().is_terminal() && !json_to_pipe(common);
+        let mut progress = Progress {
+            show,
+            start: std::time::Instant::now(),
+            bar: None,
+            total: simulate::shard_range(plan.trajectories, shard).count() as u64,
+            escaped: 0,
+            steps: 0,
+            dt: plan.params.dt,
+        };
+        if !common.quiet && !common.json {
+            eprintln!(
+                "simulating {} trajectories by brute force, dt = {:.4e} ({})",
+                progress.total,
+                plan.params.dt,
+                if plan.dt_given {
+                    "given"
+                } else {
+                    "default from the landscape"
+                }
+            );
+        }
+        let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
+            .map_err(|e| Failure::user(e.to_string()))?;
+        progress.finish();
+        (
+            SimulationOut::new(&plan, &result, shard),
+            result.interrupted,
+        )
+    } else {
+        if sim.records.is_some() || shard.is_some() {
+            return Err(Failure::user(format!(
+                "{}: --records, --resume and --shard apply to brute-force runs; simulation.method is {}",
+                m.source,
+                plan.method.as_str()
+            )));
+        }
+        if !common.quiet && !common.json {
+            eprintln!(
+                "estimating the rate by {}, dt = {:.4e} ({})",
+                plan.method.as_str(),
+                plan.params.dt,
+                plan.method_reason
+            );
+        }
+        match simulate::run_rare(&plan, &m, &t, sim.threads, &STOP) {
+            Ok((r, wall, threads)) => (SimulationOut::rare(&plan, r, wall, threads), false),
+            Err(simulate::SimError::Interrupted) => {
+                return Err(Failure {
+                    message: format!("{}: {}", m.source, simulate::SimError::Interrupted),
+                    code: 130,
+                });
             }
-        );
-    }
-    let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
-        .map_err(|e| Failure::user(e.to_string()))?;
-    progress.finish();
-    let out = SimulationOut::new(&plan, &result, shard);
-    let code = if result.interrupted { 130 } else { 0 };
+            Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+        }
+    };
+    let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
         let theory = RateReport::new(&m, &t);
         let (comparison, verdict) =

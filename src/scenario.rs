@@ -175,6 +175,14 @@ pub struct SimulationSection {
     pub method: Option<String>,
     /// step budget for method = "auto"
     pub budget_steps: Option<f64>,
+    /// forward flux sampling: interface positions (units.length), the target last
+    pub interfaces: Option<Vec<f64>>,
+    /// forward flux sampling: trials per stage and replica
+    pub trials: Option<u64>,
+    /// forward flux sampling: independent replicas (for the interval)
+    pub replicas: Option<u64>,
+    /// reactive flux: the window for κ(t), in units.time
+    pub flux_time: Option<f64>,
 }
 
 /// The file as written.
@@ -665,6 +673,24 @@ impl Validator<'_> {
         self.positive("simulation.budget_steps", s.budget_steps)?;
         if s.trajectories == Some(0) {
             return Err(self.err("simulation.trajectories", "must be at least 1"));
+        }
+        if s.trials == Some(0) {
+            return Err(self.err("simulation.trials", "must be at least 1"));
+        }
+        if matches!(s.replicas, Some(r) if r < 2) {
+            return Err(self.err(
+                "simulation.replicas",
+                "must be at least 2 (the interval comes from the spread of replicas)",
+            ));
+        }
+        self.positive("simulation.flux_time", s.flux_time)?;
+        if let Some(ifs) = &s.interfaces
+            && (ifs.is_empty() || ifs.iter().any(|x| !x.is_finite()))
+        {
+            return Err(self.err(
+                "simulation.interfaces",
+                "must be a non-empty list of finite positions",
+            ));
         }
         Ok(())
     }

@@ -203,27 +203,29 @@ impl RateReport {
 /// A simulation summary in scenario units (JSON key "simulation").
 #[derive(Debug, Clone, Serialize)]
 pub struct SimulationOut {
-    /// "brute-force"
+    /// "brute-force" | "ffs" | "reactive-flux"
     pub method: &'static str,
+    /// why this method (the auto choice and its cost estimate)
+    pub method_reason: String,
     /// dynamics
     pub dynamics: crate::simulate::Dynamics,
     /// integrator
     pub scheme: &'static str,
-    /// trajectories of this run (or shard)
+    /// trajectories of this run or shard (brute force, reactive flux); trials in all (FFS)
     pub trajectories: u64,
     /// finished so far (less than trajectories after an interruption)
     pub finished: u64,
-    /// escaped
-    pub escaped: u64,
-    /// censored at max_time
-    pub censored: u64,
-    /// censored maximum-likelihood rate, per time unit
+    /// escaped (brute force)
+    pub escaped: Option<u64>,
+    /// censored at max_time (brute force)
+    pub censored: Option<u64>,
+    /// the simulated rate, per time unit
     pub rate: f64,
     /// its 95% interval
     pub rate_ci95: [f64; 2],
     /// how the interval was made
     pub rate_ci_method: &'static str,
-    /// mean first-passage time of the escaped trajectories
+    /// mean first-passage time of the escaped trajectories (brute force)
     pub mfpt: Option<f64>,
     /// its standard error
     pub mfpt_se: Option<f64>,
@@ -235,7 +237,7 @@ pub struct SimulationOut {
     pub ks_distance: Option<f64>,
     /// its p-value
     pub ks_p_value: Option<f64>,
-    /// steps of all recorded trajectories
+    /// steps spent
     pub total_steps: u64,
     /// wall time of this invocation
     pub wall_seconds: f64,
@@ -243,74 +245,147 @@ pub struct SimulationOut {
     pub dt: f64,
     /// the landscape's default time step
     pub dt_default: f64,
-    /// horizon
-    pub max_time: f64,
+    /// horizon (brute force)
+    pub max_time: Option<f64>,
     /// master seed
     pub seed: u64,
     /// threads used
     pub threads: usize,
     /// relative interpolation error of the tabulated force (0 for closed-form families)
     pub force_rel_error: f64,
+    /// expected brute-force cost in steps
+    pub expected_brute_force_steps: f64,
+    /// the step budget for the automatic choice
+    pub budget_steps: f64,
     /// "K/N" when sharded
     pub shard: Option<String>,
     /// stopped by Ctrl-C
     pub interrupted: bool,
+    /// forward-flux details
+    pub ffs: Option<crate::simulate::ffs::FfsResult>,
+    /// reactive-flux details
+    pub reactive_flux: Option<crate::simulate::flux::FluxResult>,
     /// warnings
     pub warnings: Vec<String>,
 }
 
 impl SimulationOut {
-    /// From a plan and a run.
+    fn base(plan: &crate::simulate::Plan, wall_seconds: f64, threads: usize) -> Self {
+        Self {
+            method: plan.method.as_str(),
+            method_reason: plan.method_reason.clone(),
+            dynamics: plan.dynamics,
+            scheme: plan.scheme,
+            trajectories: 0,
+            finished: 0,
+            escaped: None,
+            censored: None,
+            rate: 0.0,
+            rate_ci95: [0.0, f64::INFINITY],
+            rate_ci_method: "",
+            mfpt: None,
+            mfpt_se: None,
+            median: None,
+            cv: None,
+            ks_distance: None,
+            ks_p_value: None,
+            total_steps: 0,
+            wall_seconds,
+            dt: plan.params.dt,
+            dt_default: plan.dt_default,
+            max_time: None,
+            seed: plan.params.seed,
+            threads,
+            force_rel_error: plan.force.rel_error(),
+            expected_brute_force_steps: plan.expected_brute_steps,
+            budget_steps: plan.budget_steps,
+            shard: None,
+            interrupted: false,
+            ffs: None,
+            reactive_flux: None,
+            warnings: plan.warnings.clone(),
+        }
+    }
+
+    /// From a brute-force run.
     pub fn new(
         plan: &crate::simulate::Plan,
         run: &crate::simulate::RunResult,
         shard: Option<(u64, u64)>,
     ) -> Self {
         let s = crate::stats::summarise(&run.outcomes, plan.params.dt, plan.params.max_steps);
-        let mut warnings = plan.warnings.clone();
-        warnings.extend(run.warnings.iter().cloned());
-        warnings.extend(s.warnings.iter().cloned());
+        let mut out = Self::base(plan, run.wall_seconds, run.threads);
+        out.warnings.extend(run.warnings.iter().cloned());
+        out.warnings.extend(s.warnings.iter().cloned());
         if s.censored > 0 {
-            warnings.push(
+            out.warnings.push(
                 "the rate interval is the Poisson (chi-square) interval: approximate under censoring".into(),
             );
         }
         if run.interrupted {
-            warnings.push(format!(
+            out.warnings.push(format!(
                 "interrupted: {} of {} trajectories finished; the numbers are those of the finished ones, biased towards short first-passage times (resume with --resume to complete the run)",
                 run.outcomes.len(),
                 run.expected
             ));
         }
-        Self {
-            method: "brute-force",
-            dynamics: plan.dynamics,
-            scheme: plan.scheme,
-            trajectories: run.expected,
-            finished: run.outcomes.len() as u64,
-            escaped: s.escaped,
-            censored: s.censored,
-            rate: s.rate,
-            rate_ci95: s.rate_ci95,
-            rate_ci_method: "chi-square (Poisson count in the total observed time)",
-            mfpt: s.mfpt,
-            mfpt_se: s.mfpt_se,
-            median: s.median,
-            cv: s.cv,
-            ks_distance: s.ks_distance,
-            ks_p_value: s.ks_p_value,
-            total_steps: s.total_steps,
-            wall_seconds: run.wall_seconds,
-            dt: plan.params.dt,
-            dt_default: plan.dt_default,
-            max_time: plan.max_time(),
-            seed: plan.params.seed,
-            threads: run.threads,
-            force_rel_error: plan.force.rel_error(),
-            shard: shard.map(|(k, n)| format!("{k}/{n}")),
-            interrupted: run.interrupted,
-            warnings,
+        out.method = crate::simulate::Method::BruteForce.as_str();
+        out.trajectories = run.expected;
+        out.finished = run.outcomes.len() as u64;
+        out.escaped = Some(s.escaped);
+        out.censored = Some(s.censored);
+        out.rate = s.rate;
+        out.rate_ci95 = s.rate_ci95;
+        out.rate_ci_method = "chi-square (Poisson count in the total observed time)";
+        out.mfpt = s.mfpt;
+        out.mfpt_se = s.mfpt_se;
+        out.median = s.median;
+        out.cv = s.cv;
+        out.ks_distance = s.ks_distance;
+        out.ks_p_value = s.ks_p_value;
+        out.total_steps = s.total_steps;
+        out.max_time = Some(plan.max_time());
+        out.shard = shard.map(|(k, n)| format!("{k}/{n}"));
+        out.interrupted = run.interrupted;
+        out
+    }
+
+    /// From a rare-event estimate.
+    pub fn rare(
+        plan: &crate::simulate::Plan,
+        r: crate::simulate::RareResult,
+        wall_seconds: f64,
+        threads: usize,
+    ) -> Self {
+        let mut out = Self::base(plan, wall_seconds, threads);
+        match r {
+            crate::simulate::RareResult::Ffs(f) => {
+                out.trajectories = f.stages.iter().map(|s| s.trials).sum();
+                out.finished = out.trajectories;
+                out.rate = f.rate;
+                out.rate_ci95 = f.rate_ci95;
+                out.rate_ci_method = f.interval_method;
+                out.total_steps = f.total_steps;
+                out.warnings.extend(f.warnings.iter().cloned());
+                out.ffs = Some(f);
+            }
+            crate::simulate::RareResult::Flux(k) => {
+                out.trajectories = k.trajectories;
+                out.finished = k.trajectories;
+                out.rate = k.rate;
+                out.rate_ci95 = k.rate_ci95;
+                out.rate_ci_method = "normal interval of the plateau transmission coefficient, times the exact TST rate";
+                out.total_steps = k.total_steps;
+                if !k.plateau_reached {
+                    out.warnings.push(format!(
+                        "kappa(t) had not settled well inside the window t_max = {:.4e}: raise simulation.flux_time",
+                        k.t_max
+                    ));
+                }
+                out.reactive_flux = Some(k);
+            }
         }
+        out
     }
 }
 
@@ -391,7 +466,7 @@ pub fn compare_rows(
         .filter(|r| r.consistent && !r.agrees && !r.method.starts_with("tst"))
         .map(|r| r.method)
         .collect();
-    let verdict = if sim.escaped == 0 {
+    let verdict = if sim.rate <= 0.0 {
         "no escapes were simulated: no verdict (raise max_time or trajectories)".to_string()
     } else {
         let inside = if agree.is_empty() {

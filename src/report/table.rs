@@ -222,60 +222,122 @@ pub fn rate(r: &RateReport) -> String {
 fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
     let _ = writeln!(
         out,
-        "simulation: {} {} ({}), {} trajectories{}, dt = {} {} (default {}), max_time = {} {}, seed {}, {} threads, {:.2} s",
+        "simulation: {} {} ({}), dt = {} {} (default {}), seed {}, {} threads, {:.2} s, {} steps",
         s.method,
         match s.dynamics {
             crate::simulate::Dynamics::Underdamped => "underdamped",
             crate::simulate::Dynamics::Overdamped => "overdamped",
         },
         s.scheme,
-        s.trajectories,
-        s.shard
-            .as_ref()
-            .map(|k| format!(" (shard {k})"))
-            .unwrap_or_default(),
         num(s.dt),
         u.t,
         num(s.dt_default),
-        num(s.max_time),
-        u.t,
         s.seed,
         s.threads,
-        s.wall_seconds
+        s.wall_seconds,
+        s.total_steps
     );
-    let mut t = table();
-    t.set_header(vec![
-        "escaped".to_string(),
-        "censored".to_string(),
-        format!("rate (1/{})", u.t),
-        "95% interval".to_string(),
-        format!("MFPT ± se ({})", u.t),
-        format!("median ({})", u.t),
-        "CV".to_string(),
-        "KS distance (p)".to_string(),
-    ]);
-    t.add_row(vec![
-        s.escaped.to_string(),
-        s.censored.to_string(),
-        num(s.rate),
-        format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
-        match (s.mfpt, s.mfpt_se) {
-            (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
-            (Some(m), None) => num(m),
-            _ => "—".into(),
-        },
-        opt(s.median),
-        opt(s.cv),
-        match (s.ks_distance, s.ks_p_value) {
-            (Some(d), Some(p)) => format!("{} ({})", num(d), num(p)),
-            _ => "—".into(),
-        },
-    ]);
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "method: {}", s.method_reason);
+    if let (Some(esc), Some(cen)) = (s.escaped, s.censored) {
+        let _ = writeln!(
+            out,
+            "{} trajectories{}, max_time = {} {}",
+            s.trajectories,
+            s.shard
+                .as_ref()
+                .map(|k| format!(" (shard {k})"))
+                .unwrap_or_default(),
+            opt(s.max_time),
+            u.t
+        );
+        let mut t = table();
+        t.set_header(vec![
+            "escaped".to_string(),
+            "censored".to_string(),
+            format!("rate (1/{})", u.t),
+            "95% interval".to_string(),
+            format!("MFPT ± se ({})", u.t),
+            format!("median ({})", u.t),
+            "CV".to_string(),
+            "KS distance (p)".to_string(),
+        ]);
+        t.add_row(vec![
+            esc.to_string(),
+            cen.to_string(),
+            num(s.rate),
+            format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
+            match (s.mfpt, s.mfpt_se) {
+                (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
+                (Some(m), None) => num(m),
+                _ => "—".into(),
+            },
+            opt(s.median),
+            opt(s.cv),
+            match (s.ks_distance, s.ks_p_value) {
+                (Some(d), Some(p)) => format!("{} ({})", num(d), num(p)),
+                _ => "—".into(),
+            },
+        ]);
+        let _ = writeln!(out, "{t}");
+    }
+    if let Some(f) = &s.ffs {
+        let _ = writeln!(
+            out,
+            "forward flux sampling: {} interfaces ({}), {} replicas × {} trials per stage, flux through the first {} /{}",
+            f.interfaces.len(),
+            if f.interfaces_automatic {
+                "placed automatically"
+            } else {
+                "given"
+            },
+            f.replica_rates.len(),
+            f.trials_per_stage,
+            num(f.flux),
+            u.t
+        );
+        let mut t = table();
+        t.set_header(vec![
+            format!("from ({})", u.l),
+            format!("to ({})", u.l),
+            "trials".to_string(),
+            "successes".to_string(),
+            "P(next | this)".to_string(),
+        ]);
+        for st in &f.stages {
+            t.add_row(vec![
+                num(st.from),
+                num(st.to),
+                st.trials.to_string(),
+                st.successes.to_string(),
+                num(st.probability),
+            ]);
+        }
+        let _ = writeln!(out, "{t}");
+    }
+    if let Some(k) = &s.reactive_flux {
+        let _ = writeln!(
+            out,
+            "reactive flux: {} trajectories from the barrier top, kappa = {} [{}, {}], plateau {} (window {} {}), exact TST {} /{}",
+            k.trajectories,
+            num(k.kappa),
+            num(k.kappa_ci95[0]),
+            num(k.kappa_ci95[1]),
+            k.plateau_time
+                .map(|t| format!("from t = {} {}", num(t), u.t))
+                .unwrap_or_else(|| "not reached".into()),
+            num(k.t_max),
+            u.t,
+            num(k.tst_exact),
+            u.t
+        );
+    }
     let _ = writeln!(
         out,
-        "{} steps; rate interval: {}{}",
-        s.total_steps,
+        "rate {} /{} [{}, {}] (95%: {}){}",
+        num(s.rate),
+        u.t,
+        num(s.rate_ci95[0]),
+        num(s.rate_ci95[1]),
         s.rate_ci_method,
         if s.force_rel_error > 0.0 {
             format!(

@@ -128,7 +128,7 @@ fn reflect(x: &mut f64, v: &mut f64, lo: f64, hi: f64) {
 }
 
 /// Step constants derived once per run.
-struct Consts {
+pub(crate) struct Consts {
     hdt_m: f64,
     c1: f64,
     c2: f64,
@@ -137,7 +137,7 @@ struct Consts {
 }
 
 impl Consts {
-    fn new<M: Mobility>(p: &Params, mob: &M) -> Self {
+    pub(crate) fn new<M: Mobility>(p: &Params, mob: &M) -> Self {
         let dt = p.dt;
         let d0 = mob.d(0.0).0;
         Self {
@@ -405,4 +405,137 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
             }
         }
     }
+}
+
+/// The full state of one trajectory between steps: position, velocity, the force at the position
+/// and the previous Gaussian (Leimkuhler–Matthews). Rare-event methods store and restart from it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct State {
+    /// position
+    pub x: f64,
+    /// velocity (underdamped)
+    pub v: f64,
+    /// force at x
+    pub f: f64,
+    /// previous Gaussian (overdamped Leimkuhler–Matthews)
+    pub r: f64,
+}
+
+impl State {
+    /// A fresh state at `x` with a Maxwell velocity (underdamped) and a first Gaussian.
+    pub fn fresh<F: Force>(p: &Params, force: &F, x: f64, rng: &mut Pcg64) -> Self {
+        let v = if p.kind == Kind::Baoab {
+            rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
+        } else {
+            0.0
+        };
+        let r = if p.kind == Kind::LeimkuhlerMatthews {
+            rng.sample(StandardNormal)
+        } else {
+            0.0
+        };
+        Self {
+            x,
+            v,
+            f: force.force(x),
+            r,
+        }
+    }
+}
+
+/// One step of a stored state.
+#[inline]
+pub(crate) fn step_state<F: Force, M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    force: &F,
+    mob: &M,
+    s: &mut State,
+    rng: &mut Pcg64,
+) {
+    step(
+        p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
+    );
+}
+
+/// How [`run_between`] ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Exit {
+    /// reached the upper interface
+    Upper,
+    /// fell back to the lower one
+    Lower,
+    /// hit the step limit
+    Limit,
+}
+
+/// Advances `s` until the progress coordinate λ = dir·x reaches `upper` or falls to `lower`, or
+/// `limit` steps pass. Returns how it ended and the steps taken.
+#[allow(clippy::too_many_arguments)] // one trajectory's full context
+pub(crate) fn run_between<F: Force, M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    force: &F,
+    mob: &M,
+    s: &mut State,
+    rng: &mut Pcg64,
+    lower: f64,
+    upper: f64,
+    limit: u64,
+) -> (Exit, u64) {
+    for n in 1..=limit {
+        step(
+            p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
+        );
+        let lam = p.dir * s.x;
+        if lam >= upper {
+            return (Exit::Upper, n);
+        }
+        if lam <= lower {
+            return (Exit::Lower, n);
+        }
+    }
+    (Exit::Limit, limit)
+}
+
+/// A basin run for the flux through the first interface: from `x0`, counts crossings of
+/// λ = `lambda0` made after the last visit to λ ≤ `lambda_a` (the reactant state), storing the
+/// state at each, until `wanted` crossings or `limit` steps. A trajectory that reaches the target
+/// is put back at `x0`. Returns the crossing states and the steps taken.
+#[allow(clippy::too_many_arguments)] // one trajectory's full context
+pub(crate) fn run_basin<F: Force, M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    force: &F,
+    mob: &M,
+    x0: f64,
+    rng: &mut Pcg64,
+    lambda_a: f64,
+    lambda0: f64,
+    wanted: usize,
+    limit: u64,
+) -> (Vec<State>, u64) {
+    let mut s = State::fresh(p, force, x0, rng);
+    let mut out = Vec::with_capacity(wanted);
+    let mut armed = true;
+    let target = p.dir * p.target;
+    let mut n = 0;
+    while n < limit && out.len() < wanted {
+        step(
+            p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
+        );
+        n += 1;
+        let lam = p.dir * s.x;
+        if armed && lam >= lambda0 {
+            out.push(s);
+            armed = false;
+        } else if lam <= lambda_a {
+            armed = true;
+        }
+        if lam >= target {
+            s = State::fresh(p, force, x0, rng);
+            armed = true;
+        }
+    }
+    (out, n)
 }

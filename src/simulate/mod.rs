@@ -11,6 +11,8 @@
 //!   the record files, resume and merge.
 
 pub mod engine;
+pub mod ffs;
+pub mod flux;
 pub mod force;
 pub mod records;
 
@@ -34,6 +36,13 @@ pub const HORIZON_ESCAPE_TIMES: f64 = 20.0;
 /// Default ensemble size.
 pub const DEFAULT_TRAJECTORIES: u64 = 1000;
 
+/// Default step budget for `method = "auto"`: about 3–5 s on two cores at 3–5 ns per step.
+pub const DEFAULT_BUDGET_STEPS: f64 = 1e9;
+/// Brute force asked for explicitly is refused beyond this multiple of the budget.
+pub const REFUSE_FACTOR: f64 = 10.0;
+/// Default reactive-flux ensemble.
+pub const DEFAULT_FLUX_TRAJECTORIES: u64 = 20_000;
+
 /// Simulation set-up problems.
 #[derive(Debug, Error, Clone, PartialEq)]
 #[non_exhaustive]
@@ -46,6 +55,34 @@ pub enum SimError {
         /// what is wrong
         message: String,
     },
+    /// Stopped by the user before a rare-event estimate was complete.
+    #[error(
+        "interrupted before the estimate was complete (rare-event methods keep no partial result)"
+    )]
+    Interrupted,
+}
+
+/// The simulation method.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Method {
+    /// plain escape ensembles
+    BruteForce,
+    /// forward flux sampling
+    Ffs,
+    /// Bennett–Chandler reactive flux
+    ReactiveFlux,
+}
+
+impl Method {
+    /// The name as in scenario files.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::BruteForce => "brute-force",
+            Self::Ffs => "ffs",
+            Self::ReactiveFlux => "reactive-flux",
+        }
+    }
 }
 
 fn key_err(key: &'static str, message: impl Into<String>) -> SimError {
@@ -90,6 +127,16 @@ pub struct Plan {
     pub warnings: Vec<String>,
     /// fingerprint of everything that determines the outcomes
     pub fingerprint: u64,
+    /// the method that will run
+    pub method: Method,
+    /// why that method
+    pub method_reason: String,
+    /// step budget
+    pub budget_steps: f64,
+    /// expected brute-force cost in steps (ensemble × expected escape time / dt)
+    pub expected_brute_steps: f64,
+    /// the `[simulation]` section as given
+    pub section: crate::scenario::SimulationSection,
 }
 
 /// FNV-1a, 64 bit: a stable fingerprint (not a cryptographic hash).
@@ -219,6 +266,46 @@ impl Plan {
         };
         let trajectories = s.trajectories.unwrap_or(DEFAULT_TRAJECTORIES);
         let fingerprint = fingerprint(m, &params, trajectories);
+        let budget_steps = s.budget_steps.unwrap_or(DEFAULT_BUDGET_STEPS);
+        let expected_brute_steps =
+            trajectories as f64 * (1.0 / k_expect).min(max_steps as f64 * dt) / dt;
+        let cost = format!(
+            "expected brute-force cost {expected_brute_steps:.2e} steps ({trajectories} trajectories × expected escape time {:.3e} / dt {dt:.3e}) against simulation.budget_steps = {budget_steps:.2e}",
+            1.0 / k_expect
+        );
+        let (method, method_reason) = match s.method.as_deref() {
+            Some("brute-force") => {
+                if expected_brute_steps > REFUSE_FACTOR * budget_steps {
+                    return Err(key_err(
+                        "simulation.method",
+                        format!(
+                            "brute force refused: {cost}, more than {REFUSE_FACTOR}x over; use simulation.method = \"ffs\" (forward flux sampling) or raise budget_steps"
+                        ),
+                    ));
+                }
+                (Method::BruteForce, "requested".to_string())
+            }
+            Some("ffs") => (Method::Ffs, "requested".to_string()),
+            Some("reactive-flux") => {
+                if dynamics != Dynamics::Underdamped {
+                    return Err(key_err(
+                        "simulation.method",
+                        "reactive flux needs underdamped dynamics (a mass and a friction)",
+                    ));
+                }
+                (Method::ReactiveFlux, "requested".to_string())
+            }
+            _ => {
+                if expected_brute_steps <= budget_steps {
+                    (Method::BruteForce, format!("auto: {cost}"))
+                } else {
+                    (
+                        Method::Ffs,
+                        format!("auto: {cost}; forward flux sampling instead"),
+                    )
+                }
+            }
+        };
         Ok(Self {
             dynamics,
             scheme,
@@ -231,6 +318,11 @@ impl Plan {
             d_const: d_a,
             warnings,
             fingerprint,
+            method,
+            method_reason,
+            budget_steps,
+            expected_brute_steps,
+            section: s,
         })
     }
 
@@ -541,3 +633,131 @@ mod tests {
         );
     }
 }
+
+/// Calls `$body` with `$f` bound to the plan's concrete force and `$m` to its mobility, so generic
+/// code is monomorphised for each combination.
+macro_rules! with_force {
+    ($plan:expr, |$f:ident, $m:ident| $body:expr) => {{
+        let plan = $plan;
+        let cd = force::ConstD(plan.d_const);
+        match (&plan.force, &plan.mobility) {
+            (FastForce::DoubleWell($f), None) => {
+                let $m = &cd;
+                $body
+            }
+            (FastForce::Cubic($f), None) => {
+                let $m = &cd;
+                $body
+            }
+            (FastForce::Washboard($f), None) => {
+                let $m = &cd;
+                $body
+            }
+            (FastForce::Grid($f), None) => {
+                let $m = &cd;
+                $body
+            }
+            (FastForce::DoubleWell($f), Some($m)) => $body,
+            (FastForce::Cubic($f), Some($m)) => $body,
+            (FastForce::Washboard($f), Some($m)) => $body,
+            (FastForce::Grid($f), Some($m)) => $body,
+        }
+    }};
+}
+
+/// A rare-event estimate.
+#[derive(Debug, Clone)]
+pub enum RareResult {
+    /// forward flux sampling
+    Ffs(ffs::FfsResult),
+    /// reactive flux
+    Flux(flux::FluxResult),
+}
+
+/// Runs the plan's rare-event method (FFS or reactive flux) on `threads` threads; returns the
+/// estimate and the wall time.
+///
+/// # Errors
+/// Bad interfaces, or an interruption.
+pub fn run_rare(
+    plan: &Plan,
+    m: &Model,
+    t: &TheoryReport,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<(RareResult, f64, usize), SimError> {
+    let threads = if threads == 0 {
+        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
+    } else {
+        threads
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool");
+    let l = &t.landscape;
+    let t0 = std::time::Instant::now();
+    let res = pool.install(|| match plan.method {
+        Method::Ffs => {
+            let replicas = plan.section.replicas.map_or(ffs::REPLICAS, |r| r as usize);
+            let (ifs, automatic, probs) = match &plan.section.interfaces {
+                Some(given) => {
+                    let mut v = given.clone();
+                    let d = l.direction;
+                    let ok = v.windows(2).all(|w| d * w[1] > d * w[0])
+                        && d * v[0] > d * l.reactant
+                        && d * v[v.len() - 1] <= d * l.target;
+                    if !ok {
+                        return Err(key_err(
+                            "simulation.interfaces",
+                            format!(
+                                "must increase from the reactant (x = {}) towards the target (x = {}), beyond the reactant and not beyond the target",
+                                l.reactant, l.target
+                            ),
+                        ));
+                    }
+                    if d * v[v.len() - 1] < d * l.target {
+                        v.push(l.target);
+                    }
+                    let n = v.len() - 1;
+                    (v, false, vec![STAGE_GUESS; n])
+                }
+                None => {
+                    let (v, p) = ffs::place_interfaces(&m.potential, &m.diffusion, l);
+                    (v, true, p)
+                }
+            };
+            let trials = plan
+                .section
+                .trials
+                .unwrap_or_else(|| ffs::trials_for(&probs, ffs::TARGET_REL_ERROR, replicas));
+            with_force!(plan, |f, mb| ffs::run(
+                plan, f, mb, l, &ifs, automatic, trials, replicas, stop
+            ))
+            .map(RareResult::Ffs)
+        }
+        Method::ReactiveFlux => {
+            let tst = t.rates.tst_exact.ok_or_else(|| {
+                key_err("particle.mass", "reactive flux needs a mass for the TST rate")
+            })?;
+            let n = plan
+                .section
+                .trajectories
+                .unwrap_or(DEFAULT_FLUX_TRAJECTORIES);
+            let window = plan
+                .section
+                .flux_time
+                .unwrap_or_else(|| flux::default_window(l, plan.params.gamma));
+            with_force!(plan, |f, mb| flux::run(plan, f, mb, l, tst, n, window, stop))
+                .map(RareResult::Flux)
+        }
+        Method::BruteForce => Err(key_err(
+            "simulation.method",
+            "brute force runs through run_ensemble",
+        )),
+    })?;
+    Ok((res, t0.elapsed().as_secs_f64(), threads))
+}
+
+/// Planned stage probability for user-given interfaces (unknown in advance).
+const STAGE_GUESS: f64 = 0.2;
