@@ -35,7 +35,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 /// Independent replicas for the interval.
 pub const REPLICAS: usize = 10;
 /// Default target relative standard error of the rate.
-pub const TARGET_REL_ERROR: f64 = 0.015;
+pub const TARGET_REL_ERROR: f64 = 0.012;
 /// Planned success probability per stage.
 pub const STAGE_PROBABILITY: f64 = 0.25;
 /// Basin walkers per replica.
