@@ -470,16 +470,29 @@ pub enum Exit {
 }
 
 /// Probability that an overdamped path crossed a level between two steps whose end points both
-/// lie `a` and `b` short of it: the Brownian-bridge result exp(−a b/(D dt)) (e.g. Mannella, Int. J.
-/// Mod. Phys. C 13, 1177 (2002)). Checking crossings only at the steps misses these and biases
-/// interface probabilities by O(sqrt(dt)); drawing against it removes that bias.
+/// lie `a` and `b` short of it: the Brownian-bridge result exp(−2ab/σ²) for a step whose noise has
+/// variance σ² (e.g. Mannella, Int. J. Mod. Phys. C 13, 1177 (2002)). Checking crossings only at
+/// the steps misses these and biases interface probabilities by O(sqrt(dt)); drawing against it
+/// removes that bias. `s2` is σ²: 2D dt for Euler–Maruyama, D dt for Leimkuhler–Matthews, whose
+/// per-step noise (R_n + R_{n+1})/2 has half the variance.
 #[inline]
-fn bridge_crossed(a: f64, b: f64, d_dt: f64, rng: &mut Pcg64) -> bool {
+fn bridge_crossed(a: f64, b: f64, s2: f64, rng: &mut Pcg64) -> bool {
     // beyond e^-12 the draw is not worth its cost
-    if a * b > 12.0 * d_dt {
+    if 2.0 * a * b > 12.0 * s2 {
         return false;
     }
-    rng.random::<f64>() < (-a * b / d_dt).exp()
+    rng.random::<f64>() < (-2.0 * a * b / s2).exp()
+}
+
+/// The per-step noise variance σ² the bridge needs.
+#[inline]
+fn step_variance<M: Mobility>(p: &Params, mob: &M, x: f64) -> f64 {
+    let d = mob.d(x).0;
+    if p.kind == Kind::LeimkuhlerMatthews {
+        d * p.dt
+    } else {
+        2.0 * d * p.dt
+    }
 }
 
 /// Advances `s` until the progress coordinate λ = dir·x reaches `upper` or falls to `lower`, or
@@ -511,11 +524,11 @@ pub(crate) fn run_between<F: Force, M: Mobility>(
             return (Exit::Lower, n);
         }
         if overdamped {
-            let d_dt = mob.d(s.x).0 * p.dt;
-            if bridge_crossed(upper - prev, upper - lam, d_dt, rng) {
+            let s2 = step_variance(p, mob, s.x);
+            if bridge_crossed(upper - prev, upper - lam, s2, rng) {
                 return (Exit::Upper, n);
             }
-            if bridge_crossed(prev - lower, lam - lower, d_dt, rng) {
+            if bridge_crossed(prev - lower, lam - lower, s2, rng) {
                 return (Exit::Lower, n);
             }
         }
@@ -554,15 +567,19 @@ pub(crate) fn run_basin<F: Force, M: Mobility>(
         );
         n += 1;
         let lam = p.dir * s.x;
-        let d_dt = if overdamped { mob.d(s.x).0 * p.dt } else { 0.0 };
+        let s2 = if overdamped {
+            step_variance(p, mob, s.x)
+        } else {
+            0.0
+        };
         // crossings between steps count too (Brownian bridge, overdamped only)
         let crossed0 = lam >= lambda0
-            || (overdamped && bridge_crossed(lambda0 - prev, lambda0 - lam, d_dt, rng));
+            || (overdamped && bridge_crossed(lambda0 - prev, lambda0 - lam, s2, rng));
         if armed && crossed0 {
             out.push(s);
             armed = false;
         } else if lam <= lambda_a
-            || (overdamped && bridge_crossed(prev - lambda_a, lam - lambda_a, d_dt, rng))
+            || (overdamped && bridge_crossed(prev - lambda_a, lam - lambda_a, s2, rng))
         {
             armed = true;
         }
