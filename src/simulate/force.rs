@@ -306,8 +306,6 @@ impl Mobility for GridD {
 mod tests {
     use super::*;
 
-    // Hermite interpolation of a smooth function converges as h⁴ (de Boor, ch. IV): the built grid
-    // must meet its own tolerance, checked here at points other than the midpoints.
     // The folded closed forms equal the family's U' (rounding only).
     #[test]
     fn folded_forces_match_the_families() {
@@ -345,6 +343,8 @@ mod tests {
         }
     }
 
+    // Hermite interpolation of a smooth function converges as h⁴ (de Boor, ch. IV): the built grid
+    // must meet its own tolerance, checked here at points other than the midpoints.
     #[test]
     fn grid_meets_its_tolerance() {
         let g = Grid::build(
