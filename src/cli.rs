@@ -78,6 +78,40 @@ pub enum Command {
         #[command(flatten)]
         sim: SimOpts,
     },
+    /// Vary one scenario value over a range: every theory rate at each point, fits, plots.
+    Scan {
+        /// scenario file (TOML)
+        file: PathBuf,
+        /// the scenario key to vary, e.g. particle.friction, units.temperature, potential.tilt
+        #[arg(long, value_name = "SECTION.KEY")]
+        vary: String,
+        /// first value
+        #[arg(long, allow_negative_numbers = true)]
+        from: f64,
+        /// last value
+        #[arg(long, allow_negative_numbers = true)]
+        to: f64,
+        /// number of points
+        #[arg(long, default_value_t = 11)]
+        points: usize,
+        /// logarithmic spacing
+        #[arg(long)]
+        log: bool,
+        /// also simulate every point (its own seed and step budget)
+        #[arg(long)]
+        simulate: bool,
+        /// write the points as CSV to this file
+        #[arg(long, value_name = "FILE")]
+        csv: Option<PathBuf>,
+        /// draw the scan as an SVG picture
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
+        #[command(flatten)]
+        common: Common,
+        /// worker threads for --simulate (default: all cores)
+        #[arg(long, value_name = "N", default_value_t = 0)]
+        threads: usize,
+    },
     /// Union record files of one run (shards or pieces) and report their statistics.
     Merge {
         /// record files

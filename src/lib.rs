@@ -10,10 +10,12 @@
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
 
+pub mod fit;
 pub mod landscape;
 pub mod potential;
 pub mod quad;
 pub mod report;
+pub mod scan;
 pub mod scenario;
 pub mod simulate;
 pub mod stats;

@@ -95,6 +95,49 @@ fn run(cli: Cli) -> Result<Done, Failure> {
         Command::Simulate { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, false),
         Command::Compare { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, true),
         Command::Demo { common, sim } => simulate_cmd(None, &common, &sim, true),
+        Command::Scan {
+            file,
+            vary,
+            from,
+            to,
+            points,
+            log,
+            simulate,
+            csv,
+            plot,
+            common,
+            threads,
+        } => {
+            let overrides = common
+                .set
+                .iter()
+                .map(|s| Override::parse(s))
+                .collect::<Result<Vec<_>, _>>()
+                .map_err(|e| Failure::user(e.to_string()))?;
+            let spec = escapade::scan::Spec {
+                key: vary,
+                from,
+                to,
+                points,
+                log,
+            };
+            let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+            let r = escapade::scan::run(&file, &overrides, &spec, simulate, threads, &STOP)
+                .map_err(|e| Failure::user(e.to_string()))?;
+            if let Some(path) = csv {
+                std::fs::write(&path, escapade::report::csv::scan(&r))
+                    .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
+            }
+            if let Some(path) = plot {
+                std::fs::write(&path, escapade::report::svg::scan(&r))
+                    .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
+            }
+            ok(if common.json {
+                json::render(&r)
+            } else {
+                table::scan(&r)
+            })
+        }
         Command::Merge {
             files,
             json: as_json,

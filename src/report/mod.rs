@@ -3,7 +3,9 @@
 //! units happens here and nowhere else: energies × kT-in-unit, actions × kT-in-unit; lengths,
 //! times, frequencies and rates are already in the scenario's units.
 
+pub mod csv;
 pub mod json;
+pub mod svg;
 pub mod table;
 
 use crate::landscape::{Kind, Landscape, TargetRule};

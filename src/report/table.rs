@@ -446,3 +446,86 @@ pub fn merge(r: &super::MergeReport) -> String {
     warnings(&mut out, &r.warnings);
     out
 }
+
+/// Renders `scan`.
+pub fn scan(r: &crate::scan::ScanReport) -> String {
+    use crate::scan::{RATE_KEYS, rate_of};
+    let u = U::new(&r.units);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "scan of {} over {} points ({:?} scan)",
+        r.key,
+        r.points.len(),
+        r.kind
+    );
+    let mut t = table();
+    let mut head = vec![r.key.clone(), "regime".into(), "E_b/kT".into()];
+    let present: Vec<&str> = RATE_KEYS
+        .iter()
+        .copied()
+        .filter(|k| r.points.iter().any(|p| rate_of(&p.rates, k).is_some()))
+        .collect();
+    for k in &present {
+        head.push(format!("{k} (1/{})", u.t));
+    }
+    let sim = r.points.iter().any(|p| p.simulation.is_some());
+    if sim {
+        head.push(format!("simulated (1/{}) [95%]", u.t));
+    }
+    t.set_header(head);
+    for p in &r.points {
+        let mut row = vec![num(p.value), p.regime.to_string(), num(p.barrier_height_kt)];
+        for k in &present {
+            row.push(opt(rate_of(&p.rates, k)));
+        }
+        if sim {
+            row.push(p.simulation.as_ref().map_or_else(
+                || "—".into(),
+                |s| {
+                    format!(
+                        "{} [{}, {}] ({})",
+                        num(s.rate),
+                        num(s.rate_ci95[0]),
+                        num(s.rate_ci95[1]),
+                        s.method
+                    )
+                },
+            ));
+        }
+        t.add_row(row);
+    }
+    let _ = writeln!(out, "{t}");
+    if !r.fits.is_empty() {
+        let (what, unit, pre) = match r.kind {
+            crate::scan::Kind::Temperature => ("apparent E_a", u.e.to_string(), "prefactor A"),
+            _ => ("distance x‡", u.l.to_string(), "k(F = 0)"),
+        };
+        let mut f = table();
+        f.set_header(vec![
+            "rate".to_string(),
+            format!("{what} ({unit})"),
+            "95% interval".to_string(),
+            format!("{pre} (1/{})", u.t),
+            "95% interval".to_string(),
+        ]);
+        for fit in &r.fits {
+            f.add_row(vec![
+                fit.rate.clone(),
+                num(fit.value),
+                format!("[{}, {}]", num(fit.value_ci95[0]), num(fit.value_ci95[1])),
+                num(fit.prefactor),
+                format!(
+                    "[{}, {}]",
+                    num(fit.prefactor_ci95[0]),
+                    num(fit.prefactor_ci95[1])
+                ),
+            ]);
+        }
+        let _ = writeln!(out, "{f}");
+    }
+    for n in &r.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
+    out
+}

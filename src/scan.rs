@@ -1,0 +1,408 @@
+//! Scans: one scenario value varied over a range, with every theory rate (and optionally a
+//! simulated rate) at each point, and the fits that answer the usual questions:
+//! - a temperature scan (`units.temperature`) fits ln k = ln A − E_a/(k_B T) (Arrhenius) for each
+//!   rate. For Kramers-type rates the apparent E_a differs from E_b because the prefactor depends on
+//!   T through γ and D (and E_b/kT itself through the unit conversion);
+//! - a force scan (`potential.tilt`) fits ln k = ln k_0 + F x‡/kT (Bell 1978), giving the
+//!   distance x‡ to the barrier;
+//! - a friction scan (`particle.friction` or `particle.diffusion`) shows the turnover.
+//!
+//! Each point's simulation has its own seed derived from the master seed and the point index, and
+//! its own step budget, so points are independent and reproducible.
+
+use crate::fit::{self, Line};
+use crate::scenario::{Model, Override, ScenarioError};
+use crate::simulate::{self, Method, Plan, RunOptions};
+use crate::theory::{self, Rates, TheoryReport};
+use crate::units::K_B;
+use serde::Serialize;
+use std::path::Path;
+use std::sync::atomic::AtomicBool;
+use thiserror::Error;
+
+/// Scan problems.
+#[derive(Debug, Error)]
+#[non_exhaustive]
+pub enum ScanError {
+    /// Bad range or key.
+    #[error("{0}")]
+    Spec(String),
+    /// The scenario at some point.
+    #[error("{0}")]
+    Scenario(#[from] ScenarioError),
+    /// Landscape or theory at some point.
+    #[error("{file}: {key} = {value}: {message}")]
+    Point {
+        /// scenario file
+        file: String,
+        /// varied key
+        key: String,
+        /// value there
+        value: f64,
+        /// what went wrong
+        message: String,
+    },
+}
+
+/// What is varied.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Spec {
+    /// dotted scenario key
+    pub key: String,
+    /// first value
+    pub from: f64,
+    /// last value
+    pub to: f64,
+    /// number of points (≥ 2)
+    pub points: usize,
+    /// logarithmic spacing
+    pub log: bool,
+}
+
+impl Spec {
+    /// The values of the scan.
+    ///
+    /// # Errors
+    /// Fewer than 2 points, non-finite ends, or a log scan through zero.
+    pub fn values(&self) -> Result<Vec<f64>, ScanError> {
+        let (a, b, n) = (self.from, self.to, self.points);
+        if n < 2 || !a.is_finite() || !b.is_finite() {
+            return Err(ScanError::Spec(format!(
+                "--from/--to/--points: need finite ends and at least 2 points (got {a}, {b}, {n})"
+            )));
+        }
+        if self.log && (a <= 0.0 || b <= 0.0) {
+            return Err(ScanError::Spec(format!(
+                "--log needs positive ends (got {a}, {b})"
+            )));
+        }
+        Ok((0..n)
+            .map(|i| {
+                let f = i as f64 / (n - 1) as f64;
+                // the ends exactly as given (no rounding through exp/ln)
+                if i == 0 {
+                    a
+                } else if i == n - 1 {
+                    b
+                } else if self.log {
+                    (a.ln() + f * (b.ln() - a.ln())).exp()
+                } else {
+                    a + f * (b - a)
+                }
+            })
+            .collect())
+    }
+}
+
+/// The kind of scan, by key.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Kind {
+    /// friction or diffusion coefficient
+    Friction,
+    /// temperature
+    Temperature,
+    /// tilt force
+    Force,
+    /// anything else
+    Other,
+}
+
+impl Kind {
+    fn of(key: &str) -> Self {
+        match key {
+            "particle.friction" | "particle.diffusion" => Self::Friction,
+            "units.temperature" => Self::Temperature,
+            "potential.tilt" => Self::Force,
+            _ => Self::Other,
+        }
+    }
+}
+
+/// A simulated rate at one point.
+#[derive(Debug, Clone, Serialize)]
+pub struct SimPoint {
+    /// method used
+    pub method: &'static str,
+    /// rate (per time unit)
+    pub rate: f64,
+    /// 95% interval
+    pub rate_ci95: [f64; 2],
+    /// steps spent
+    pub total_steps: u64,
+    /// seed used
+    pub seed: u64,
+}
+
+/// One point of a scan.
+#[derive(Debug, Clone, Serialize)]
+pub struct Point {
+    /// the varied value
+    pub value: f64,
+    /// regime name
+    pub regime: &'static str,
+    /// γ/ω_b
+    pub gamma_over_omega_barrier: Option<f64>,
+    /// δ
+    pub delta: Option<f64>,
+    /// E_b/kT
+    #[serde(rename = "barrier_height_kT")]
+    pub barrier_height_kt: f64,
+    /// every theory rate (per time unit)
+    pub rates: Rates,
+    /// the simulated rate, with --simulate
+    pub simulation: Option<SimPoint>,
+}
+
+/// A fit over the scan for one rate.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitOut {
+    /// which rate ("simulation" for the simulated one)
+    pub rate: String,
+    /// Arrhenius: apparent activation energy (scenario energy unit); force: distance x‡ (length)
+    pub value: f64,
+    /// its 95% interval
+    pub value_ci95: [f64; 2],
+    /// Arrhenius prefactor A or zero-force rate k_0 (per time unit)
+    pub prefactor: f64,
+    /// its 95% interval
+    pub prefactor_ci95: [f64; 2],
+    /// the line in (x, ln k)
+    pub line: Line,
+}
+
+/// A whole scan.
+#[derive(Debug, Clone, Serialize)]
+pub struct ScanReport {
+    /// varied key
+    pub key: String,
+    /// kind of scan
+    pub kind: Kind,
+    /// unit names of the scenario (at the first point)
+    pub units: crate::units::UnitNames,
+    /// points
+    pub points: Vec<Point>,
+    /// Arrhenius or force fits
+    pub fits: Vec<FitOut>,
+    /// notes
+    pub notes: Vec<String>,
+    /// action I_b at the first point (for regime bands of a friction scan), energy·time
+    #[serde(skip)]
+    pub action_first: Option<f64>,
+    /// ω_b at the first point
+    #[serde(skip)]
+    pub omega_barrier_first: Option<f64>,
+}
+
+/// Rate keys in report order.
+pub const RATE_KEYS: [&str; 7] = [
+    "tst",
+    "tst_exact",
+    "kramers",
+    "smoluchowski",
+    "energy_diffusion",
+    "turnover",
+    "mfpt",
+];
+
+/// The rate of `key` in `r`.
+pub fn rate_of(r: &Rates, key: &str) -> Option<f64> {
+    match key {
+        "tst" => r.tst,
+        "tst_exact" => r.tst_exact,
+        "kramers" => r.kramers,
+        "smoluchowski" => r.smoluchowski,
+        "energy_diffusion" => r.energy_diffusion,
+        "turnover" => r.turnover,
+        "mfpt" => r.mfpt,
+        _ => None,
+    }
+}
+
+fn point_theory(
+    file: &Path,
+    base: &[Override],
+    key: &str,
+    v: f64,
+    extra: &[Override],
+) -> Result<(Model, TheoryReport), ScanError> {
+    let mut o = base.to_vec();
+    o.push(Override::parse(&format!("{key}={v:?}"))?);
+    o.extend_from_slice(extra);
+    let m = Model::load(file, &o)?;
+    let t = theory::analyse(&m).map_err(|e| ScanError::Point {
+        file: file.display().to_string(),
+        key: key.to_string(),
+        value: v,
+        message: format!("{}: {e}", e.key()),
+    })?;
+    Ok((m, t))
+}
+
+/// Runs the scan of `file` (with `base` overrides); with `simulate`, every point is also
+/// simulated (method auto, its own seed, `threads` threads).
+///
+/// # Errors
+/// A bad spec, a scenario error at some point (naming it), or a simulation set-up error.
+pub fn run(
+    file: &Path,
+    base: &[Override],
+    spec: &Spec,
+    simulate: bool,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<ScanReport, ScanError> {
+    let values = spec.values()?;
+    let kind = Kind::of(&spec.key);
+    let mut points = Vec::with_capacity(values.len());
+    let mut units = None;
+    let mut kt_unit = 1.0;
+    let mut action_first = None;
+    let mut omega_first = None;
+    for (i, &v) in values.iter().enumerate() {
+        let (m, t) = point_theory(file, base, &spec.key, v, &[])?;
+        if units.is_none() {
+            units = Some(m.units.names.clone());
+            kt_unit = m.units.kt_in_energy_unit;
+            action_first = t.landscape.action;
+            omega_first = t.landscape.omega_barrier;
+        }
+        let simulation = if simulate {
+            let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
+            // 63 bits: TOML integers are signed
+            let seed =
+                simulate::engine::splitmix64(master ^ (i as u64).wrapping_mul(0x9e37_79b9)) >> 1;
+            let (m, t) = point_theory(
+                file,
+                base,
+                &spec.key,
+                v,
+                &[Override::parse(&format!("simulation.seed={seed}"))?],
+            )?;
+            let bad = |e: String| ScanError::Point {
+                file: file.display().to_string(),
+                key: spec.key.clone(),
+                value: v,
+                message: e,
+            };
+            let plan = Plan::new(&m, &t).map_err(|e| bad(e.to_string()))?;
+            let out = if plan.method == Method::BruteForce {
+                let opts = RunOptions {
+                    threads,
+                    ..RunOptions::default()
+                };
+                let r = simulate::run_ensemble(&plan, &opts, stop, |_, _| {})
+                    .map_err(|e| bad(e.to_string()))?;
+                crate::report::SimulationOut::new(&plan, &r, None)
+            } else {
+                let (r, wall, th) = simulate::run_rare(&plan, &m, &t, threads, stop)
+                    .map_err(|e| bad(e.to_string()))?;
+                crate::report::SimulationOut::rare(&plan, r, wall, th)
+            };
+            Some(SimPoint {
+                method: out.method,
+                rate: out.rate,
+                rate_ci95: out.rate_ci95,
+                total_steps: out.total_steps,
+                seed,
+            })
+        } else {
+            None
+        };
+        points.push(Point {
+            value: v,
+            regime: t.regime.name.as_str(),
+            gamma_over_omega_barrier: t.regime.gamma_over_omega_barrier,
+            delta: t.regime.delta,
+            barrier_height_kt: t.landscape.barrier_height,
+            rates: t.rates,
+            simulation,
+        });
+    }
+    let units = units.expect("at least two points");
+    let mut notes = Vec::new();
+    let fits = match kind {
+        Kind::Temperature => {
+            notes.push(
+                "for Kramers-type rates the apparent activation energy differs from E_b: the prefactor depends on T through the friction and D, and E_b/kT itself changes with T".into(),
+            );
+            fits_for(&points, &units, kind, kt_unit)
+        }
+        Kind::Force => fits_for(&points, &units, kind, kt_unit),
+        _ => Vec::new(),
+    };
+    Ok(ScanReport {
+        key: spec.key.clone(),
+        kind,
+        units,
+        points,
+        fits,
+        notes,
+        action_first,
+        omega_barrier_first: omega_first,
+    })
+}
+
+/// Joules per scenario energy unit (None for kT).
+fn joule_per_unit(units: &crate::units::UnitNames) -> Option<f64> {
+    crate::units::energy_joule(&units.energy).ok().flatten()
+}
+
+fn fits_for(
+    points: &[Point],
+    units: &crate::units::UnitNames,
+    kind: Kind,
+    kt_unit: f64,
+) -> Vec<FitOut> {
+    let mut series: Vec<(String, Vec<f64>, Option<Vec<f64>>)> = RATE_KEYS
+        .iter()
+        .filter_map(|&k| {
+            let ys: Option<Vec<f64>> = points.iter().map(|p| rate_of(&p.rates, k)).collect();
+            ys.map(|y| (k.to_string(), y, None))
+        })
+        .collect();
+    let sim: Option<Vec<&SimPoint>> = points.iter().map(|p| p.simulation.as_ref()).collect();
+    if let Some(s) = sim
+        && s.iter().all(|p| p.rate > 0.0 && p.rate_ci95[0] > 0.0)
+    {
+        let y = s.iter().map(|p| p.rate).collect();
+        // σ of ln k from the 95% interval
+        let sig = s
+            .iter()
+            .map(|p| (p.rate_ci95[1].ln() - p.rate_ci95[0].ln()) / (2.0 * 1.959_964))
+            .collect();
+        series.push(("simulation".into(), y, Some(sig)));
+    }
+    let xs: Vec<f64> = points
+        .iter()
+        .map(|p| match kind {
+            Kind::Temperature => 1.0 / p.value,
+            _ => p.value,
+        })
+        .collect();
+    series
+        .into_iter()
+        .filter_map(|(name, y, sig)| {
+            let ln: Vec<f64> = y.iter().map(|v| v.ln()).collect();
+            let l = fit::line(&xs, &ln, sig.as_deref())?;
+            let (value, half) = match kind {
+                // slope = −E_a/k_B (x = 1/T): E_a in J, then in the scenario's energy unit
+                Kind::Temperature => {
+                    let per = joule_per_unit(units)?;
+                    (-l.slope * K_B / per, l.t95 * l.slope_se * K_B / per)
+                }
+                // slope = x‡/kT per unit force (energy/length): x‡ = slope · kT in that unit
+                _ => (l.slope * kt_unit, l.t95 * l.slope_se * kt_unit),
+            };
+            let ph = l.t95 * l.intercept_se;
+            Some(FitOut {
+                rate: name,
+                value,
+                value_ci95: [value - half, value + half],
+                prefactor: l.intercept.exp(),
+                prefactor_ci95: [(l.intercept - ph).exp(), (l.intercept + ph).exp()],
+                line: l,
+            })
+        })
+        .collect()
+}
