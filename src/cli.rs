@@ -50,6 +50,9 @@ pub enum Command {
     Survey {
         /// scenario file (TOML)
         file: PathBuf,
+        /// draw U(x) with the special points marked as an SVG picture
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
         #[command(flatten)]
         common: Common,
     },
@@ -64,6 +67,9 @@ pub enum Command {
     Simulate {
         /// scenario file (TOML)
         file: PathBuf,
+        /// draw the survival curve with the fitted exponential (brute force) as an SVG picture
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
         #[command(flatten)]
         common: Common,
         #[command(flatten)]

@@ -71,10 +71,16 @@ fn theory_of(m: &Model) -> Result<theory::TheoryReport, Failure> {
 
 fn run(cli: Cli) -> Result<Done, Failure> {
     match cli.command {
-        Command::Survey { file, common } => {
+        Command::Survey { file, plot, common } => {
             let m = load(Some(&file), &common)?;
             let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass)
                 .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
+            if let Some(path) = plot {
+                write_file(
+                    &path,
+                    &escapade::report::svg::landscape(&m.potential, &l, &m.units),
+                )?;
+            }
             let r = SurveyReport::new(&m, &l);
             ok(if common.json {
                 json::render(&r)
@@ -92,9 +98,16 @@ fn run(cli: Cli) -> Result<Done, Failure> {
                 table::rate(&r)
             })
         }
-        Command::Simulate { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, false),
-        Command::Compare { file, common, sim } => simulate_cmd(Some(&file), &common, &sim, true),
-        Command::Demo { common, sim } => simulate_cmd(None, &common, &sim, true),
+        Command::Simulate {
+            file,
+            plot,
+            common,
+            sim,
+        } => simulate_cmd(Some(&file), &common, &sim, false, plot.as_deref()),
+        Command::Compare { file, common, sim } => {
+            simulate_cmd(Some(&file), &common, &sim, true, None)
+        }
+        Command::Demo { common, sim } => simulate_cmd(None, &common, &sim, true, None),
         Command::Scan {
             file,
             vary,
@@ -192,11 +205,18 @@ fn json_to_pipe(common: &Common) -> bool {
     common.json && !std::io::stdout().is_terminal()
 }
 
+/// Writes an output file, naming it in the error.
+fn write_file(path: &Path, text: &str) -> Result<(), Failure> {
+    std::fs::write(path, text)
+        .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))
+}
+
 fn simulate_cmd(
     file: Option<&Path>,
     common: &Common,
     sim: &SimOpts,
     with_theory: bool,
+    plot: Option<&Path>,
 ) -> Result<Done, Failure> {
     let m = load(file, common)?;
     let t = theory_of(&m)?;
@@ -241,6 +261,19 @@ fn simulate_cmd(
         let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
             .map_err(|e| Failure::user(e.to_string()))?;
         progress.finish();
+        if let Some(path) = plot {
+            let s =
+                escapade::stats::summarise(&result.outcomes, plan.params.dt, plan.params.max_steps);
+            let tu = if m.units.names.time == "1" {
+                "τ"
+            } else {
+                &m.units.names.time
+            };
+            write_file(
+                path,
+                &escapade::report::svg::survival(&result.outcomes, plan.params.dt, s.rate, tu),
+            )?;
+        }
         (
             SimulationOut::new(&plan, &result, shard),
             result.interrupted,

@@ -329,8 +329,179 @@ fn draw<DB: DrawingBackend>(
             .background_style(WHITE.mix(0.85))
             .border_style(BLACK)
             .label_font(("sans-serif", 13))
-            .position(SeriesLabelPosition::UpperRight)
+            // lines fall to the right in an Arrhenius plot and rise with the force: the empty corner
+            .position(if r.kind == Kind::Temperature {
+                SeriesLabelPosition::LowerLeft
+            } else {
+                SeriesLabelPosition::UpperLeft
+            })
             .draw()?;
     }
+    Ok(())
+}
+
+/// U(x) with the reactant, barrier, product and target marked and a 1 kT scale bar (`survey`).
+pub fn landscape(
+    pot: &dyn crate::potential::Potential,
+    l: &crate::landscape::Landscape,
+    units: &crate::units::UnitSystem,
+) -> String {
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
+        let _ = root.fill(&WHITE);
+        let _ = draw_landscape(&root, pot, l, units);
+        let _ = root.present();
+    }
+    buf
+}
+
+fn draw_landscape<DB: DrawingBackend>(
+    root: &DrawingArea<DB, plotters::coord::Shift>,
+    pot: &dyn crate::potential::Potential,
+    l: &crate::landscape::Landscape,
+    units: &crate::units::UnitSystem,
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let (lo, hi) = pot.domain();
+    let e = |x: f64| units.energy_from_kt(pot.u(x) - l.u_reactant);
+    let n = 800;
+    let pts: Vec<(f64, f64)> = (0..=n)
+        .map(|i| {
+            let x = lo + (hi - lo) * f64::from(i) / f64::from(n);
+            (x, e(x))
+        })
+        .collect();
+    // show up to twice the barrier (walls of high potentials would flatten the picture)
+    let top = units.energy_from_kt(2.0 * l.barrier_height.max(1.0));
+    let (ymin, _) = bounds(pts.iter().map(|p| p.1));
+    let lu = if units.names.length == "1" {
+        "L"
+    } else {
+        &units.names.length
+    };
+    let mut chart = ChartBuilder::on(root)
+        .caption("potential", ("sans-serif", 24))
+        .margin(20)
+        .x_label_area_size(50)
+        .y_label_area_size(80)
+        .build_cartesian_2d(lo..hi, (ymin - 0.05 * top)..top)?;
+    chart
+        .configure_mesh()
+        .x_desc(format!("x ({lu})"))
+        .y_desc(format!("U − U(reactant) ({})", units.names.energy))
+        .label_style(("sans-serif", 16))
+        .draw()?;
+    chart.draw_series(LineSeries::new(
+        pts.into_iter().filter(|p| p.1 <= top),
+        colour(0).stroke_width(2),
+    ))?;
+    let mut marks = vec![
+        ("reactant", l.reactant, colour(2)),
+        ("barrier", l.barrier, colour(3)),
+        ("target", l.target, colour(4)),
+    ];
+    if let Some(p) = l.product
+        && (p - l.target).abs() > 1e-9 * (hi - lo)
+    {
+        marks.push(("product", p, colour(1)));
+    }
+    for (name, x, c) in marks {
+        let y = e(x);
+        chart.draw_series(std::iter::once(Circle::new((x, y), 6, c.filled())))?;
+        chart.draw_series(std::iter::once(Text::new(
+            name,
+            (x, y + 0.04 * top),
+            ("sans-serif", 15),
+        )))?;
+    }
+    // a 1 kT scale bar at the right
+    let kt = units.energy_from_kt(1.0);
+    let xb = hi - 0.04 * (hi - lo);
+    let y0 = ymin + 0.1 * top;
+    chart.draw_series(std::iter::once(PathElement::new(
+        vec![(xb, y0), (xb, y0 + kt)],
+        BLACK.stroke_width(3),
+    )))?;
+    chart.draw_series(std::iter::once(Text::new(
+        "1 kT",
+        (xb - 0.07 * (hi - lo), y0 + 0.5 * kt),
+        ("sans-serif", 15),
+    )))?;
+    Ok(())
+}
+
+/// The survival curve of a brute-force run (fraction not yet escaped, log scale) with the fitted
+/// exponential e^{−kt} (`simulate --plot`).
+pub fn survival(outcomes: &[crate::stats::Outcome], dt: f64, rate: f64, time_unit: &str) -> String {
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
+        let _ = root.fill(&WHITE);
+        let _ = draw_survival(&root, outcomes, dt, rate, time_unit);
+        let _ = root.present();
+    }
+    buf
+}
+
+fn draw_survival<DB: DrawingBackend>(
+    root: &DrawingArea<DB, plotters::coord::Shift>,
+    outcomes: &[crate::stats::Outcome],
+    dt: f64,
+    rate: f64,
+    tu: &str,
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let n = outcomes.len().max(1) as f64;
+    let mut t: Vec<f64> = outcomes
+        .iter()
+        .filter(|o| o.escaped)
+        .map(|o| o.steps as f64 * dt)
+        .collect();
+    t.sort_by(f64::total_cmp);
+    let tmax = t.last().copied().unwrap_or(1.0).max(1e-300);
+    let floor = (0.5 / n).max(1e-6);
+    let steps: Vec<(f64, f64)> = std::iter::once((0.0, 1.0))
+        .chain(
+            t.iter()
+                .enumerate()
+                .flat_map(|(i, &ti)| [(ti, 1.0 - i as f64 / n), (ti, 1.0 - (i + 1) as f64 / n)]),
+        )
+        .filter(|p| p.1 >= floor)
+        .collect();
+    let mut chart = ChartBuilder::on(root)
+        .caption("survival: fraction not yet escaped", ("sans-serif", 24))
+        .margin(20)
+        .x_label_area_size(50)
+        .y_label_area_size(80)
+        .build_cartesian_2d(0.0..tmax, (floor..1.2).log_scale())?;
+    chart
+        .configure_mesh()
+        .x_desc(format!("t ({tu})"))
+        .y_desc("S(t)")
+        .label_style(("sans-serif", 16))
+        .draw()?;
+    chart
+        .draw_series(LineSeries::new(steps, BLACK.stroke_width(2)))?
+        .label("simulated")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
+    let c = colour(3);
+    chart
+        .draw_series(LineSeries::new(
+            (0..=200)
+                .map(|i| {
+                    let x = tmax * f64::from(i) / 200.0;
+                    (x, (-rate * x).exp())
+                })
+                .filter(|p| p.1 >= floor),
+            c.stroke_width(2),
+        ))?
+        .label(format!("exp(−k t), k = {rate:.4e} /{tu}"))
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2)));
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .label_font(("sans-serif", 14))
+        .position(SeriesLabelPosition::UpperRight)
+        .draw()?;
     Ok(())
 }
