@@ -459,7 +459,9 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
         r.points.len(),
         r.kind
     );
+    // a scan row carries every rate: give it more room than the other tables
     let mut t = table();
+    t.set_width(160);
     let mut head = vec![r.key.clone(), "regime".into(), "E_b/kT".into()];
     let present: Vec<&str> = RATE_KEYS
         .iter()
