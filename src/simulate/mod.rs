@@ -240,7 +240,11 @@ impl Plan {
         }
         .or(t.rates.mfpt)
         .unwrap_or(1.0);
-        let max_time = s.max_time.unwrap_or(HORIZON_ESCAPE_TIMES / k_expect);
+        // the default horizon is capped at 1e15 steps (beyond any brute-force run; FFS and
+        // reactive flux ignore it), so barriers of hundreds of kT still give a usable plan
+        let max_time = s
+            .max_time
+            .unwrap_or((HORIZON_ESCAPE_TIMES / k_expect).min(1e15 * dt));
         // round, not ceil: max_time = n·dt must give n steps despite rounding in the division
         let max_steps_f = (max_time / dt).round();
         if !(1.0..1e18).contains(&max_steps_f) {
