@@ -425,6 +425,7 @@ const CASES: &[Case] = &[
         "no minimum inside the domain",
     ),
     case("rate", "pole.toml", "potential:", "not finite"),
+    case("survey", "nan_in_domain.toml", "potential:", "not finite"),
     // a pole between two scan points must be found as well
     case("rate", "pole_offgrid.toml", "potential:", "not finite"),
     // --- [simulation] ---
