@@ -14,6 +14,8 @@ fuzz_target!(|data: &[u8]| {
     }
     match Model::from_text(text, "fuzz.toml", std::path::Path::new("."), &[]) {
         Ok(_) => {}
-        Err(e) => assert!(e.to_string().contains("fuzz.toml") || e.to_string().starts_with("--set")),
+        Err(e) => {
+            assert!(e.to_string().contains("fuzz.toml") || e.to_string().starts_with("--set"))
+        }
     }
 });

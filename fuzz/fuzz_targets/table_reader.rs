@@ -1,7 +1,7 @@
 //! Any bytes as a profile table: an error or columns fit for a spline, never a panic.
 #![no_main]
-use escapade::potential::table::{Table, read_columns};
 use escapade::potential::Potential;
+use escapade::potential::table::{Table, read_columns};
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
