@@ -195,7 +195,7 @@ pub struct ScanReport {
 }
 
 /// Rate keys in report order.
-pub const RATE_KEYS: [&str; 7] = [
+pub const RATE_KEYS: [&str; 9] = [
     "tst",
     "tst_exact",
     "kramers",
@@ -203,6 +203,8 @@ pub const RATE_KEYS: [&str; 7] = [
     "energy_diffusion",
     "turnover",
     "mfpt",
+    "grote_hynes",
+    "well_to_well",
 ];
 
 /// The rate of `key` in `r`.
@@ -215,6 +217,8 @@ pub fn rate_of(r: &Rates, key: &str) -> Option<f64> {
         "energy_diffusion" => r.energy_diffusion,
         "turnover" => r.turnover,
         "mfpt" => r.mfpt,
+        "grote_hynes" => r.grote_hynes,
+        "well_to_well" => r.well_to_well,
         _ => None,
     }
 }

@@ -113,6 +113,8 @@ pub struct ParticleSection {
     pub diffusion: Option<f64>,
     /// position-dependent D(x)
     pub diffusion_expr: Option<String>,
+    /// memory time τ of an exponential friction kernel K(t) = (γ/τ) e^{−t/τ}, units.time
+    pub memory_time: Option<f64>,
 }
 
 /// `[potential]`
@@ -325,6 +327,8 @@ pub struct Model {
     pub target: Option<f64>,
     /// the `[simulation]` section, if any
     pub simulation: Option<SimulationSection>,
+    /// memory time of the friction kernel (units.time), if given
+    pub memory_time: Option<f64>,
 }
 
 impl Model {
@@ -506,6 +510,13 @@ impl Validator<'_> {
             .clone()
             .ok_or_else(|| self.err("potential", "the [potential] section is required"))?;
         let mass = self.positive("particle.mass", particle.mass)?;
+        let memory_time = self.positive("particle.memory_time", particle.memory_time)?;
+        if memory_time.is_some() && particle.friction.is_none() {
+            return Err(self.err(
+                "particle.memory_time",
+                "a memory kernel needs particle.friction (its strength) and particle.mass",
+            ));
+        }
         let friction = self.positive("particle.friction", particle.friction)?;
         let diffusion = self.positive("particle.diffusion", particle.diffusion)?;
         if friction.is_some() && diffusion.is_some() {
@@ -640,6 +651,7 @@ impl Validator<'_> {
             start,
             target,
             simulation: sf.simulation,
+            memory_time,
         })
     }
 

@@ -80,6 +80,8 @@ fn rate_json_follows_the_contract_on_every_example() {
             "energy_diffusion",
             "turnover",
             "mfpt",
+            "grote_hynes",
+            "well_to_well",
         ] {
             assert!(
                 v["rates"].get(k).is_some_and(is_num_or_null),
@@ -190,7 +192,7 @@ fn compare_json_follows_the_contract_and_agrees_on_every_example() {
         assert!(s["rate_ci95"].as_array().is_some_and(|a| a.len() == 2));
         assert!(s["dynamics"].is_string());
         let rows = v["comparison"].as_array().unwrap();
-        assert_eq!(rows.len(), 7, "{f}");
+        assert_eq!(rows.len(), 8, "{f}");
         for r in rows {
             for k in ["method", "valid"] {
                 assert!(r.get(k).is_some(), "{f}: comparison.{k}");

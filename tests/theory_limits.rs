@@ -81,3 +81,32 @@ fn mfpt_rate_approaches_smoluchowski() {
     assert!(t.mfpt.time.is_finite() && t.mfpt.ln_time > 190.0);
     assert!(t.rates.tst.unwrap() > 0.0 && t.rates.turnover.unwrap() > 0.0);
 }
+
+// Mel'nikov's well-to-well factor A(δ₁)A(δ₂)/A(δ₁+δ₂) (Mel'nikov, Phys. Rep. 209, 1 (1991)): in
+// a symmetric double well the transition rate equals the escape rate at high friction (A → 1) and
+// is half of it at weak friction (A(δ) ≈ δ, so δ²/(2δ) = δ/2, against A(δ) ≈ δ for the escape):
+// 1e-3 covers the O(sqrt(δ)) corrections at δ ~ 1e-6.
+#[test]
+fn well_to_well_against_escape_in_a_symmetric_well() {
+    let strong = run(&["particle.friction=1e4"]);
+    let r = strong.rates.well_to_well.unwrap() / strong.rates.turnover.unwrap();
+    assert!((r - 1.0).abs() < 1e-9, "{r}");
+    let weak = run(&["particle.friction=1e-7"]);
+    let r = weak.rates.well_to_well.unwrap() / weak.rates.turnover.unwrap();
+    assert!((r - 0.5).abs() < 1e-3, "{r}");
+}
+
+// Grote–Hynes (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)): a vanishing memory time gives
+// Kramers' rate; a memory much longer than 1/ω_b leaves the barrier crossing nearly frictionless,
+// so the rate approaches TST. Closed-form limits of the cubic; tolerances from the τ used.
+#[test]
+fn grote_hynes_limits_through_the_scenario() {
+    let short = run(&["particle.memory_time=1e-9"]);
+    let r = short.rates.grote_hynes.unwrap() / short.rates.kramers.unwrap();
+    assert!((r - 1.0).abs() < 1e-6, "{r}");
+    let long = run(&["particle.memory_time=1e6"]);
+    let r = long.rates.grote_hynes.unwrap() / long.rates.tst.unwrap();
+    assert!((r - 1.0).abs() < 1e-4, "{r}");
+    // no memory time: the key is there and null
+    assert!(run(&[]).rates.grote_hynes.is_none());
+}

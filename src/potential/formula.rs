@@ -178,6 +178,14 @@ fn call(f: Func, a: Node) -> Node {
 }
 
 impl Node {
+    fn size(&self) -> usize {
+        match self {
+            Num(_) | X => 1,
+            Neg(a) | PowI(a, _) | Call(_, a) => 1 + a.size(),
+            Add(a, b) | Sub(a, b) | Mul(a, b) | Div(a, b) | Pow(a, b) => 1 + a.size() + b.size(),
+        }
+    }
+
     fn eval(&self, x: f64) -> f64 {
         match self {
             Num(v) => *v,
@@ -270,7 +278,16 @@ struct Parser<'a> {
     toks: Vec<(Tok, usize)>,
     pos: usize,
     constants: &'a BTreeMap<String, f64>,
+    /// nesting depth of parentheses, calls and unary signs (bounded: the parser recurses)
+    depth: usize,
 }
+
+/// Longest formula accepted, in characters.
+pub const MAX_LEN: usize = 2000;
+/// Deepest nesting accepted (parentheses, calls, signs).
+pub const MAX_DEPTH: usize = 100;
+/// Largest derivative tree accepted: derivatives of long products grow quadratically.
+pub const MAX_NODES: usize = 200_000;
 
 fn err(position: usize, message: impl Into<String>) -> FormulaError {
     FormulaError {
@@ -381,7 +398,25 @@ impl Parser<'_> {
         }
     }
 
+    fn enter(&mut self) -> Result<(), FormulaError> {
+        self.depth += 1;
+        if self.depth > MAX_DEPTH {
+            return Err(err(
+                self.at(),
+                format!("formula nested more than {MAX_DEPTH} levels deep"),
+            ));
+        }
+        Ok(())
+    }
+
     fn unary(&mut self) -> Result<Node, FormulaError> {
+        self.enter()?;
+        let r = self.unary_inner();
+        self.depth -= 1;
+        r
+    }
+
+    fn unary_inner(&mut self) -> Result<Node, FormulaError> {
         match self.peek() {
             Tok::Op('-') => {
                 self.bump();
@@ -410,7 +445,9 @@ impl Parser<'_> {
         let node = match tok {
             Tok::Num(v) => Num(v),
             Tok::LParen => {
+                self.enter()?;
                 let inner = self.expr()?;
+                self.depth -= 1;
                 self.expect_close(at)?;
                 inner
             }
@@ -494,11 +531,19 @@ impl Formula {
                 ));
             }
         }
+        let len = src.chars().count();
+        if len > MAX_LEN {
+            return Err(err(
+                MAX_LEN + 1,
+                format!("formula longer than {MAX_LEN} characters ({len})"),
+            ));
+        }
         let toks = tokenize(src)?;
         let mut p = Parser {
             toks,
             pos: 0,
             constants,
+            depth: 0,
         };
         let f = p.expr()?;
         match p.peek() {
@@ -506,8 +551,22 @@ impl Formula {
             Tok::RParen => return Err(err(p.at(), "unmatched ')'")),
             _ => return Err(err(p.at(), "unexpected text after the end of the formula")),
         }
+        let too_big = |n: &Node| {
+            (n.size() > MAX_NODES).then(|| {
+                err(
+                    1,
+                    format!("formula too complex to differentiate (over {MAX_NODES} terms)"),
+                )
+            })
+        };
         let d1 = f.deriv();
+        if let Some(e) = too_big(&d1) {
+            return Err(e);
+        }
         let d2 = d1.deriv();
+        if let Some(e) = too_big(&d2) {
+            return Err(e);
+        }
         Ok(Self {
             source: src.to_string(),
             f,
@@ -603,6 +662,12 @@ mod tests {
         let e = Formula::parse("sin x", &BTreeMap::new()).unwrap_err();
         assert_eq!(e.position, 5);
         assert!(Formula::parse("", &BTreeMap::new()).is_err());
+        // bounded recursion and size (fuzzing guards)
+        let deep = format!("{}x{}", "(".repeat(150), ")".repeat(150));
+        assert!(Formula::parse(&deep, &BTreeMap::new()).is_err());
+        let long = vec!["x"; 900].join("*");
+        assert!(Formula::parse(&long, &BTreeMap::new()).is_err());
+        assert!(Formula::parse(&"x+".repeat(1200), &BTreeMap::new()).is_err());
         assert!(Formula::parse("x)", &BTreeMap::new()).is_err());
     }
 

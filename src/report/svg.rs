@@ -36,6 +36,8 @@ fn label(key: &str) -> &'static str {
         "energy_diffusion" => "energy diffusion",
         "turnover" => "Mel'nikov-Meshkov",
         "mfpt" => "1/MFPT (overdamped)",
+        "grote_hynes" => "Grote-Hynes",
+        "well_to_well" => "well-to-well",
         _ => "simulation",
     }
 }

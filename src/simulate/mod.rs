@@ -159,6 +159,12 @@ impl Plan {
     /// Underdamped dynamics without mass or friction, or a scheme that does not fit the dynamics.
     pub fn new(m: &Model, t: &TheoryReport) -> Result<Self, SimError> {
         let s = m.simulation.clone().unwrap_or_default();
+        if m.memory_time.is_some() {
+            return Err(key_err(
+                "particle.memory_time",
+                "simulation with memory friction is not available yet (the Grote-Hynes rate is in `rate`); drop memory_time to simulate memoryless friction",
+            ));
+        }
         let l = &t.landscape;
         let dynamics = match s.dynamics.as_deref() {
             Some("underdamped") => Dynamics::Underdamped,

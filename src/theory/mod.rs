@@ -52,6 +52,10 @@ pub struct Rates {
     pub turnover: Option<f64>,
     /// 1 / exact overdamped MFPT
     pub mfpt: Option<f64>,
+    /// Grote–Hynes rate for memory friction (with particle.memory_time)
+    pub grote_hynes: Option<f64>,
+    /// Mel'nikov's well-to-well transition rate of a double well (not an escape rate)
+    pub well_to_well: Option<f64>,
 }
 
 /// One rate with its standing in this regime.
@@ -124,13 +128,41 @@ fn between(l: &Landscape, a: f64, b: f64) -> Vec<f64> {
 pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
     let pot = &model.potential;
     let l = Landscape::analyse(pot, model.start, model.target, model.mass)?;
-    Ok(rates_for(
-        pot,
-        &model.diffusion,
-        model.mass,
-        model.friction,
-        l,
-    ))
+    let mut t = rates_for(pot, &model.diffusion, model.mass, model.friction, l);
+    if let Some(tau) = model.memory_time {
+        add_grote_hynes(&mut t, tau);
+    }
+    Ok(t)
+}
+
+/// Adds the Grote–Hynes rate k_GH = (λ_r/ω_b) k_TST for an exponential memory kernel of memory
+/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)).
+fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
+    let (Some(g), Some(wb), Some(tst)) = (t.friction, t.landscape.omega_barrier, t.rates.tst)
+    else {
+        return;
+    };
+    let k = kramers::lambda_grote_hynes(g, wb, tau) / wb * tst;
+    t.rates.grote_hynes = Some(k);
+    let high = t.landscape.barrier_height >= LOW_BARRIER_KT;
+    let row = RateRow {
+        key: "grote_hynes",
+        label: "Grote-Hynes (memory friction)",
+        rate: Some(k),
+        valid: high && t.regime.delta.is_none_or(|d| d >= DELTA_SPATIAL),
+        note: if high {
+            "memory friction, spatial-diffusion regime (delta >= 10)".into()
+        } else {
+            "barrier below 5 kT: asymptotic formula unreliable".into()
+        },
+    };
+    if row.valid {
+        t.regime.trusted.push("grote_hynes");
+    }
+    t.rows.push(row);
+    t.regime.warnings.push(format!(
+        "memory friction (tau = {tau:.4e}): the Grote-Hynes rate applies; Kramers, turnover and the MFPT assume memoryless friction"
+    ));
 }
 
 /// Computes the rates for an analysed landscape.
@@ -183,6 +215,15 @@ pub fn rates_for(
     ));
     let ln_ed = ln_tst.zip(delta).map(|(k, d)| k + d.ln());
     let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
+    // well-to-well (double wells with a product minimum): δ₂ from the product-side orbit
+    let delta2 = match (gamma, l.action_product) {
+        (Some(g), Some(i)) => Some(g * i).filter(|d| d.is_finite() && *d > 0.0),
+        _ => None,
+    };
+    let ln_ww = match (ln_kramers, delta, delta2) {
+        (Some(k), Some(d1), Some(d2)) => Some(k + turnover::ln_well_to_well(d1, d2)),
+        _ => None,
+    };
 
     let g_over_wb = gamma.zip(l.omega_barrier).map(|(g, w)| g / w);
     let name = regime::classify(g_over_wb, delta);
@@ -197,6 +238,8 @@ pub fn rates_for(
         energy_diffusion: exp(ln_ed),
         turnover: exp(ln_mm),
         mfpt: Some((-m.ln_time).exp()),
+        grote_hynes: None,
+        well_to_well: exp(ln_ww),
     };
     let low_note = "barrier below 5 kT: asymptotic formula unreliable";
     let pick = |ok: bool, good: &str, bad: &str| -> (bool, String) {
@@ -277,6 +320,18 @@ pub fn rates_for(
         valid: v && rates.turnover.is_some(),
         note: n,
     });
+    let (v, n) = pick(
+        true,
+        "transitions between the wells (Mel'nikov 1991), not the first escape",
+        "",
+    );
+    rows.push(RateRow {
+        key: "well_to_well",
+        label: "well-to-well (Mel'nikov)",
+        rate: rates.well_to_well,
+        valid: v && rates.well_to_well.is_some(),
+        note: n,
+    });
     rows.push(RateRow {
         key: "mfpt",
         label: "1/MFPT (exact overdamped)",
@@ -288,10 +343,13 @@ pub fn rates_for(
             "exact for the overdamped model only; inertia matters here".into()
         },
     });
+    let has_product = l.product.is_some();
     for r in rows.iter_mut().filter(|r| r.rate.is_none()) {
         r.valid = false;
         r.note = if mass.is_none() {
             "needs particle.mass".into()
+        } else if r.key == "well_to_well" && !has_product {
+            "no product well (a metastable well has only an escape rate)".into()
         } else {
             "needs a friction".into()
         };

@@ -39,6 +39,13 @@ pub fn ln_depopulation(delta: f64) -> f64 {
     sum / std::f64::consts::PI
 }
 
+/// ln of Mel'nikov's well-to-well factor A(δ₁)A(δ₂)/A(δ₁+δ₂) for a double well whose orbits at the
+/// barrier energy lose δ₁ and δ₂ (Mel'nikov, Phys. Rep. 209, 1 (1991)); it takes the escape rate
+/// A(δ₁)(λ₊/ω_b)k_TST to the rate of transitions between the wells.
+pub fn ln_well_to_well(delta1: f64, delta2: f64) -> f64 {
+    ln_depopulation(delta1) + ln_depopulation(delta2) - ln_depopulation(delta1 + delta2)
+}
+
 /// A(δ).
 pub fn depopulation(delta: f64) -> f64 {
     ln_depopulation(delta).exp()
