@@ -426,7 +426,12 @@ const CASES: &[Case] = &[
     ),
     case("rate", "pole.toml", "potential:", "not finite"),
     case("survey", "nan_in_domain.toml", "potential:", "not finite"),
-    case("rate", "unbounded_below.toml", "potential:", "unbounded below"),
+    case(
+        "rate",
+        "unbounded_below.toml",
+        "potential:",
+        "unbounded below",
+    ),
     // a pole between two scan points must be found as well
     case("rate", "pole_offgrid.toml", "potential:", "not finite"),
     // --- [simulation] ---
