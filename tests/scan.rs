@@ -16,6 +16,16 @@ fn example(name: &str) -> PathBuf {
         .join(name)
 }
 
+fn spec(key: &str, from: f64, to: f64, points: usize, log: bool) -> Spec {
+    Spec {
+        key: key.into(),
+        from,
+        to,
+        points,
+        log,
+    }
+}
+
 fn tmp(name: &str) -> PathBuf {
     std::env::temp_dir().join(format!("escapade-scan-{}-{name}", std::process::id()))
 }
@@ -165,13 +175,7 @@ fn scan_pictures_are_well_formed_with_labels_and_markers() {
 #[test]
 fn arrhenius_fit_recovers_an_exact_arrhenius_rate() {
     let f = example("isomerization_kjmol.toml");
-    let spec = Spec {
-        key: "units.temperature".into(),
-        from: 250.0,
-        to: 400.0,
-        points: 7,
-        log: false,
-    };
+    let spec = spec("units.temperature", 250.0, 400.0, 7, false);
     let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
     let fit = r.fits.iter().find(|x| x.rate == "tst").unwrap();
     let m = Model::load(&f, &[Override::parse("units.temperature=300").unwrap()]).unwrap();
@@ -220,13 +224,7 @@ fn arrhenius_fit_recovers_an_exact_arrhenius_rate() {
 #[test]
 fn friction_scan_turnover_maximum_is_where_theory_puts_it() {
     let f = example("double_well_reduced.toml");
-    let spec = Spec {
-        key: "particle.friction".into(),
-        from: 0.01,
-        to: 100.0,
-        points: 25,
-        log: true,
-    };
+    let spec = spec("particle.friction", 0.01, 100.0, 25, true);
     let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
     let ks: Vec<f64> = r.points.iter().map(|p| p.rates.turnover.unwrap()).collect();
     let i = (0..ks.len())
@@ -326,13 +324,7 @@ fn survey_survival_and_force_pictures_are_well_formed() {
 #[test]
 fn force_fit_gives_the_distance_to_the_barrier() {
     let f = example("hopping_washboard.toml");
-    let spec = Spec {
-        key: "potential.tilt".into(),
-        from: 0.0,
-        to: 2.0,
-        points: 5,
-        log: false,
-    };
+    let spec = spec("potential.tilt", 0.0, 2.0, 5, false);
     let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
     let fit = r.fits.iter().find(|x| x.rate == "mfpt").unwrap();
     assert!((fit.value / 0.5 - 1.0).abs() < 0.05, "x‡ = {}", fit.value);
