@@ -30,6 +30,25 @@ fn tmp(name: &str) -> PathBuf {
     std::env::temp_dir().join(format!("escapade-scan-{}-{name}", std::process::id()))
 }
 
+/// `escapade scan FILE --vary KEY --from A --to B --points N MORE…` with `range` = "KEY A B N".
+fn scan_cli(file: &Path, range: &str, more: &[&str]) -> Vec<u8> {
+    let r: Vec<&str> = range.split_whitespace().collect();
+    let mut args = vec![
+        "scan",
+        file.to_str().unwrap(),
+        "--vary",
+        r[0],
+        "--from",
+        r[1],
+        "--to",
+        r[2],
+        "--points",
+        r[3],
+    ];
+    args.extend_from_slice(more);
+    run(&args)
+}
+
 fn run(args: &[&str]) -> Vec<u8> {
     let out = Command::cargo_bin("escapade")
         .unwrap()
@@ -49,22 +68,11 @@ fn run(args: &[&str]) -> Vec<u8> {
 fn csv_values_equal_what_rate_prints() {
     let f = example("double_well_reduced.toml");
     let csv = tmp("rate.csv");
-    run(&[
-        "scan",
-        f.to_str().unwrap(),
-        "--vary",
-        "particle.friction",
-        "--from",
-        "0.05",
-        "--to",
-        "20",
-        "--points",
-        "4",
-        "--log",
-        "--csv",
-        csv.to_str().unwrap(),
-        "--quiet",
-    ]);
+    scan_cli(
+        &f,
+        "particle.friction 0.05 20 4",
+        &["--log", "--csv", csv.to_str().unwrap(), "--quiet"],
+    );
     let text = std::fs::read_to_string(&csv).unwrap();
     let mut lines = text.lines();
     let head: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -114,25 +122,19 @@ fn scan_pictures_are_well_formed_with_labels_and_markers() {
     let f = example("double_well_reduced.toml");
     let svg = tmp("fric.svg");
     // 3 simulated points: 3 markers plus one in the legend
-    run(&[
-        "scan",
-        f.to_str().unwrap(),
-        "--vary",
-        "particle.friction",
-        "--from",
-        "0.1",
-        "--to",
-        "10",
-        "--points",
-        "3",
-        "--log",
-        "--simulate",
-        "--set",
-        "simulation.trajectories=60",
-        "--plot",
-        svg.to_str().unwrap(),
-        "--quiet",
-    ]);
+    scan_cli(
+        &f,
+        "particle.friction 0.1 10 3",
+        &[
+            "--log",
+            "--simulate",
+            "--set",
+            "simulation.trajectories=60",
+            "--plot",
+            svg.to_str().unwrap(),
+            "--quiet",
+        ],
+    );
     svg_checks(
         &std::fs::read_to_string(&svg).unwrap(),
         &[
@@ -146,21 +148,11 @@ fn scan_pictures_are_well_formed_with_labels_and_markers() {
     );
     // Arrhenius plot: theory only, so no markers; the fit is in the legend
     let f = example("isomerization_kjmol.toml");
-    run(&[
-        "scan",
-        f.to_str().unwrap(),
-        "--vary",
-        "units.temperature",
-        "--from",
-        "280",
-        "--to",
-        "360",
-        "--points",
-        "5",
-        "--plot",
-        svg.to_str().unwrap(),
-        "--quiet",
-    ]);
+    scan_cli(
+        &f,
+        "units.temperature 280 360 5",
+        &["--plot", svg.to_str().unwrap(), "--quiet"],
+    );
     svg_checks(
         &std::fs::read_to_string(&svg).unwrap(),
         &["1000 / T (1/K)", "ln(k · ps)", "Ea ="],
@@ -294,21 +286,11 @@ fn survey_survival_and_force_pictures_are_well_formed() {
     );
     // force scan with the fitted distance in the legend
     let f = example("hopping_washboard.toml");
-    run(&[
-        "scan",
-        f.to_str().unwrap(),
-        "--vary",
-        "potential.tilt",
-        "--from",
-        "0",
-        "--to",
-        "2",
-        "--points",
-        "5",
-        "--plot",
-        svg.to_str().unwrap(),
-        "--quiet",
-    ]);
+    scan_cli(
+        &f,
+        "potential.tilt 0 2 5",
+        &["--plot", svg.to_str().unwrap(), "--quiet"],
+    );
     svg_checks(
         &std::fs::read_to_string(&svg).unwrap(),
         &["tilt force (kT/L)", "ln(k · τ)", "x‡ ="],
