@@ -20,6 +20,7 @@ pub mod scenario;
 pub mod simulate;
 pub mod stats;
 pub mod theory;
+pub mod uncertainty;
 pub mod units;
 
 /// The scenario `escapade demo` runs (an invented reduced-units double well).

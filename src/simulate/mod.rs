@@ -15,7 +15,9 @@ pub mod engine;
 pub mod ffs;
 pub mod flux;
 pub mod force;
+pub mod periodic;
 pub mod records;
+pub mod transitions;
 
 use crate::potential::{Diffusion, Potential};
 use crate::scenario::{AnyPotential, Model};

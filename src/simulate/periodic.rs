@@ -1,0 +1,1 @@
+//! Periodic simulation (placeholder; being written).

@@ -1,0 +1,1 @@
+//! Well-to-well transitions (placeholder; being written).

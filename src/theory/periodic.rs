@@ -1,0 +1,1 @@
+//! Periodic and tilted landscapes (placeholder; being written).

@@ -1,0 +1,1 @@
+//! Pollak–Grabert–Hänggi turnover rate (placeholder; being written).

@@ -1,0 +1,1 @@
+//! Profile uncertainty (placeholder; being written).
