@@ -185,6 +185,10 @@ pub struct SimulationSection {
     pub replicas: Option<u64>,
     /// reactive flux: the window for κ(t), in units.time
     pub flux_time: Option<f64>,
+    /// also count well-to-well transitions (double wells)
+    pub well_to_well: Option<bool>,
+    /// well-to-well transitions expected over the whole count (sets the trajectory length)
+    pub transitions: Option<u64>,
 }
 
 /// The file as written.
@@ -685,6 +689,9 @@ impl Validator<'_> {
         self.positive("simulation.budget_steps", s.budget_steps)?;
         if s.trajectories == Some(0) {
             return Err(self.err("simulation.trajectories", "must be at least 1"));
+        }
+        if s.transitions == Some(0) {
+            return Err(self.err("simulation.transitions", "must be at least 1"));
         }
         if s.trials == Some(0) {
             return Err(self.err("simulation.trials", "must be at least 1"));

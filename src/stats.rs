@@ -83,6 +83,24 @@ pub fn kolmogorov_q(lambda: f64) -> f64 {
     (2.0 * s).clamp(0.0, 1.0)
 }
 
+/// The 95% interval [χ²_{2n}(0.025), χ²_{2n+2}(0.975)] / (2 T) of a Poisson rate with `n` events
+/// in exposure `exposure` (Garwood's limits; see the module comment).
+pub fn poisson_interval(n: u64, exposure: f64) -> [f64; 2] {
+    let lo = if n == 0 {
+        0.0
+    } else {
+        ChiSquared::new(2.0 * n as f64)
+            .map(|c| c.inverse_cdf(0.025))
+            .unwrap_or(0.0)
+            / (2.0 * exposure)
+    };
+    let hi = ChiSquared::new(2.0 * n as f64 + 2.0)
+        .map(|c| c.inverse_cdf(0.975))
+        .unwrap_or(f64::INFINITY)
+        / (2.0 * exposure.max(f64::MIN_POSITIVE));
+    [lo, hi]
+}
+
 /// Summarises outcomes with time step `dt` and horizon `max_steps`.
 pub fn summarise(outcomes: &[Outcome], dt: f64, max_steps: u64) -> Summary {
     let n_all = outcomes.len() as u64;
@@ -100,18 +118,7 @@ pub fn summarise(outcomes: &[Outcome], dt: f64, max_steps: u64) -> Summary {
     } else {
         0.0
     };
-    let lo = if n == 0 {
-        0.0
-    } else {
-        ChiSquared::new(2.0 * n as f64)
-            .map(|c| c.inverse_cdf(0.025))
-            .unwrap_or(0.0)
-            / (2.0 * observed)
-    };
-    let hi = ChiSquared::new(2.0 * n as f64 + 2.0)
-        .map(|c| c.inverse_cdf(0.975))
-        .unwrap_or(f64::INFINITY)
-        / (2.0 * observed.max(f64::MIN_POSITIVE));
+    let [lo, hi] = poisson_interval(n, observed);
     let (mut mfpt, mut se, mut median, mut cv, mut ksd, mut ksp) =
         (None, None, None, None, None, None);
     if n > 0 {

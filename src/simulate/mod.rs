@@ -787,3 +787,69 @@ pub fn run_rare(
 
 /// Planned stage probability for user-given interfaces (unknown in advance).
 const STAGE_GUESS: f64 = 0.2;
+
+/// Runs the well-to-well transition count of [`transitions`] for a double well: the default
+/// trajectory length makes about `simulation.transitions` (default 400) transitions expected from
+/// the well-to-well theory rate (or the escape rate when that is missing). Returns the result and
+/// the wall time.
+///
+/// # Errors
+/// No product well, a run far beyond the step budget, or an interruption.
+pub fn run_transitions(
+    plan: &Plan,
+    m: &Model,
+    t: &TheoryReport,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<(transitions::TransitionResult, f64), SimError> {
+    let l = &t.landscape;
+    let n = transitions::DEFAULT_TRANSITION_TRAJECTORIES;
+    let k = t
+        .rates
+        .well_to_well
+        .filter(|_| plan.dynamics == Dynamics::Underdamped)
+        .or(match plan.dynamics {
+            Dynamics::Underdamped => t.rates.turnover.or(t.rates.kramers),
+            Dynamics::Overdamped => t.rates.mfpt,
+        })
+        .or(t.rates.mfpt)
+        .unwrap_or(1.0);
+    let wanted = plan
+        .section
+        .transitions
+        .map_or(transitions::DEFAULT_TRANSITIONS, |v| v as f64);
+    let steps_f = (wanted / (n as f64 * k) / plan.params.dt).ceil().max(1.0);
+    if steps_f * n as f64 > REFUSE_FACTOR * plan.budget_steps {
+        return Err(key_err(
+            "simulation.transitions",
+            format!(
+                "counting {wanted} well-to-well transitions needs about {:.2e} steps, more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower simulation.transitions or raise the budget",
+                steps_f * n as f64,
+                plan.budget_steps
+            ),
+        ));
+    }
+    let threads = if threads == 0 {
+        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
+    } else {
+        threads
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool");
+    let t0 = std::time::Instant::now();
+    let r = pool.install(|| {
+        with_force!(plan, |f, mb| transitions::run(
+            plan,
+            f,
+            mb,
+            &m.potential,
+            l,
+            n,
+            steps_f as u64,
+            stop
+        ))
+    })?;
+    Ok((r, t0.elapsed().as_secs_f64()))
+}
