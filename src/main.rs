@@ -305,6 +305,22 @@ fn simulate_cmd(
             Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
         }
     };
+    let mut out = out;
+    let mut interrupted = interrupted;
+    if !interrupted && plan.section.well_to_well == Some(true) {
+        if !common.quiet && !common.json {
+            eprintln!("counting well-to-well transitions in long trajectories");
+        }
+        match simulate::run_transitions(&plan, &m, &t, sim.threads, &STOP) {
+            Ok((w, wall)) => {
+                out.total_steps += w.total_steps;
+                out.wall_seconds += wall;
+                out.well_to_well = Some(w);
+            }
+            Err(simulate::SimError::Interrupted) => interrupted = true,
+            Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+        }
+    }
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
         let theory = RateReport::new(&m, &t);

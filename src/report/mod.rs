@@ -267,6 +267,8 @@ pub struct SimulationOut {
     pub ffs: Option<crate::simulate::ffs::FfsResult>,
     /// reactive-flux details
     pub reactive_flux: Option<crate::simulate::flux::FluxResult>,
+    /// well-to-well transitions counted in long trajectories (simulation.well_to_well = true)
+    pub well_to_well: Option<crate::simulate::transitions::TransitionResult>,
     /// warnings
     pub warnings: Vec<String>,
 }
@@ -305,6 +307,7 @@ impl SimulationOut {
             interrupted: false,
             ffs: None,
             reactive_flux: None,
+            well_to_well: None,
             warnings: plan.warnings.clone(),
         }
     }
@@ -400,6 +403,9 @@ pub struct ComparisonRow {
     pub label: &'static str,
     /// its rate
     pub rate: Option<f64>,
+    /// which simulated rate it is set against: "escape" (first passage to the target),
+    /// "well-to-well" (counted transitions) or "none" (a well-to-well rate with no transition count)
+    pub against: &'static str,
     /// theory / simulation
     pub ratio_to_simulation: Option<f64>,
     /// the ratio's 95% interval (from the simulation's)
@@ -435,28 +441,37 @@ pub fn compare_rows(
     sim: &SimulationOut,
     barrier_kt: f64,
 ) -> (Vec<ComparisonRow>, String) {
-    let [lo, hi] = sim.rate_ci95;
     let rows: Vec<ComparisonRow> = t
         .iter()
         .map(|r| {
-            let ratio = r.rate.filter(|_| sim.rate > 0.0).map(|k| k / sim.rate);
-            let ci = r
-                .rate
+            // a well-to-well rate is set against counted transitions, never against the escape
+            let (against, k_sim, [lo, hi]) = if r.key == "well_to_well" {
+                match &sim.well_to_well {
+                    Some(w) => ("well-to-well", w.rate, w.rate_ci95),
+                    None => ("none", 0.0, [0.0, f64::INFINITY]),
+                }
+            } else {
+                ("escape", sim.rate, sim.rate_ci95)
+            };
+            let rate = r.rate.filter(|_| against != "none");
+            let ratio = rate.filter(|_| k_sim > 0.0).map(|k| k / k_sim);
+            let ci = rate
                 .filter(|_| lo > 0.0 && hi.is_finite())
                 .map(|k| [k / hi, k / lo]);
             let band = accuracy_band(r.key, barrier_kt);
             // the ratio's interval [k/hi, k/lo] meets the allowed range
-            let consistent = r.rate.is_some_and(|k| {
+            let consistent = rate.is_some_and(|k| {
                 k > 0.0 && k / lo >= band.0 && band.1.is_none_or(|top| k / hi <= top)
             });
             ComparisonRow {
                 method: r.key,
                 label: r.label,
                 rate: r.rate,
+                against,
                 ratio_to_simulation: ratio,
                 ratio_ci95: ci,
                 valid: r.valid,
-                agrees: r.rate.is_some_and(|k| k >= lo && k <= hi),
+                agrees: rate.is_some_and(|k| k >= lo && k <= hi),
                 accuracy_band: band,
                 consistent,
             }

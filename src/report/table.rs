@@ -331,9 +331,29 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
             u.t
         );
     }
+    if let Some(w) = &s.well_to_well {
+        let _ = writeln!(
+            out,
+            "well-to-well (counted transitions, not the escape): {} trajectories × {} {}, {} forward and {} back; rate out of the reactant well {} /{} [{}, {}], out of the product well {} /{} [{}, {}]\n  states: {}",
+            w.trajectories,
+            num(w.time_per_trajectory),
+            u.t,
+            w.forward,
+            w.backward,
+            num(w.rate),
+            u.t,
+            num(w.rate_ci95[0]),
+            num(w.rate_ci95[1]),
+            num(w.rate_back),
+            u.t,
+            num(w.rate_back_ci95[0]),
+            num(w.rate_back_ci95[1]),
+            w.rule
+        );
+    }
     let _ = writeln!(
         out,
-        "rate {} /{} [{}, {}] (95%: {}){}",
+        "escape rate {} /{} [{}, {}] (95%: {}){}",
         num(s.rate),
         u.t,
         num(s.rate_ci95[0]),
@@ -367,9 +387,12 @@ pub fn compare(r: &super::CompareReport) -> String {
     out.push('\n');
     simulation(&mut out, &r.simulation, &u);
     let mut t = table();
+    // one more column than the other tables: give it room
+    t.set_width(140);
     t.set_header(vec![
         "method".to_string(),
         format!("rate (1/{})", u.t),
+        "set against".to_string(),
         "ratio to simulation".to_string(),
         "ratio 95% interval".to_string(),
         "holds here".to_string(),
@@ -378,18 +401,35 @@ pub fn compare(r: &super::CompareReport) -> String {
     ]);
     let s = &r.simulation;
     t.add_row(vec![
-        format!("simulation ({})", s.method),
+        format!("simulated escape ({})", s.method),
         num(s.rate),
+        "—".into(),
         "1".into(),
         "—".into(),
         "—".into(),
         "—".into(),
         "—".into(),
     ]);
+    if let Some(w) = &s.well_to_well {
+        t.add_row(vec![
+            "simulated well-to-well (transitions)".to_string(),
+            num(w.rate),
+            "—".into(),
+            "1".into(),
+            "—".into(),
+            "—".into(),
+            "—".into(),
+            "—".into(),
+        ]);
+    }
     for c in &r.comparison {
         t.add_row(vec![
             c.label.to_string(),
             opt(c.rate),
+            match c.against {
+                "none" => "— (not counted)".to_string(),
+                a => a.to_string(),
+            },
             opt(c.ratio_to_simulation),
             c.ratio_ci95
                 .map(|[a, b]| format!("[{}, {}]", num(a), num(b)))
