@@ -143,6 +143,20 @@ pub struct PotentialSection {
     pub period: Option<f64>,
     /// washboard: tilt force (energy per length)
     pub tilt: Option<f64>,
+    /// expr or table: the period L of a periodic (possibly tilted) profile, U(x + L) = U(x) − F L
+    pub periodic: Option<f64>,
+}
+
+/// `[uncertainty]`: how a table's sigma_U column is propagated into the rates
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct UncertaintySection {
+    /// correlation length of the profile noise (units.length; default: the table spacing)
+    pub correlation_length: Option<f64>,
+    /// number of perturbed profiles
+    pub draws: Option<u64>,
+    /// seed of the draws
+    pub seed: Option<u64>,
 }
 
 /// `[states]`
@@ -209,6 +223,8 @@ pub struct ScenarioFile {
     pub states: StatesSection,
     /// `[simulation]`
     pub simulation: Option<SimulationSection>,
+    /// `[uncertainty]`
+    pub uncertainty: Option<UncertaintySection>,
 }
 
 /// One `--set section.key=value`.
@@ -333,6 +349,12 @@ pub struct Model {
     pub simulation: Option<SimulationSection>,
     /// memory time of the friction kernel (units.time), if given
     pub memory_time: Option<f64>,
+    /// period of a periodic landscape (the washboard's period, or potential.periodic)
+    pub period: Option<f64>,
+    /// the `[uncertainty]` section (defaults when absent)
+    pub uncertainty: UncertaintySection,
+    /// true when an `[uncertainty]` section was given
+    pub uncertainty_given: bool,
 }
 
 impl Model {
@@ -588,6 +610,58 @@ impl Validator<'_> {
         }
         let (potential, label, table_d) = self.potential(&pot, &units, &constants)?;
         let (lo, hi) = potential.domain();
+        let period = match (
+            &potential,
+            self.positive("potential.periodic", pot.periodic)?,
+        ) {
+            (AnyPotential::Family(Family::Washboard { .. }), Some(_)) => {
+                return Err(self.err(
+                    "potential.periodic",
+                    "the washboard family is periodic already (potential.period): drop potential.periodic",
+                ));
+            }
+            (AnyPotential::Family(Family::Washboard { period, .. }), None) => Some(*period),
+            (AnyPotential::Family(_), Some(_)) => {
+                return Err(self.err(
+                    "potential.periodic",
+                    "applies to expr and table potentials (the washboard family is periodic by itself)",
+                ));
+            }
+            (_, Some(l)) => {
+                // one whole period must lie inside the domain (a relative 1e-9 covers rounding
+                // in a table's last x)
+                if l > (hi - lo) * (1.0 + 1e-9) {
+                    return Err(self.err(
+                        "potential.periodic",
+                        format!(
+                            "the period {l} is longer than the domain [{lo}, {hi}]: one whole period must be given"
+                        ),
+                    ));
+                }
+                Some(l)
+            }
+            (_, None) => None,
+        };
+        let uncertainty_given = sf.uncertainty.is_some();
+        let uncertainty = sf.uncertainty.clone().unwrap_or_default();
+        self.positive(
+            "uncertainty.correlation_length",
+            uncertainty.correlation_length.filter(|&c| c != 0.0),
+        )?;
+        if matches!(uncertainty.draws, Some(n) if n < 20) {
+            return Err(self.err(
+                "uncertainty.draws",
+                "must be at least 20 (percentile intervals need that many draws)",
+            ));
+        }
+        if uncertainty_given
+            && !matches!(&potential, AnyPotential::Table(t) if t.sigma_u().is_some())
+        {
+            return Err(self.err(
+                "uncertainty",
+                "needs a table potential with a sigma_U column (the profile's standard error)",
+            ));
+        }
 
         let diffusion_model = if let Some(src) = &particle.diffusion_expr {
             if diffusion.is_some() {
@@ -656,6 +730,9 @@ impl Validator<'_> {
             target,
             simulation: sf.simulation,
             memory_time,
+            period,
+            uncertainty,
+            uncertainty_given,
         })
     }
 
