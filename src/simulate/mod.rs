@@ -853,3 +853,73 @@ pub fn run_transitions(
     })?;
     Ok((r, t0.elapsed().as_secs_f64()))
 }
+
+/// Runs the long-trajectory measurements of [`periodic`] (drift, effective diffusion, hopping
+/// rates) for a periodic landscape with the minima `minima` of one period (reactant first) and
+/// period `period`. Block length: [`periodic::BLOCK_HOP_TIMES`] expected hopping times from
+/// `hop_total` (the theory's k₊ + k₋); `simulation.trajectories` (default 32) long trajectories.
+/// Returns the result and the wall time.
+///
+/// # Errors
+/// A run far beyond the step budget, or an interruption.
+#[allow(clippy::too_many_arguments)] // the run's full context
+pub fn run_periodic(
+    plan: &Plan,
+    minima: &[f64],
+    period: f64,
+    hop_total: f64,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<(periodic::PeriodicSimResult, f64), SimError> {
+    let n = plan
+        .section
+        .trajectories
+        .unwrap_or(periodic::DEFAULT_PERIODIC_TRAJECTORIES)
+        .max(2);
+    let blocks = periodic::DEFAULT_BLOCKS;
+    let block_steps = (periodic::BLOCK_HOP_TIMES / hop_total / plan.params.dt)
+        .ceil()
+        .max(1.0);
+    let total = block_steps * (blocks + 1) as f64 * n as f64;
+    if total > REFUSE_FACTOR * plan.budget_steps {
+        return Err(key_err(
+            "simulation.trajectories",
+            format!(
+                "measuring drift and diffusion needs about {total:.2e} steps ({n} trajectories × {} blocks of {block_steps:.3e} steps, a block being {} expected hopping times), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower the barrier, fewer trajectories or raise the budget",
+                blocks + 1,
+                periodic::BLOCK_HOP_TIMES,
+                plan.budget_steps
+            ),
+        ));
+    }
+    let threads = if threads == 0 {
+        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
+    } else {
+        threads
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool");
+    // fold into the first period of the domain, where the tabulated force is known
+    let x0 = plan.params.lo;
+    let t0 = std::time::Instant::now();
+    let r = pool.install(|| {
+        with_force!(plan, |f, mb| {
+            let fw = periodic::Wrapped::new(f, x0, period);
+            let mw = periodic::Wrapped::new(mb, x0, period);
+            periodic::run(
+                plan,
+                &fw,
+                &mw,
+                minima,
+                period,
+                n,
+                blocks,
+                block_steps as u64,
+                stop,
+            )
+        })
+    })?;
+    Ok((r, t0.elapsed().as_secs_f64()))
+}
