@@ -10,6 +10,7 @@ use escapade::simulate::force::{ConstD, Grid, GridForce};
 use escapade::simulate::{self, Plan, RunOptions, SimError, run_ensemble};
 use escapade::stats::{Outcome, summarise};
 use escapade::theory::{self, TheoryReport};
+use statrs::distribution::{ContinuousCDF, StudentsT};
 use std::path::Path;
 use std::sync::atomic::AtomicBool;
 
@@ -146,14 +147,14 @@ const UD: &str = "[particle]\nmass = 1.0\nfriction = 1.0\nmemory_time = 1.0\n[po
 // finite-barrier terms too: within 4 combined standard errors plus 2% for the difference between
 // an escape rate to the product minimum and the barrier-top flux (recrossing after the plateau and
 // the slide to the minimum, both of order 1/(ω t_escape) ≈ 1e-3 here, and the step-detection bias
-// of first passage, ~1% as for FFS in tests/rare_events.rs).
+// of first passage, ~1% as for FFS in tests/rare_events.rs). (3) Against forward flux sampling.
 #[test]
 fn brute_force_rate_matches_grote_hynes_at_6_kt() {
     let wb = 24f64.sqrt();
     let sets = [
         format!("particle.friction={}", 2.0 * wb),
         format!("particle.memory_time={}", 0.5 / wb),
-        "simulation.trajectories=4000".to_string(),
+        "simulation.trajectories=3000".to_string(),
     ];
     let (m, t) = model(UD, &sets);
     let (plan, out) = brute(&m, &t, 0);
@@ -183,6 +184,27 @@ fn brute_force_rate_matches_grote_hynes_at_6_kt() {
         (k - f.rate).abs() < 4.0 * (se * se + fse * fse).sqrt() + 0.02 * f.rate,
         "brute force {k} ± {se} vs reactive flux {} ± {fse}",
         f.rate
+    );
+    // (3) Forward flux sampling, whose stored states carry the memory force: within 4 combined
+    // standard errors plus its 1% time-step allowance (tests/rare_events.rs, FFS_DT_BIAS).
+    let mut ssets = sets.to_vec();
+    ssets[2] = "simulation.method=ffs".to_string();
+    ssets.push("simulation.trials=5000".to_string());
+    let (m, t) = model(UD, &ssets);
+    let splan = Plan::new(&m, &t).unwrap();
+    let (res, wall, threads) =
+        simulate::run_rare(&splan, &m, &t, 0, &AtomicBool::new(false)).unwrap();
+    let ffs = SimulationOut::rare(&splan, res, wall, threads);
+    let reps = ffs.ffs.as_ref().unwrap().replica_rates.len() as f64;
+    let tq = StudentsT::new(0.0, 1.0, reps - 1.0)
+        .unwrap()
+        .inverse_cdf(0.975);
+    let sse = 0.5 * (ffs.rate_ci95[1] - ffs.rate_ci95[0]) / tq;
+    println!("ffs {} ± {sse}", ffs.rate);
+    assert!(
+        (k - ffs.rate).abs() < 4.0 * (se * se + sse * sse).sqrt() + 0.01 * k,
+        "brute force {k} ± {se} vs FFS {} ± {sse}",
+        ffs.rate
     );
 }
 

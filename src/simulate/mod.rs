@@ -159,7 +159,8 @@ impl Plan {
     /// Builds the plan from a model and its theory (for the landscape, defaults and horizon).
     ///
     /// # Errors
-    /// Underdamped dynamics without mass or friction, or a scheme that does not fit the dynamics.
+    /// Underdamped dynamics without mass or friction, a scheme that does not fit the dynamics, or
+    /// memory friction with explicit overdamped dynamics.
     pub fn new(m: &Model, t: &TheoryReport) -> Result<Self, SimError> {
         let s = m.simulation.clone().unwrap_or_default();
         let memory = m.memory_time;
