@@ -53,6 +53,7 @@ fn params(kind: Kind, dt: f64, mass: f64, gamma: f64, lo: f64, hi: f64) -> Param
         hi,
         mass,
         gamma,
+        memory_time: 0.0,
         start: Start::At(0.0),
     }
 }

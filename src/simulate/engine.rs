@@ -5,6 +5,19 @@
 //! - BAOAB (Leimkuhler & Matthews, Appl. Math. Res. Express 2013, 34): B: v += dt F/(2m);
 //!   A: x += dt v/2; O: v = c1 v + sqrt((1 − c1²)/m) R, c1 = e^{−γ dt}; A; B. The O-step is exact, so
 //!   the scheme is stable from γ → 0 to γ ≫ ω. One force evaluation per step.
+//! - BAOAB with memory (generalised Langevin equation, exponential kernel K(t) = (γ/τ)e^{−t/τ},
+//!   by Markovian embedding, PHYSICS.md §5): x' = v; m v' = −U'(x) + z;
+//!   z' = −z/τ − (mγ/τ) v + (sqrt(2mγkT)/τ) η. The splitting is B A O A B as above, with O the exact
+//!   propagation of the linear (v, z) block over dt: (v, z) ← E (v, z) + L (R₁, R₂), E = e^{A dt},
+//!   A = [[0, 1/m], [−mγ/τ, −1/τ]], L Lᵀ = Σ = ∫₀^dt e^{As} Q e^{Aᵀs} ds = Σ_eq − E Σ_eq Eᵀ,
+//!   Q = diag(0, 2mγkT/τ²), Σ_eq = diag(kT/m, mγkT/τ). Σ_eq solves the Lyapunov equation
+//!   A Σ_eq + Σ_eq Aᵀ + Q = 0: the off-diagonal is (mγkT/τ)/m − (mγ/τ)(kT/m) = 0 and the zz entry
+//!   −2(mγkT/τ)/τ + 2mγkT/τ² = 0, so the stationary law is
+//!   exp(−[m v²/2 + U + τ z²/(2mγ)]/kT) and O keeps it exactly (fluctuation–dissipation by
+//!   construction). E and Σ are computed once per run by scaling and squaring (Taylor series on a
+//!   small step, then doubling Σ ← Σ + E Σ Eᵀ, E ← E²), which is exact to rounding for any τ: stiff
+//!   (τ ≪ dt), over- or under-damped (complex eigenvalues), and free of the cancellation in
+//!   Σ_eq − E Σ_eq Eᵀ when dt is small. As τ → 0 the O-step tends to BAOAB's.
 //! - Overdamped Leimkuhler–Matthews: x' = x + dt D F + sqrt(2D dt)(R_n + R_{n+1})/2 (+ dt D' for
 //!   D(x)); Euler–Maruyama: x' = x + dt (D F + D') + sqrt(2 D dt) R (Ermak & McCammon, J. Chem.
 //!   Phys. 69, 1352 (1978) for the Itô drift D').
@@ -49,10 +62,19 @@ pub fn stream(seed: u64, index: u64) -> Pcg64 {
 pub enum Kind {
     /// underdamped BAOAB
     Baoab,
+    /// underdamped BAOAB with exponential memory friction (GLE by Markovian embedding)
+    BaoabMemory,
     /// overdamped Leimkuhler–Matthews
     LeimkuhlerMatthews,
     /// overdamped Euler–Maruyama
     EulerMaruyama,
+}
+
+impl Kind {
+    /// Whether the integrator carries a velocity.
+    pub fn underdamped(self) -> bool {
+        matches!(self, Self::Baoab | Self::BaoabMemory)
+    }
 }
 
 /// Everything the loop needs, in internal units.
@@ -76,8 +98,10 @@ pub struct Params {
     pub hi: f64,
     /// mass (underdamped)
     pub mass: f64,
-    /// friction rate (underdamped)
+    /// friction rate (underdamped); with memory, the kernel's strength ∫K = γ
     pub gamma: f64,
+    /// memory time τ of the kernel K(t) = (γ/τ)e^{−t/τ} ([`Kind::BaoabMemory`] only; else unused)
+    pub memory_time: f64,
     /// start position, or a sampler table (x, cdf) for thermal starts
     pub start: Start,
 }
@@ -134,12 +158,98 @@ pub(crate) struct Consts {
     c2: f64,
     d0: f64,
     noise0: f64,
+    /// memory: the exact O-step (v, z) ← E (v, z) + L (R₁, R₂), L lower triangular
+    e: [[f64; 2]; 2],
+    l11: f64,
+    l21: f64,
+    l22: f64,
+    /// memory: the stationary standard deviation of z, sqrt(mγkT/τ)
+    z_sd: f64,
+}
+
+type M2 = [[f64; 2]; 2];
+
+fn mul(a: &M2, b: &M2) -> M2 {
+    [
+        [
+            a[0][0] * b[0][0] + a[0][1] * b[1][0],
+            a[0][0] * b[0][1] + a[0][1] * b[1][1],
+        ],
+        [
+            a[1][0] * b[0][0] + a[1][1] * b[1][0],
+            a[1][0] * b[0][1] + a[1][1] * b[1][1],
+        ],
+    ]
+}
+
+fn transpose(a: &M2) -> M2 {
+    [[a[0][0], a[1][0]], [a[0][1], a[1][1]]]
+}
+
+fn add(a: &M2, b: &M2) -> M2 {
+    [
+        [a[0][0] + b[0][0], a[0][1] + b[0][1]],
+        [a[1][0] + b[1][0], a[1][1] + b[1][1]],
+    ]
+}
+
+fn scale(a: &M2, c: f64) -> M2 {
+    [[c * a[0][0], c * a[0][1]], [c * a[1][0], c * a[1][1]]]
+}
+
+/// E = e^{A h} and Σ = ∫₀^h e^{As} Q e^{Aᵀs} ds for a 2×2 drift A and noise Q (Van Loan's pair),
+/// by scaling and squaring: h is halved until ‖A h'‖ ≤ 1/4, both are summed as Taylor series
+/// there (Σ(h') = Σₙ Tₙ h'^{n+1}/(n+1)!, T₀ = Q, Tₙ₊₁ = A Tₙ + Tₙ Aᵀ), then doubled back with
+/// Σ(2h) = Σ(h) + E(h) Σ(h) E(h)ᵀ and E(2h) = E(h)². Every doubling adds a positive semidefinite
+/// term, so Σ stays accurate even when it is tiny (small h) or saturates (h ≫ τ).
+pub(crate) fn ou_step(a: &M2, q: &M2, h: f64) -> (M2, M2) {
+    let norm = a
+        .iter()
+        .map(|r| r[0].abs() + r[1].abs())
+        .fold(0.0f64, f64::max);
+    let (mut hs, mut k) = (h, 0u32);
+    while norm * hs > 0.25 && k < 2000 {
+        hs *= 0.5;
+        k += 1;
+    }
+    let at = transpose(a);
+    let (mut e, mut sig) = ([[1.0, 0.0], [0.0, 1.0]], [[0.0; 2]; 2]);
+    let (mut pa, mut t) = ([[1.0, 0.0], [0.0, 1.0]], *q);
+    let mut fact_e = 1.0; // h^n / n!
+    let mut fact_s = hs; // h^{n+1} / (n+1)!
+    // ‖A h‖ ≤ 1/4 and 4^-24/24! is far below rounding
+    for n in 1..=24 {
+        pa = mul(a, &pa);
+        fact_e *= hs / f64::from(n);
+        e = add(&e, &scale(&pa, fact_e));
+        sig = add(&sig, &scale(&t, fact_s));
+        t = add(&mul(a, &t), &mul(&t, &at));
+        fact_s *= hs / f64::from(n + 1);
+    }
+    for _ in 0..k {
+        sig = add(&sig, &mul(&mul(&e, &sig), &transpose(&e)));
+        e = mul(&e, &e);
+    }
+    (e, sig)
 }
 
 impl Consts {
     pub(crate) fn new<M: Mobility>(p: &Params, mob: &M) -> Self {
         let dt = p.dt;
         let d0 = mob.d(0.0).0;
+        let (mut e, mut l11, mut l21, mut l22, mut z_sd) = ([[0.0; 2]; 2], 0.0, 0.0, 0.0, 0.0);
+        if p.kind == Kind::BaoabMemory {
+            let (m, g, tau) = (p.mass, p.gamma, p.memory_time);
+            let a = [[0.0, 1.0 / m], [-m * g / tau, -1.0 / tau]];
+            let q = [[0.0, 0.0], [0.0, 2.0 * m * g / (tau * tau)]];
+            let (ee, sig) = ou_step(&a, &q, dt);
+            e = ee;
+            // Cholesky of Σ, guarded against rounding just below zero
+            l11 = sig[0][0].max(0.0).sqrt();
+            l21 = if l11 > 0.0 { sig[1][0] / l11 } else { 0.0 };
+            l22 = (sig[1][1] - l21 * l21).max(0.0).sqrt();
+            z_sd = memory_force_sd(p);
+        }
         Self {
             hdt_m: 0.5 * dt / p.mass,
             c1: (-p.gamma * dt).exp(),
@@ -147,59 +257,81 @@ impl Consts {
             c2: (-(-2.0 * p.gamma * dt).exp_m1()).sqrt() / p.mass.sqrt(),
             d0,
             noise0: (2.0 * d0 * dt).sqrt(),
+            e,
+            l11,
+            l21,
+            l22,
+            z_sd,
         }
     }
 }
 
-/// One integrator step of one trajectory (x, v, the force at x, the previous Gaussian for
-/// Leimkuhler–Matthews), with reflection at the walls.
-#[allow(clippy::too_many_arguments)] // the lane state is passed as its parts to stay in registers
+/// One integrator step of one trajectory (its state: x, v, z, the force at x, the previous Gaussian
+/// for Leimkuhler–Matthews), with reflection at the walls.
 #[inline(always)]
 fn step<F: Force, M: Mobility>(
     p: &Params,
     c: &Consts,
     force: &F,
     mob: &M,
-    x: &mut f64,
-    v: &mut f64,
-    f: &mut f64,
-    r: &mut f64,
+    st: &mut State,
     rng: &mut Pcg64,
 ) {
     let dt = p.dt;
     match p.kind {
         Kind::Baoab => {
-            let mut vv = *v + c.hdt_m * *f;
-            *x += 0.5 * dt * vv;
+            let mut vv = st.v + c.hdt_m * st.f;
+            st.x += 0.5 * dt * vv;
             let rr: f64 = rng.sample(StandardNormal);
             vv = c.c1 * vv + c.c2 * rr;
-            *x += 0.5 * dt * vv;
-            reflect(x, &mut vv, p.lo, p.hi);
-            let ff = force.force(*x);
-            *v = vv + c.hdt_m * ff;
-            *f = ff;
+            st.x += 0.5 * dt * vv;
+            reflect(&mut st.x, &mut vv, p.lo, p.hi);
+            let ff = force.force(st.x);
+            st.v = vv + c.hdt_m * ff;
+            st.f = ff;
+        }
+        Kind::BaoabMemory => {
+            let mut vv = st.v + c.hdt_m * st.f;
+            st.x += 0.5 * dt * vv;
+            let r1: f64 = rng.sample(StandardNormal);
+            let r2: f64 = rng.sample(StandardNormal);
+            (vv, st.z) = o_memory(c, vv, st.z, r1, r2);
+            st.x += 0.5 * dt * vv;
+            reflect(&mut st.x, &mut vv, p.lo, p.hi);
+            let ff = force.force(st.x);
+            st.v = vv + c.hdt_m * ff;
+            st.f = ff;
         }
         Kind::LeimkuhlerMatthews | Kind::EulerMaruyama => {
             let rr: f64 = rng.sample(StandardNormal);
             let (d, dd, noise) = if M::CONSTANT {
                 (c.d0, 0.0, c.noise0)
             } else {
-                let (d, dd) = mob.d(*x);
+                let (d, dd) = mob.d(st.x);
                 (d, dd, (2.0 * d * dt).sqrt())
             };
             let kick = if p.kind == Kind::LeimkuhlerMatthews {
-                let k = 0.5 * (*r + rr);
-                *r = rr;
+                let k = 0.5 * (st.r + rr);
+                st.r = rr;
                 k
             } else {
                 rr
             };
-            *x += dt * (d * *f + dd) + noise * kick;
+            st.x += dt * (d * st.f + dd) + noise * kick;
             let mut vv = 0.0;
-            reflect(x, &mut vv, p.lo, p.hi);
-            *f = force.force(*x);
+            reflect(&mut st.x, &mut vv, p.lo, p.hi);
+            st.f = force.force(st.x);
         }
     }
+}
+
+/// The exact O-step of the memory integrator on one (v, z) pair.
+#[inline(always)]
+fn o_memory(c: &Consts, v: f64, z: f64, r1: f64, r2: f64) -> (f64, f64) {
+    (
+        c.e[0][0] * v + c.e[0][1] * z + c.l11 * r1,
+        c.e[1][0] * v + c.e[1][1] * z + c.l21 * r1 + c.l22 * r2,
+    )
 }
 
 /// One trajectory of `steps` steps with no absorbing target (for stationary and diffusion checks),
@@ -213,21 +345,47 @@ pub fn sample_path<F: Force, M: Mobility>(
     steps: u64,
     every: u64,
 ) -> Vec<(f64, f64)> {
+    sample_states(p, force, mob, index, x0, steps, every)
+        .into_iter()
+        .map(|s| (s.x, s.v))
+        .collect()
+}
+
+/// As [`sample_path`], returning the full state (with the memory force z) every `every` steps.
+pub fn sample_states<F: Force, M: Mobility>(
+    p: &Params,
+    force: &F,
+    mob: &M,
+    index: u64,
+    x0: f64,
+    steps: u64,
+    every: u64,
+) -> Vec<State> {
     let c = Consts::new(p, mob);
     let mut rng = stream(p.seed, index);
-    let mut x = x0;
-    let mut v = if p.kind == Kind::Baoab {
+    let v = if p.kind.underdamped() {
         rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
     } else {
         0.0
     };
-    let mut r: f64 = rng.sample(StandardNormal);
-    let mut f = force.force(x);
+    let z = if p.kind == Kind::BaoabMemory {
+        c.z_sd * rng.sample::<f64, _>(StandardNormal)
+    } else {
+        0.0
+    };
+    let r: f64 = rng.sample(StandardNormal);
+    let mut st = State {
+        x: x0,
+        v,
+        z,
+        f: force.force(x0),
+        r,
+    };
     let mut out = Vec::with_capacity((steps / every.max(1)) as usize);
     for s in 1..=steps {
-        step(p, &c, force, mob, &mut x, &mut v, &mut f, &mut r, &mut rng);
+        step(p, &c, force, mob, &mut st, &mut rng);
         if s % every.max(1) == 0 {
-            out.push((x, v));
+            out.push(st);
         }
     }
     out
@@ -250,6 +408,7 @@ pub fn run_chunk<F: Force, M: Mobility>(
 ) {
     match p.kind {
         Kind::Baoab => lanes::<F, M, BAOAB>(p, force, mob, indices, next, stop, done),
+        Kind::BaoabMemory => lanes::<F, M, GLE>(p, force, mob, indices, next, stop, done),
         Kind::LeimkuhlerMatthews => lanes::<F, M, LM>(p, force, mob, indices, next, stop, done),
         Kind::EulerMaruyama => lanes::<F, M, EM>(p, force, mob, indices, next, stop, done),
     }
@@ -258,9 +417,10 @@ pub fn run_chunk<F: Force, M: Mobility>(
 const BAOAB: u8 = 0;
 const LM: u8 = 1;
 const EM: u8 = 2;
+const GLE: u8 = 3;
 
 /// The lock-step loop for one integrator (a compile-time constant, so the step has no branch on
-/// it). Each block first draws [`BLOCK`] Gaussians per lane from the lane's own stream (independent
+/// it). Each block first draws [`BLOCK`] Gaussians per lane (two per step with memory) from the lane's own stream (independent
 /// streams interleave, hiding the generator's latency), then advances all lanes [`BLOCK`] steps,
 /// noting each lane's first crossing. A lane that crossed mid-block keeps integrating to the block
 /// end; those steps and their draws are discarded, so each trajectory still sees exactly its own
@@ -279,25 +439,35 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
     let mut v = [0.0f64; LANES];
     let mut f = [0.0f64; LANES];
     let mut r = [0.0f64; LANES];
+    // the memory force (GLE only; stays zero otherwise)
+    let mut zf = [0.0f64; LANES];
     let mut base = [0u64; LANES];
     let mut index = [0u64; LANES];
     let mut active = [false; LANES];
     let mut rng: [Pcg64; LANES] = std::array::from_fn(|_| stream(0, 0));
-    let mut z = [[0.0f64; LANES]; BLOCK];
+    // Gaussians per step: the memory O-step needs two
+    let draws: usize = if K == GLE { 2 } else { 1 };
+    let mut gauss = [[0.0f64; LANES]; 2 * BLOCK];
     let inv_sqrt_m = 1.0 / p.mass.sqrt();
     let start = |k: usize,
                  x: &mut [f64; LANES],
                  v: &mut [f64; LANES],
                  f: &mut [f64; LANES],
                  r: &mut [f64; LANES],
+                 zf: &mut [f64; LANES],
                  rng: &mut [Pcg64; LANES]|
      -> Option<u64> {
         let i = *indices.get(next.fetch_add(1, Ordering::Relaxed))?;
         let mut g = stream(p.seed, i);
         x[k] = p.start.draw(&mut g);
         f[k] = force.force(x[k]);
-        v[k] = if K == BAOAB {
+        v[k] = if K == BAOAB || K == GLE {
             inv_sqrt_m * g.sample::<f64, _>(StandardNormal)
+        } else {
+            0.0
+        };
+        zf[k] = if K == GLE {
+            c.z_sd * g.sample::<f64, _>(StandardNormal)
         } else {
             0.0
         };
@@ -310,7 +480,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
         Some(i)
     };
     for k in 0..LANES {
-        if let Some(i) = start(k, &mut x, &mut v, &mut f, &mut r, &mut rng) {
+        if let Some(i) = start(k, &mut x, &mut v, &mut f, &mut r, &mut zf, &mut rng) {
             index[k] = i;
             base[k] = 0;
             active[k] = true;
@@ -321,13 +491,14 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
         if stop.load(Ordering::Relaxed) {
             return;
         }
-        for zs in z.iter_mut() {
-            for (zk, g) in zs.iter_mut().zip(rng.iter_mut()) {
-                *zk = g.sample(StandardNormal);
+        for gs in gauss[..draws * BLOCK].iter_mut() {
+            for (gk, g) in gs.iter_mut().zip(rng.iter_mut()) {
+                *gk = g.sample(StandardNormal);
             }
         }
         let mut first = [u32::MAX; LANES];
-        for (s, zs) in z.iter().enumerate() {
+        for s in 0..BLOCK {
+            let zs = &gauss[draws * s];
             // Three passes over the lanes (move, force, check) put the lanes' independent force
             // evaluations next to each other, so their latencies overlap.
             for k in 0..LANES {
@@ -337,6 +508,13 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                     let mut vk = v[k] + c.hdt_m * f[k];
                     xk += 0.5 * dt * vk;
                     vk = c.c1 * vk + c.c2 * rr;
+                    xk += 0.5 * dt * vk;
+                    reflect(&mut xk, &mut vk, lo, hi);
+                    v[k] = vk;
+                } else if K == GLE {
+                    let mut vk = v[k] + c.hdt_m * f[k];
+                    xk += 0.5 * dt * vk;
+                    (vk, zf[k]) = o_memory(&c, vk, zf[k], rr, gauss[2 * s + 1][k]);
                     xk += 0.5 * dt * vk;
                     reflect(&mut xk, &mut vk, lo, hi);
                     v[k] = vk;
@@ -364,7 +542,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                 f[k] = force.force(x[k]);
             }
             for k in 0..LANES {
-                if K == BAOAB {
+                if K == BAOAB || K == GLE {
                     v[k] += c.hdt_m * f[k];
                 }
                 let hit = dir * (x[k] - target) >= 0.0;
@@ -394,7 +572,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                         steps,
                         escaped,
                     });
-                    match start(k, &mut x, &mut v, &mut f, &mut r, &mut rng) {
+                    match start(k, &mut x, &mut v, &mut f, &mut r, &mut zf, &mut rng) {
                         Some(i) => {
                             index[k] = i;
                             base[k] = 0;
@@ -407,14 +585,16 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
     }
 }
 
-/// The full state of one trajectory between steps: position, velocity, the force at the position
-/// and the previous Gaussian (Leimkuhler–Matthews). Rare-event methods store and restart from it.
+/// The full state of one trajectory between steps: position, velocity, the memory force, the force
+/// at the position and the previous Gaussian (Leimkuhler–Matthews). Rare-event methods store and restart from it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct State {
     /// position
     pub x: f64,
     /// velocity (underdamped)
     pub v: f64,
+    /// memory (auxiliary) force z of the GLE embedding ([`Kind::BaoabMemory`]; else 0)
+    pub z: f64,
     /// force at x
     pub f: f64,
     /// previous Gaussian (overdamped Leimkuhler–Matthews)
@@ -422,10 +602,16 @@ pub struct State {
 }
 
 impl State {
-    /// A fresh state at `x` with a Maxwell velocity (underdamped) and a first Gaussian.
+    /// A fresh state at `x` with a Maxwell velocity (underdamped), a memory force from its
+    /// stationary law N(0, mγkT/τ) (memory) and a first Gaussian (Leimkuhler–Matthews).
     pub fn fresh<F: Force>(p: &Params, force: &F, x: f64, rng: &mut Pcg64) -> Self {
-        let v = if p.kind == Kind::Baoab {
+        let v = if p.kind.underdamped() {
             rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
+        } else {
+            0.0
+        };
+        let z = if p.kind == Kind::BaoabMemory {
+            memory_force_sd(p) * rng.sample::<f64, _>(StandardNormal)
         } else {
             0.0
         };
@@ -437,10 +623,16 @@ impl State {
         Self {
             x,
             v,
+            z,
             f: force.force(x),
             r,
         }
     }
+}
+
+/// The stationary standard deviation of the memory force, sqrt(mγkT/τ) (kT = 1).
+pub fn memory_force_sd(p: &Params) -> f64 {
+    (p.mass * p.gamma / p.memory_time).sqrt()
 }
 
 /// One step of a stored state.
@@ -453,9 +645,7 @@ pub(crate) fn step_state<F: Force, M: Mobility>(
     s: &mut State,
     rng: &mut Pcg64,
 ) {
-    step(
-        p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
-    );
+    step(p, c, force, mob, s, rng);
 }
 
 /// How [`run_between`] ended.
@@ -510,12 +700,10 @@ pub(crate) fn run_between<F: Force, M: Mobility>(
     upper: f64,
     limit: u64,
 ) -> (Exit, u64) {
-    let overdamped = p.kind != Kind::Baoab;
+    let overdamped = !p.kind.underdamped();
     let mut prev = p.dir * s.x;
     for n in 1..=limit {
-        step(
-            p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
-        );
+        step(p, c, force, mob, s, rng);
         let lam = p.dir * s.x;
         if lam >= upper {
             return (Exit::Upper, n);
@@ -558,13 +746,11 @@ pub(crate) fn run_basin<F: Force, M: Mobility>(
     let mut out = Vec::with_capacity(wanted);
     let mut armed = true;
     let target = p.dir * p.target;
-    let overdamped = p.kind != Kind::Baoab;
+    let overdamped = !p.kind.underdamped();
     let mut prev = p.dir * s.x;
     let mut n = 0;
     while n < limit && out.len() < wanted {
-        step(
-            p, c, force, mob, &mut s.x, &mut s.v, &mut s.f, &mut s.r, rng,
-        );
+        step(p, c, force, mob, &mut s, rng);
         n += 1;
         let lam = p.dir * s.x;
         let s2 = if overdamped {
@@ -590,4 +776,77 @@ pub(crate) fn run_basin<F: Force, M: Mobility>(
         prev = p.dir * s.x;
     }
     (out, n)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn memory_consts(m: f64, g: f64, tau: f64, dt: f64) -> (M2, M2) {
+        let a = [[0.0, 1.0 / m], [-m * g / tau, -1.0 / tau]];
+        let q = [[0.0, 0.0], [0.0, 2.0 * m * g / (tau * tau)]];
+        ou_step(&a, &q, dt)
+    }
+
+    // E = e^{A dt} against the closed form for a 2×2 matrix,
+    // e^{M} = e^{s}[cosh(q) I + sinh(q)/q (M − s I)], s = tr M/2, q² = s² − det M (Cayley–Hamilton,
+    // common practice, no source), for real (over-damped) and imaginary (under-damped) q; and
+    // Σ against Σ_eq − E Σ_eq Eᵀ (PHYSICS.md §5), where the difference is well conditioned. Both
+    // to 1e-12 relative: rounding in a few dozen 2×2 products.
+    #[test]
+    fn memory_o_step_matches_closed_forms() {
+        for (m, g, tau, dt) in [
+            (1.0, 3.0, 0.2, 0.05),
+            (2.0, 0.5, 4.0, 0.3),
+            (1.5, 8.0, 1.0, 0.1),
+        ] {
+            let (e, sig) = memory_consts(m, g, tau, dt);
+            let mm = [[0.0, dt / m], [-m * g * dt / tau, -dt / tau]];
+            let s = 0.5 * (mm[0][0] + mm[1][1]);
+            let det = mm[0][0] * mm[1][1] - mm[0][1] * mm[1][0];
+            let q2 = s * s - det;
+            let (ch, sh) = if q2 >= 0.0 {
+                let q = q2.sqrt();
+                (q.cosh(), q.sinh() / q)
+            } else {
+                let q = (-q2).sqrt();
+                (q.cos(), q.sin() / q)
+            };
+            for i in 0..2 {
+                for j in 0..2 {
+                    let id = if i == j { 1.0 } else { 0.0 };
+                    let want = s.exp() * (ch * id + sh * (mm[i][j] - s * id));
+                    assert!(
+                        (e[i][j] - want).abs() < 1e-12 * want.abs().max(1.0),
+                        "E {e:?}"
+                    );
+                }
+            }
+            let eq = [[1.0 / m, 0.0], [0.0, m * g / tau]];
+            let want = add(&eq, &scale(&mul(&mul(&e, &eq), &transpose(&e)), -1.0));
+            for i in 0..2 {
+                for j in 0..2 {
+                    let tol = 1e-12 * (eq[0][0] * eq[1][1]).sqrt().max(eq[i][i]);
+                    assert!((sig[i][j] - want[i][j]).abs() < tol, "{sig:?} vs {want:?}");
+                }
+            }
+        }
+    }
+
+    // τ → 0 (τ = 1e-7 dt, very stiff): the (v, z) block tends to the memoryless Ornstein–Uhlenbeck
+    // step, v ← e^{−γ dt} v + sqrt((1 − e^{−2γ dt})/m) R, and z to its stationary law; the
+    // corrections are O(τ/dt) = 1e-7, the tolerance 1e-6. A long step (dt = 1e4 τ, slow memory
+    // relaxed) gives E → 0 and Σ → Σ_eq.
+    #[test]
+    fn memory_o_step_limits() {
+        let (m, g, dt) = (1.3, 2.0, 0.01);
+        let (e, sig) = memory_consts(m, g, 1e-7 * dt, dt);
+        assert!((e[0][0] / (-g * dt).exp() - 1.0).abs() < 1e-6, "{e:?}");
+        let var = -(-2.0 * g * dt).exp_m1() / m;
+        assert!((sig[0][0] / var - 1.0).abs() < 1e-6, "{sig:?}");
+        let (e, sig) = memory_consts(1.0, 1.0, 1.0, 1e4);
+        assert!(e.iter().flatten().all(|x| x.abs() < 1e-12), "{e:?}");
+        assert!((sig[0][0] - 1.0).abs() < 1e-12 && (sig[1][1] - 1.0).abs() < 1e-12);
+        assert!(sig[0][1].abs() < 1e-12);
+    }
 }

@@ -6,6 +6,11 @@
 //! flux-weighted (Rayleigh) law, κ(t) = ⟨θ⟩_{v₀>0} − ⟨θ⟩_{v₀<0} (half the trajectories each way),
 //! which has lower variance than weighting Maxwell draws by v₀.
 //!
+//! With memory friction (generalised Langevin equation, PHYSICS.md §5) the start also draws the
+//! memory force z from its stationary law N(0, mγkT/τ), independent of x and v, so the TST rate
+//! (which depends on the x–v marginal only) is unchanged and κ is to be compared with Grote–Hynes'
+//! λ_r/ω_b (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)).
+//!
 //! Plateau: κ(t) is sampled on a uniform grid up to t_max; its plateau value is the mean over the
 //! last fifth, and the plateau is reached at the first time after which κ stays within three
 //! standard errors of that value. Reported as reached when that happens before 60% of t_max.
@@ -15,6 +20,7 @@ use super::force::{Force, Mobility};
 use super::{Plan, SimError};
 use crate::landscape::Landscape;
 use rand::RngExt;
+use rand_distr::StandardNormal;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -59,6 +65,15 @@ pub fn default_window(l: &Landscape, gamma: f64) -> f64 {
     (20.0 / lp).max(5.0 * period)
 }
 
+/// The default window with exponential memory of time τ: 20 reactive times 1/λ_r (Grote–Hynes),
+/// at least 5 well periods, and at least 20 τ so the bath forgets the start.
+pub fn default_window_memory(l: &Landscape, gamma: f64, tau: f64) -> f64 {
+    let wb = l.omega_barrier.unwrap_or(1.0);
+    let lr = crate::theory::kramers::lambda_grote_hynes(gamma, wb, tau);
+    let period = 2.0 * std::f64::consts::PI / l.omega_reactant.unwrap_or(wb);
+    (20.0 / lr).max(5.0 * period).max(20.0 * tau)
+}
+
 /// Runs the reactive-flux estimate with `n` trajectories over the window `t_max`.
 #[allow(clippy::too_many_arguments)] // the run's full context
 pub fn run<F: Force, M: Mobility>(
@@ -89,9 +104,15 @@ pub fn run<F: Force, M: Mobility>(
             // Rayleigh speed for kT = 1: |v| = sqrt(-2 ln(1-u) / m)
             let speed = (-2.0 * (-u).ln_1p() / p.mass).sqrt();
             let v = if forward { speed } else { -speed } * p.dir;
+            let z = if p.kind == engine::Kind::BaoabMemory {
+                engine::memory_force_sd(p) * rng.sample::<f64, _>(StandardNormal)
+            } else {
+                0.0
+            };
             let mut s = State {
                 x: l.barrier,
                 v,
+                z,
                 f: force.force(l.barrier),
                 r: 0.0,
             };

@@ -2,7 +2,8 @@
 //! with censoring at a horizon, seeded per trajectory so results depend on the seed alone.
 //!
 //! - [`Plan`]: the validated run in internal units — dynamics (default: underdamped when a mass and
-//!   a friction are known and γ/ω_b < 5, else overdamped), integrator, time step (default: 1% of the
+//!   a friction are known and γ/ω_b < 5, or with memory friction; else overdamped), integrator
+//!   (BAOAB, its memory variant for the generalised Langevin equation, or an overdamped scheme), time step (default: 1% of the
 //!   shortest period 2π/ω and at most 0.2/γ, or 2% of the shortest overdamped relaxation time
 //!   kT/(D|U''|), at the reactant well and the barrier), horizon (default 20 expected escape times, so censoring
 //!   costs e^{-20} of the rate), trajectories, seed, start.
@@ -158,19 +159,23 @@ impl Plan {
     /// Builds the plan from a model and its theory (for the landscape, defaults and horizon).
     ///
     /// # Errors
-    /// Underdamped dynamics without mass or friction, or a scheme that does not fit the dynamics.
+    /// Underdamped dynamics without mass or friction, a scheme that does not fit the dynamics, or
+    /// memory friction with explicit overdamped dynamics.
     pub fn new(m: &Model, t: &TheoryReport) -> Result<Self, SimError> {
         let s = m.simulation.clone().unwrap_or_default();
-        if m.memory_time.is_some() {
-            return Err(key_err(
-                "particle.memory_time",
-                "simulation with memory friction is not available yet (the Grote-Hynes rate is in `rate`); drop memory_time to simulate memoryless friction",
-            ));
-        }
+        let memory = m.memory_time;
         let l = &t.landscape;
         let dynamics = match s.dynamics.as_deref() {
             Some("underdamped") => Dynamics::Underdamped,
+            // the generalised Langevin equation is inertial: its embedding has no overdamped form
+            Some(_) if memory.is_some() => {
+                return Err(key_err(
+                    "simulation.dynamics",
+                    "memory friction (particle.memory_time) needs underdamped dynamics: drop dynamics = \"overdamped\" or memory_time",
+                ));
+            }
             Some(_) => Dynamics::Overdamped,
+            None if memory.is_some() => Dynamics::Underdamped,
             // inertia matters below γ/ω_b = 5; above, the overdamped limit holds (to 4%) and is
             // far cheaper to integrate correctly
             None if m.mass.is_some()
@@ -184,6 +189,15 @@ impl Plan {
             None => Dynamics::Overdamped,
         };
         let (kind, scheme) = match (dynamics, s.scheme.as_deref()) {
+            (Dynamics::Underdamped, None | Some("baoab" | "baoab-memory")) if memory.is_some() => {
+                (Kind::BaoabMemory, "baoab-memory")
+            }
+            (Dynamics::Underdamped, Some("baoab-memory")) => {
+                return Err(key_err(
+                    "simulation.scheme",
+                    "\"baoab-memory\" needs particle.memory_time; memoryless friction uses \"baoab\"",
+                ));
+            }
             (Dynamics::Underdamped, None | Some("baoab")) => (Kind::Baoab, "baoab"),
             (Dynamics::Underdamped, Some(other)) => {
                 return Err(key_err(
@@ -225,7 +239,9 @@ impl Plan {
             Dynamics::Underdamped => {
                 let w = (l.curvature_reactant.max(l.curvature_barrier) / mass).sqrt();
                 // and γ dt ≤ 0.2: with γ dt ≫ 1 BAOAB still samples the right distribution but its
-                // diffusion in x no longer follows D = kT/(mγ), so rates would be wrong
+                // diffusion in x no longer follows D = kT/(mγ), so rates would be wrong. With
+                // memory the same bound holds (the τ → 0 limit is BAOAB) and none is needed on τ:
+                // the O-step propagates the stiff (v, z) block exactly for any τ/dt
                 (DT_PERIOD_FRACTION * 2.0 * std::f64::consts::PI / w).min(DT_FRICTION / gamma)
             }
             Dynamics::Overdamped => {
@@ -243,6 +259,9 @@ impl Plan {
         }
         // expected escape rate: the trusted theory for these dynamics
         let k_expect = match dynamics {
+            Dynamics::Underdamped if memory.is_some() => {
+                t.rates.grote_hynes.or(t.rates.turnover).or(t.rates.kramers)
+            }
             Dynamics::Underdamped => t.rates.turnover.or(t.rates.kramers),
             Dynamics::Overdamped => t.rates.mfpt,
         }
@@ -288,6 +307,7 @@ impl Plan {
             hi,
             mass,
             gamma,
+            memory_time: memory.unwrap_or(0.0),
             start,
         };
         let trajectories = s.trajectories.unwrap_or(DEFAULT_TRAJECTORIES);
@@ -377,7 +397,8 @@ fn thermal_table(pot: &AnyPotential, wall: f64, barrier: f64) -> Vec<(f64, f64)>
 }
 
 /// A fingerprint of everything that determines the outcomes: U' and D sampled across the domain,
-/// the loop parameters, the ensemble size and seed.
+/// the loop parameters (with the memory time, so records of another τ are refused), the ensemble
+/// size and seed. Memoryless runs keep the fingerprint they had before memory existed.
 fn fingerprint(m: &Model, p: &Params, n: u64) -> u64 {
     let (lo, hi) = (p.lo, p.hi);
     let mut s = format!(
@@ -394,6 +415,9 @@ fn fingerprint(m: &Model, p: &Params, n: u64) -> u64 {
         p.gamma,
         matches!(p.start, Start::Thermal(_))
     );
+    if p.kind == Kind::BaoabMemory {
+        s.push_str(&format!("tau={:?}|", p.memory_time));
+    }
     for i in 0..=64 {
         let x = lo + (hi - lo) * f64::from(i) / 64.0;
         s.push_str(&format!(
@@ -770,10 +794,13 @@ pub fn run_rare(
                 .section
                 .trajectories
                 .unwrap_or(DEFAULT_FLUX_TRAJECTORIES);
-            let window = plan
-                .section
-                .flux_time
-                .unwrap_or_else(|| flux::default_window(l, plan.params.gamma));
+            let window = plan.section.flux_time.unwrap_or_else(|| {
+                if plan.params.kind == Kind::BaoabMemory {
+                    flux::default_window_memory(l, plan.params.gamma, plan.params.memory_time)
+                } else {
+                    flux::default_window(l, plan.params.gamma)
+                }
+            });
             with_force!(plan, |f, mb| flux::run(plan, f, mb, l, tst, n, window, stop))
                 .map(RareResult::Flux)
         }
