@@ -753,7 +753,12 @@ impl Validator<'_> {
         one_of(
             "simulation.scheme",
             &s.scheme,
-            &["baoab", "leimkuhler-matthews", "euler-maruyama"],
+            &[
+                "baoab",
+                "baoab-memory",
+                "leimkuhler-matthews",
+                "euler-maruyama",
+            ],
         )?;
         one_of("simulation.start", &s.start, &["minimum", "thermal"])?;
         one_of(

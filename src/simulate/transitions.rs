@@ -165,7 +165,7 @@ pub fn run<F: Force, M: Mobility>(
         }
     };
     let c = Consts::new(p, mob);
-    let half_m = if p.kind == engine::Kind::Baoab {
+    let half_m = if p.kind.underdamped() {
         0.5 * p.mass
     } else {
         0.0
