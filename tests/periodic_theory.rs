@@ -335,8 +335,12 @@ fn non_periodic_profile_is_an_error() {
     let e = analyse(&p, &Diffusion::Constant(1.0), 0.0, 1.0, 0.0, None, None).unwrap_err();
     assert!(matches!(e, PeriodicError::NotPeriodic { .. }), "{e}");
     assert_eq!(e.key(), "potential");
-    let e = analyse(&p, &Diffusion::Constant(-1.0), 0.0, 1.0, 0.0, None, None);
-    assert!(e.is_err());
+    let w = washboard(1.0, 0.5, 1.0);
+    let e = analyse(&w, &Diffusion::Constant(-1.0), 0.0, 1.0, 0.0, None, None).unwrap_err();
+    assert_eq!(e.key(), "particle.diffusion");
+    let d = Diffusion::Formula(formula("sin(2*pi*x)"));
+    let e = analyse(&w, &d, 0.0, 1.0, 0.0, None, None).unwrap_err();
+    assert_eq!(e.key(), "particle.diffusion_expr");
 }
 
 // Past the critical tilt F_c = 2πA/L there are no wells: drift and D_eff exist, hopping does not.
@@ -347,4 +351,55 @@ fn running_state_has_no_hops() {
     assert!(!t.warnings.is_empty());
     // between the free value D F = 8 and 0 (common practice, no source: the landscape slows it)
     assert!(t.drift > 0.0 && t.drift < 8.0);
+}
+
+// Two wells per period: the neighbours are the other well, not x_a ± L; the rates still obey
+// k_+/k_− = π_+/(1 − π_+) (their definition), and the well-to-well ratio is no longer e^{FL}.
+#[test]
+fn two_wells_per_period_are_flagged() {
+    let p = FormulaPotential::new(
+        formula("3*cos(4*pi*x) + cos(2*pi*x) - 0.5*x"),
+        1.0,
+        (-3.0, 3.0),
+    );
+    let t = analyse(&p, &Diffusion::Constant(1.0), 0.0, 1.0, 0.25, None, None).unwrap();
+    let h = t.hopping.unwrap();
+    println!(
+        "two wells: x_a {} x_+ {} x_- {}",
+        h.reactant, h.forward_minimum, h.backward_minimum
+    );
+    assert!(!h.one_well_per_period);
+    assert!(h.forward_minimum - h.reactant < 0.9 && h.reactant - h.backward_minimum < 0.9);
+    let s = h.splitting_forward;
+    // definition of the rates: rounding only
+    assert!(rel(h.forward / h.backward, s / (1.0 - s)) < 1e-12);
+}
+
+// A spline table of one period of the washboard (201 rows) against the mpmath drift and D_eff
+// of the closed form: the not-a-knot spline's error h⁴ U''''/384 with h = 0.005, U'''' = A (2π)⁴
+// is ~5e-9 in U, so 1e-7 relative in the integrals.
+#[test]
+fn table_profile_reproduces_the_washboard() {
+    let v = values();
+    let case = &v["drift"][0];
+    let r = &v["reimann"][0];
+    let (a, tilt) = (f(case, "A"), f(case, "F"));
+    let w = washboard(a, tilt, 1.0);
+    let n = 201;
+    let xs: Vec<f64> = (0..n).map(|i| i as f64 / (n - 1) as f64).collect();
+    let cols = Columns {
+        u: xs.iter().map(|&x| w.u(x)).collect(),
+        x: xs,
+        sigma_u: None,
+        d: None,
+    };
+    let table = Table::new(&cols, 1.0);
+    let t = run(&table, &Diffusion::Constant(1.0), 1.0);
+    println!(
+        "table: drift rel {:.1e}, D_eff rel {:.1e}",
+        t.drift / f(case, "v") - 1.0,
+        t.effective_diffusion.unwrap() / f(r, "D_eff") - 1.0
+    );
+    assert!(rel(t.drift, f(case, "v")) < 1e-7);
+    assert!(rel(t.effective_diffusion.unwrap(), f(r, "D_eff")) < 1e-7);
 }

@@ -7,8 +7,9 @@
 //!
 //! - [`Periodic`]: x = x0 + nL + r, 0 ≤ r < L → U(x) = U_in(x0 + r) − F n L, with the tilt
 //!   F = −(U_in(x0 + L) − U_in(x0))/L read off the profile.
-//! - Drift (Stratonovich 1958; Risken, The Fokker–Planck Equation, 2nd ed. (Springer 1989),
-//!   Sec. 11.3): with stationary flux J and periodic density p,
+//! - Drift (R. L. Stratonovich 1958; Risken, The Fokker–Planck Equation, 2nd ed. (Springer 1989),
+//!   ch. 11, the overdamped case; equation number not checked): with stationary flux J and
+//!   periodic density p,
 //!   v = J L = L (1 − e^{−FL}) / ∫_0^L dx ∫_0^L dy e^{U(x+y) − U(x)} / D(x+y).
 //!   Derivation with D(x) (Itô drift D U' − D', stationary law e^{−U}): J = −D e^{−U} (e^{U} p)';
 //!   integrating (e^{U} p)' = −J e^{U}/D over one period and using p(x+L) = p(x),
@@ -129,6 +130,8 @@ pub enum PeriodicError {
         x: f64,
         /// the value
         value: f64,
+        /// whether D is a constant (particle.diffusion) rather than a function of x
+        constant: bool,
     },
     /// The stationary-point search failed.
     #[error(transparent)]
@@ -142,6 +145,7 @@ impl PeriodicError {
             Self::BadPeriod { .. } => "potential.period",
             Self::OutsideDomain { .. } | Self::BadWindow { .. } => "potential.domain",
             Self::NotFinite { .. } | Self::NotPeriodic { .. } => "potential",
+            Self::BadDiffusion { constant: true, .. } => "particle.diffusion",
             Self::BadDiffusion { .. } => "particle.diffusion_expr",
             Self::Landscape(e) => e.key(),
         }
@@ -645,7 +649,11 @@ pub fn analyse(
         let x = x0 + l * i as f64 / CHECK_SAMPLES as f64;
         let value = diffusion.value(x);
         if !(value.is_finite() && value > 0.0) {
-            return Err(PeriodicError::BadDiffusion { x, value });
+            return Err(PeriodicError::BadDiffusion {
+                x,
+                value,
+                constant: diffusion.constant().is_some(),
+            });
         }
     }
     let mut warnings = Vec::new();
