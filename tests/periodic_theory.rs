@@ -46,6 +46,19 @@ fn run(pot: &dyn Potential, d: &Diffusion, period: f64) -> PeriodicTheory {
     analyse(pot, d, 0.0, period, 0.0, None, None).unwrap()
 }
 
+/// A 201-row spline table of `pot` on [0, 1] (knots every 0.005).
+fn table_of(pot: &dyn Potential) -> Table {
+    let n = 201;
+    let xs: Vec<f64> = (0..n).map(|i| f64::from(i) / f64::from(n - 1)).collect();
+    let cols = Columns {
+        u: xs.iter().map(|&x| pot.u(x)).collect(),
+        x: xs,
+        sigma_u: None,
+        d: None,
+    };
+    Table::new(&cols, 1.0)
+}
+
 fn rel(a: f64, b: f64) -> f64 {
     (a / b - 1.0).abs()
 }
@@ -278,15 +291,7 @@ fn wrapper_is_continuous_and_differentiable() {
         1.0,
         (0.0, 1.0),
     );
-    let n = 201;
-    let xs: Vec<f64> = (0..n).map(|i| i as f64 / (n - 1) as f64).collect();
-    let cols = Columns {
-        u: xs.iter().map(|&x| form.u(x)).collect(),
-        x: xs,
-        sigma_u: None,
-        d: None,
-    };
-    let table = Table::new(&cols, 1.0);
+    let table = table_of(&form);
     check_wrapper(Periodic::new(fam, 0.2, 1.5).unwrap(), 0.7);
     check_wrapper(Periodic::new(form, 0.0, 1.0).unwrap(), 0.3);
     check_wrapper(Periodic::new(table, 0.0, 1.0).unwrap(), 0.3);
@@ -385,15 +390,7 @@ fn table_profile_reproduces_the_washboard() {
     let r = &v["reimann"][0];
     let (a, tilt) = (f(case, "A"), f(case, "F"));
     let w = washboard(a, tilt, 1.0);
-    let n = 201;
-    let xs: Vec<f64> = (0..n).map(|i| i as f64 / (n - 1) as f64).collect();
-    let cols = Columns {
-        u: xs.iter().map(|&x| w.u(x)).collect(),
-        x: xs,
-        sigma_u: None,
-        d: None,
-    };
-    let table = Table::new(&cols, 1.0);
+    let table = table_of(&w);
     let t = run(&table, &Diffusion::Constant(1.0), 1.0);
     println!(
         "table: drift rel {:.1e}, D_eff rel {:.1e}",
