@@ -321,6 +321,29 @@ fn simulate_cmd(
             Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
         }
     }
+    if !interrupted && let Some(h) = t.periodic.as_ref().and_then(|p| p.hopping.as_ref()) {
+        let (_, _, _, steps) = simulate::periodic_size(&plan, h.forward + h.backward);
+        if steps > plan.budget_steps {
+            out.warnings.push(format!(
+                "periodic landscape: measuring drift and diffusion would take about {steps:.2e} steps, over simulation.budget_steps = {:.2e}; raise the budget to run it",
+                plan.budget_steps
+            ));
+        } else {
+            if !common.quiet && !common.json {
+                eprintln!("measuring drift, diffusion and hopping in long trajectories");
+            }
+            match simulate::run_periodic_for(&plan, &t, sim.threads, &STOP) {
+                Ok(Some((p, wall))) => {
+                    out.total_steps += p.total_steps;
+                    out.wall_seconds += wall;
+                    out.periodic = Some(p);
+                }
+                Ok(None) => {}
+                Err(simulate::SimError::Interrupted) => interrupted = true,
+                Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+            }
+        }
+    }
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
         let theory = RateReport::new(&m, &t);

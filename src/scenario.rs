@@ -279,6 +279,8 @@ pub enum AnyPotential {
     Family(Family),
     /// profile table
     Table(Table),
+    /// a formula or table extended periodically (potential.periodic)
+    Periodic(Box<crate::theory::periodic::Periodic<AnyPotential>>),
 }
 
 macro_rules! dispatch {
@@ -287,6 +289,7 @@ macro_rules! dispatch {
             AnyPotential::Formula($p) => $e,
             AnyPotential::Family($p) => $e,
             AnyPotential::Table($p) => $e,
+            AnyPotential::Periodic($p) => $e,
         }
     };
 }
@@ -642,6 +645,20 @@ impl Validator<'_> {
             }
             (_, None) => None,
         };
+        // an expr or table with a period is read on [lo, lo + L] and extended over the window
+        // [lo − L, lo + 2L] (tilt from the rise over one period)
+        let (potential, label) = match (period, &potential) {
+            (Some(l), AnyPotential::Formula(_) | AnyPotential::Table(_)) => {
+                let w = crate::theory::periodic::Periodic::new(potential, lo, l.min(hi - lo))
+                    .map_err(|e| self.err("potential.periodic", e.to_string()))?;
+                (
+                    AnyPotential::Periodic(Box::new(w)),
+                    format!("{label}, periodic with L = {l}"),
+                )
+            }
+            _ => (potential, label),
+        };
+        let (lo, hi) = potential.domain();
         let uncertainty_given = sf.uncertainty.is_some();
         let uncertainty = sf.uncertainty.clone().unwrap_or_default();
         self.positive(
@@ -692,6 +709,17 @@ impl Validator<'_> {
                 "particle.friction",
                 "give particle.friction (with mass) or particle.diffusion",
             ));
+        };
+        // a periodic profile's D(x) is read on its base period and repeated, like U'
+        let diffusion_model = match (&potential, diffusion_model) {
+            (AnyPotential::Periodic(w), d @ (Diffusion::Formula(_) | Diffusion::Table(_))) => {
+                Diffusion::Periodic {
+                    inner: Box::new(d),
+                    x0: w.origin(),
+                    period: w.period(),
+                }
+            }
+            (_, d) => d,
         };
         // gamma from D when only D is given and a mass is known (at the barrier for D(x): decided later)
         let friction_int = friction.or_else(|| {

@@ -38,8 +38,16 @@ fn untilted_washboard_effective_diffusion_matches_lifson_jackson() {
     let (m, t) = model(WB, &[]);
     let plan = Plan::new(&m, &t).unwrap();
     let k_total = 2.0 * t.rates.mfpt.unwrap();
-    let (r, _) =
-        simulate::run_periodic(&plan, &[0.0], 1.0, k_total, 0, &AtomicBool::new(false)).unwrap();
+    let (r, _) = simulate::run_periodic(
+        &plan,
+        &[0.0],
+        -0.5,
+        1.0,
+        k_total,
+        0,
+        &AtomicBool::new(false),
+    )
+    .unwrap();
     let exact = 1.0 / bessel_i0(2.0).powi(2);
     let nb = (r.trajectories * r.blocks) as f64;
     let se = exact * (2.0 / (nb - 1.0)).sqrt();
@@ -75,8 +83,8 @@ fn periodic_runs_do_not_depend_on_threads() {
     let plan = Plan::new(&m, &t).unwrap();
     let k = 2.0 * t.rates.mfpt.unwrap();
     let stop = AtomicBool::new(false);
-    let (a, _) = simulate::run_periodic(&plan, &[0.0], 1.0, k, 1, &stop).unwrap();
-    let (b, _) = simulate::run_periodic(&plan, &[0.0], 1.0, k, 2, &stop).unwrap();
+    let (a, _) = simulate::run_periodic(&plan, &[0.0], -0.5, 1.0, k, 1, &stop).unwrap();
+    let (b, _) = simulate::run_periodic(&plan, &[0.0], -0.5, 1.0, k, 2, &stop).unwrap();
     assert_eq!(a.drift.to_bits(), b.drift.to_bits());
     assert_eq!(
         a.effective_diffusion.to_bits(),

@@ -91,6 +91,12 @@ impl Potential for FormulaPotential {
     }
 }
 
+/// x folded into [x0, x0 + period).
+#[inline]
+fn fold(x: f64, x0: f64, period: f64) -> f64 {
+    x0 + (x - x0).rem_euclid(period)
+}
+
 /// Position-dependent (or constant) diffusion coefficient D(x), in length²/time.
 #[derive(Debug, Clone)]
 pub enum Diffusion {
@@ -100,6 +106,15 @@ pub enum Diffusion {
     Formula(Formula),
     /// D(x) from a table column, spline-interpolated
     Table(Spline),
+    /// D(x) of a periodic landscape: `inner` read on [x0, x0 + period) and repeated
+    Periodic {
+        /// D on the base period
+        inner: Box<Diffusion>,
+        /// start of the base period
+        x0: f64,
+        /// the period
+        period: f64,
+    },
 }
 
 impl Diffusion {
@@ -110,6 +125,7 @@ impl Diffusion {
             Self::Constant(d) => *d,
             Self::Formula(f) => f.value(x),
             Self::Table(s) => s.value(x),
+            Self::Periodic { inner, x0, period } => inner.value(fold(x, *x0, *period)),
         }
     }
     /// D'(x) (the Itô drift term of overdamped dynamics)
@@ -119,6 +135,7 @@ impl Diffusion {
             Self::Constant(_) => 0.0,
             Self::Formula(f) => f.d1(x),
             Self::Table(s) => s.d1(x),
+            Self::Periodic { inner, x0, period } => inner.derivative(fold(x, *x0, *period)),
         }
     }
     /// The constant value, if D does not depend on x.

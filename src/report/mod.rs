@@ -103,6 +103,63 @@ impl LandscapeOut {
     }
 }
 
+/// Hopping between neighbouring minima in scenario units (JSON key "periodic.hopping").
+#[derive(Debug, Clone, Serialize)]
+pub struct HoppingOut {
+    /// the hopping analysis (positions, rates, π₊, MFPT; energies in kT)
+    #[serde(flatten)]
+    pub kt: crate::theory::periodic::Hopping,
+    /// ΔU₊ in the energy unit
+    pub barrier_forward_energy: f64,
+    /// ΔU₋ in the energy unit
+    pub barrier_backward_energy: f64,
+}
+
+/// A periodic landscape's drift, diffusion and hopping in scenario units (JSON key "periodic").
+#[derive(Debug, Clone, Serialize)]
+pub struct PeriodicOut {
+    /// period L
+    pub period: f64,
+    /// start of the base period
+    pub origin: f64,
+    /// tilt F in energy/length (U = V − F x)
+    pub tilt: f64,
+    /// tilt in kT/length
+    #[serde(rename = "tilt_kT")]
+    pub tilt_kt: f64,
+    /// exact overdamped drift velocity (Stratonovich), length/time
+    pub drift: f64,
+    /// its linear-response estimate D_LJ·F/kT
+    pub drift_linear: f64,
+    /// effective diffusion coefficient (Reimann et al. 2001; Lifson–Jackson untilted)
+    pub effective_diffusion: Option<f64>,
+    /// Lifson–Jackson coefficient of the untilted profile
+    pub effective_diffusion_untilted: f64,
+    /// hopping rates out of the reactant minimum (null past the critical tilt)
+    pub hopping: Option<HoppingOut>,
+}
+
+impl PeriodicOut {
+    /// Converts from internal units.
+    pub fn new(p: &crate::theory::periodic::PeriodicTheory, u: &UnitSystem) -> Self {
+        Self {
+            period: p.period,
+            origin: p.origin,
+            tilt: u.energy_from_kt(p.tilt),
+            tilt_kt: p.tilt,
+            drift: p.drift,
+            drift_linear: p.drift_linear,
+            effective_diffusion: p.effective_diffusion,
+            effective_diffusion_untilted: p.effective_diffusion_untilted,
+            hopping: p.hopping.as_ref().map(|h| HoppingOut {
+                kt: h.clone(),
+                barrier_forward_energy: u.energy_from_kt(h.barrier_forward),
+                barrier_backward_energy: u.energy_from_kt(h.barrier_backward),
+            }),
+        }
+    }
+}
+
 /// Scenario facts shown in headers.
 #[derive(Debug, Clone, Serialize)]
 pub struct Header {
@@ -170,6 +227,8 @@ pub struct RateReport {
     pub diffusion_barrier: f64,
     /// A(δ)
     pub depopulation: Option<f64>,
+    /// periodic landscapes: drift, effective diffusion, hopping rates
+    pub periodic: Option<PeriodicOut>,
 }
 
 impl SurveyReport {
@@ -198,6 +257,7 @@ impl RateReport {
             friction: t.friction,
             diffusion_barrier: t.diffusion_barrier,
             depopulation: t.depopulation,
+            periodic: t.periodic.as_ref().map(|p| PeriodicOut::new(p, &m.units)),
         }
     }
 }
@@ -269,6 +329,8 @@ pub struct SimulationOut {
     pub reactive_flux: Option<crate::simulate::flux::FluxResult>,
     /// well-to-well transitions counted in long trajectories (simulation.well_to_well = true)
     pub well_to_well: Option<crate::simulate::transitions::TransitionResult>,
+    /// periodic landscapes: drift, effective diffusion and hopping rates from long trajectories
+    pub periodic: Option<crate::simulate::periodic::PeriodicSimResult>,
     /// warnings
     pub warnings: Vec<String>,
 }
@@ -308,6 +370,7 @@ impl SimulationOut {
             ffs: None,
             reactive_flux: None,
             well_to_well: None,
+            periodic: None,
             warnings: plan.warnings.clone(),
         }
     }

@@ -215,8 +215,113 @@ pub fn rate(r: &RateReport) -> String {
     if !reg.trusted.is_empty() {
         let _ = writeln!(out, "trust here: {}", reg.trusted.join(", "));
     }
+    if let Some(p) = &r.periodic {
+        periodic_theory(&mut out, p, &u);
+    }
     warnings(&mut out, &reg.warnings);
     out
+}
+
+/// The periodic landscape's drift, diffusion and hopping rates (theory).
+fn periodic_theory(out: &mut String, p: &super::PeriodicOut, u: &U) {
+    let _ = writeln!(
+        out,
+        "periodic landscape: period L = {} {}, tilt F = {} {}/{} ({} kT per period)",
+        num(p.period),
+        u.l,
+        num(p.tilt),
+        u.e,
+        u.l,
+        num(p.tilt_kt * p.period)
+    );
+    let mut t = table();
+    t.set_header(vec!["quantity", "value", "unit", "what it is"]);
+    let vel = format!("{}/{}", u.l, u.t);
+    let dif = format!("{}²/{}", u.l, u.t);
+    let per = format!("1/{}", u.t);
+    let mut rows: Vec<(String, String, String, &str)> = vec![
+        (
+            "drift velocity".into(),
+            num(p.drift),
+            vel.clone(),
+            "exact overdamped (Stratonovich)",
+        ),
+        (
+            "drift, linear response".into(),
+            num(p.drift_linear),
+            vel,
+            "D_eff(untilted)·F/kT, small-force limit",
+        ),
+        (
+            "effective diffusion D_eff".into(),
+            opt(p.effective_diffusion),
+            dif.clone(),
+            "exact overdamped (Reimann et al. 2001; Lifson-Jackson untilted)",
+        ),
+        (
+            "D_eff of the untilted profile".into(),
+            num(p.effective_diffusion_untilted),
+            dif,
+            "Lifson-Jackson",
+        ),
+    ];
+    if let Some(h) = &p.hopping {
+        let k = &h.kt;
+        rows.extend([
+            (
+                format!("forward barrier (at x = {})", num(k.forward_barrier_top)),
+                num(h.barrier_forward_energy),
+                u.e.to_string(),
+                "towards +x",
+            ),
+            (
+                format!("backward barrier (at x = {})", num(k.backward_barrier_top)),
+                num(h.barrier_backward_energy),
+                u.e.to_string(),
+                "towards −x",
+            ),
+            (
+                "forward hop k+".into(),
+                num(k.forward),
+                per.clone(),
+                "exact overdamped, to the next minimum",
+            ),
+            (
+                "backward hop k−".into(),
+                num(k.backward),
+                per.clone(),
+                "exact overdamped, to the previous minimum",
+            ),
+            (
+                "forward hop k+ (Kramers)".into(),
+                opt(k.forward_kramers),
+                per.clone(),
+                "over the forward barrier",
+            ),
+            (
+                "backward hop k− (Kramers)".into(),
+                opt(k.backward_kramers),
+                per.clone(),
+                "over the backward barrier",
+            ),
+            (
+                "forward hop k+ (Smoluchowski)".into(),
+                num(k.forward_smoluchowski),
+                per.clone(),
+                "overdamped, over the forward barrier",
+            ),
+            (
+                "backward hop k− (Smoluchowski)".into(),
+                num(k.backward_smoluchowski),
+                per,
+                "overdamped, over the backward barrier",
+            ),
+        ]);
+    }
+    for (a, b, c, d) in rows {
+        t.add_row(vec![a, b, c, d.to_string()]);
+    }
+    let _ = writeln!(out, "{t}");
 }
 
 fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
@@ -351,6 +456,36 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
             w.rule
         );
     }
+    if let Some(p) = &s.periodic {
+        let _ = writeln!(
+            out,
+            "periodic landscape (long trajectories on the whole line): {} trajectories × {} blocks of {} {}; drift {} {}/{} [{}, {}], D_eff {} {}²/{} [{}, {}]; hops out of the reactant well {} forward, {} back: k+ {} /{} [{}, {}], k− {} /{} [{}, {}]",
+            p.trajectories,
+            p.blocks,
+            num(p.block_time),
+            u.t,
+            num(p.drift),
+            u.l,
+            u.t,
+            num(p.drift_ci95[0]),
+            num(p.drift_ci95[1]),
+            num(p.effective_diffusion),
+            u.l,
+            u.t,
+            num(p.effective_diffusion_ci95[0]),
+            num(p.effective_diffusion_ci95[1]),
+            p.hops_forward,
+            p.hops_backward,
+            num(p.hop_forward),
+            u.t,
+            num(p.hop_forward_ci95[0]),
+            num(p.hop_forward_ci95[1]),
+            num(p.hop_backward),
+            u.t,
+            num(p.hop_backward_ci95[0]),
+            num(p.hop_backward_ci95[1]),
+        );
+    }
     let _ = writeln!(
         out,
         "escape rate {} /{} [{}, {}] (95%: {}){}",
@@ -445,6 +580,72 @@ pub fn compare(r: &super::CompareReport) -> String {
         ]);
     }
     let _ = writeln!(out, "{t}");
+    if let (Some(pt), Some(ps)) = (&r.theory.periodic, &s.periodic) {
+        let mut t = table();
+        t.set_header(vec![
+            "periodic landscape".to_string(),
+            "theory".to_string(),
+            "simulated [95%]".to_string(),
+            "theory/simulation [95%]".to_string(),
+        ]);
+        let ratio = |k: f64, v: f64, [lo, hi]: [f64; 2]| {
+            if v > 0.0 && lo > 0.0 {
+                format!("{} [{}, {}]", num(k / v), num(k / hi), num(k / lo))
+            } else {
+                "—".into()
+            }
+        };
+        let mut line = |name: &str, k: Option<f64>, v: f64, ci: [f64; 2]| {
+            t.add_row(vec![
+                name.to_string(),
+                opt(k),
+                format!("{} [{}, {}]", num(v), num(ci[0]), num(ci[1])),
+                k.map_or_else(|| "—".into(), |k| ratio(k, v, ci)),
+            ]);
+        };
+        line(
+            &format!("drift ({}/{}), exact overdamped", u.l, u.t),
+            Some(pt.drift),
+            ps.drift,
+            ps.drift_ci95,
+        );
+        line(
+            &format!("D_eff ({}²/{}), exact overdamped", u.l, u.t),
+            pt.effective_diffusion,
+            ps.effective_diffusion,
+            ps.effective_diffusion_ci95,
+        );
+        if let Some(h) = &pt.hopping {
+            let k = &h.kt;
+            line(
+                &format!("k+ (1/{}), exact overdamped", u.t),
+                Some(k.forward),
+                ps.hop_forward,
+                ps.hop_forward_ci95,
+            );
+            line(
+                &format!("k− (1/{}), exact overdamped", u.t),
+                Some(k.backward),
+                ps.hop_backward,
+                ps.hop_backward_ci95,
+            );
+            if k.forward_kramers.is_some() {
+                line(
+                    &format!("k+ (1/{}), Kramers", u.t),
+                    k.forward_kramers,
+                    ps.hop_forward,
+                    ps.hop_forward_ci95,
+                );
+                line(
+                    &format!("k− (1/{}), Kramers", u.t),
+                    k.backward_kramers,
+                    ps.hop_backward,
+                    ps.hop_backward_ci95,
+                );
+            }
+        }
+        let _ = writeln!(out, "{t}");
+    }
     let _ = writeln!(out, "verdict: {}", r.verdict);
     out
 }

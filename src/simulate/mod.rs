@@ -881,23 +881,10 @@ pub fn run_transitions(
     Ok((r, t0.elapsed().as_secs_f64()))
 }
 
-/// Runs the long-trajectory measurements of [`periodic`] (drift, effective diffusion, hopping
-/// rates) for a periodic landscape with the minima `minima` of one period (reactant first) and
-/// period `period`. Block length: [`periodic::BLOCK_HOP_TIMES`] expected hopping times from
-/// `hop_total` (the theory's k₊ + k₋); `simulation.trajectories` (default 32) long trajectories.
-/// Returns the result and the wall time.
-///
-/// # Errors
-/// A run far beyond the step budget, or an interruption.
-#[allow(clippy::too_many_arguments)] // the run's full context
-pub fn run_periodic(
-    plan: &Plan,
-    minima: &[f64],
-    period: f64,
-    hop_total: f64,
-    threads: usize,
-    stop: &AtomicBool,
-) -> Result<(periodic::PeriodicSimResult, f64), SimError> {
+/// The size of a [`run_periodic`] run: (trajectories, recorded blocks, steps per block, total
+/// steps). Blocks last [`periodic::BLOCK_HOP_TIMES`] expected hopping times from `hop_total` (the
+/// theory's k₊ + k₋); `simulation.trajectories` (default 32) long trajectories.
+pub fn periodic_size(plan: &Plan, hop_total: f64) -> (u64, u64, u64, f64) {
     let n = plan
         .section
         .trajectories
@@ -906,13 +893,34 @@ pub fn run_periodic(
     let blocks = periodic::DEFAULT_BLOCKS;
     let block_steps = (periodic::BLOCK_HOP_TIMES / hop_total / plan.params.dt)
         .ceil()
-        .max(1.0);
+        .clamp(1.0, 1e15);
     let total = block_steps * (blocks + 1) as f64 * n as f64;
+    (n, blocks, block_steps as u64, total)
+}
+
+/// Runs the long-trajectory measurements of [`periodic`] (drift, effective diffusion, hopping
+/// rates) for a periodic landscape: `minima` are the minima of one period (reactant first),
+/// `origin` the start of the base period on which the force is known, `hop_total` the theory's
+/// k₊ + k₋ (sets the block length, [`periodic_size`]). Returns the result and the wall time.
+///
+/// # Errors
+/// A run beyond [`REFUSE_FACTOR`] × the step budget, or an interruption.
+#[allow(clippy::too_many_arguments)] // the run's full context
+pub fn run_periodic(
+    plan: &Plan,
+    minima: &[f64],
+    origin: f64,
+    period: f64,
+    hop_total: f64,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<(periodic::PeriodicSimResult, f64), SimError> {
+    let (n, blocks, block_steps, total) = periodic_size(plan, hop_total);
     if total > REFUSE_FACTOR * plan.budget_steps {
         return Err(key_err(
-            "simulation.trajectories",
+            "simulation.budget_steps",
             format!(
-                "measuring drift and diffusion needs about {total:.2e} steps ({n} trajectories × {} blocks of {block_steps:.3e} steps, a block being {} expected hopping times), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower the barrier, fewer trajectories or raise the budget",
+                "measuring drift and diffusion needs about {total:.2e} steps ({n} trajectories × {} blocks of {block_steps} steps, a block being {} expected hopping times), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower the barrier, use fewer trajectories or raise the budget",
                 blocks + 1,
                 periodic::BLOCK_HOP_TIMES,
                 plan.budget_steps
@@ -928,25 +936,59 @@ pub fn run_periodic(
         .num_threads(threads)
         .build()
         .expect("a thread pool");
-    // fold into the first period of the domain, where the tabulated force is known
-    let x0 = plan.params.lo;
     let t0 = std::time::Instant::now();
     let r = pool.install(|| {
         with_force!(plan, |f, mb| {
-            let fw = periodic::Wrapped::new(f, x0, period);
-            let mw = periodic::Wrapped::new(mb, x0, period);
-            periodic::run(
-                plan,
-                &fw,
-                &mw,
-                minima,
-                period,
-                n,
-                blocks,
-                block_steps as u64,
-                stop,
-            )
+            let fw = periodic::Wrapped::new(f, origin, period);
+            let mw = periodic::Wrapped::new(mb, origin, period);
+            periodic::run(plan, &fw, &mw, minima, period, n, blocks, block_steps, stop)
         })
     })?;
     Ok((r, t0.elapsed().as_secs_f64()))
+}
+
+/// The periodic measurements for an analysed periodic landscape (`t.periodic` with hopping):
+/// the minima of one period from the landscape's stationary points, the base period's origin, and
+/// the exact overdamped k₊ + k₋ for the block length. `None` when the landscape is not periodic or
+/// has no minimum (running state).
+///
+/// # Errors
+/// As [`run_periodic`].
+pub fn run_periodic_for(
+    plan: &Plan,
+    t: &TheoryReport,
+    threads: usize,
+    stop: &AtomicBool,
+) -> Result<Option<(periodic::PeriodicSimResult, f64)>, SimError> {
+    let Some(p) = &t.periodic else {
+        return Ok(None);
+    };
+    let Some(h) = &p.hopping else {
+        return Ok(None);
+    };
+    let minima = periodic_minima(&t.landscape, h.reactant, p.period);
+    run_periodic(
+        plan,
+        &minima,
+        p.origin,
+        p.period,
+        h.forward + h.backward,
+        threads,
+        stop,
+    )
+    .map(Some)
+}
+
+/// The minima in [x_a, x_a + L) among the landscape's stationary points, x_a first.
+pub fn periodic_minima(l: &crate::landscape::Landscape, x_a: f64, period: f64) -> Vec<f64> {
+    // a minimum within 1e-9 periods of x_a + L is the next copy of x_a
+    let end = x_a + period * (1.0 - 1e-9);
+    let mut m: Vec<f64> = l
+        .points
+        .iter()
+        .filter(|p| p.kind == crate::landscape::Kind::Minimum && p.x > x_a && p.x < end)
+        .map(|p| p.x)
+        .collect();
+    m.insert(0, x_a);
+    m
 }

@@ -26,6 +26,9 @@ pub enum TheoryError {
     /// The landscape could not be analysed.
     #[error(transparent)]
     Landscape(#[from] LandscapeError),
+    /// The periodic analysis failed.
+    #[error(transparent)]
+    Periodic(#[from] periodic::PeriodicError),
 }
 
 impl TheoryError {
@@ -33,6 +36,7 @@ impl TheoryError {
     pub fn key(&self) -> &'static str {
         match self {
             Self::Landscape(e) => e.key(),
+            Self::Periodic(e) => e.key(),
         }
     }
 }
@@ -111,6 +115,8 @@ pub struct TheoryReport {
     pub diffusion_barrier: f64,
     /// A(δ)
     pub depopulation: Option<f64>,
+    /// drift, effective diffusion and hopping rates of a periodic landscape
+    pub periodic: Option<periodic::PeriodicTheory>,
 }
 
 /// Stationary points strictly between two positions (panel breakpoints for quadrature).
@@ -133,6 +139,29 @@ pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
     let mut t = rates_for(pot, &model.diffusion, model.mass, model.friction, l);
     if let Some(tau) = model.memory_time {
         add_grote_hynes(&mut t, tau);
+    }
+    if let Some(period) = model.period {
+        // the base period: the wrapper's own, or the washboard's domain start
+        let x0 = match pot {
+            crate::scenario::AnyPotential::Periodic(w) => w.origin(),
+            other => other.domain().0,
+        };
+        let p = periodic::analyse(
+            pot,
+            &model.diffusion,
+            x0,
+            period,
+            t.landscape.reactant,
+            model.mass,
+            t.friction,
+        )?;
+        t.regime.warnings.extend(p.warnings.iter().cloned());
+        if model.memory_time.is_some() {
+            t.regime.warnings.push(
+                "memory friction: the drift, effective diffusion and hopping rates of the periodic analysis assume memoryless overdamped dynamics".into(),
+            );
+        }
+        t.periodic = Some(p);
     }
     Ok(t)
 }
@@ -378,5 +407,6 @@ pub fn rates_for(
         friction: gamma,
         diffusion_barrier: d_b,
         depopulation: ln_a.map(f64::exp),
+        periodic: None,
     }
 }
