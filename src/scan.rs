@@ -119,15 +119,38 @@ impl Kind {
     }
 }
 
+/// Drift, effective diffusion and hopping rates of a periodic landscape at one point.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct PeriodicPoint {
+    /// drift velocity (length/time)
+    pub drift: f64,
+    /// its 95% interval (simulation only)
+    pub drift_ci95: Option<[f64; 2]>,
+    /// effective diffusion coefficient (length²/time)
+    pub effective_diffusion: Option<f64>,
+    /// its 95% interval (simulation only)
+    pub effective_diffusion_ci95: Option<[f64; 2]>,
+    /// forward hopping rate (per time unit)
+    pub hop_forward: Option<f64>,
+    /// backward hopping rate
+    pub hop_backward: Option<f64>,
+}
+
 /// A simulated rate at one point.
 #[derive(Debug, Clone, Serialize)]
 pub struct SimPoint {
     /// method used
     pub method: &'static str,
-    /// rate (per time unit)
+    /// escape rate (per time unit)
     pub rate: f64,
     /// 95% interval
     pub rate_ci95: [f64; 2],
+    /// well-to-well rate from counted transitions (simulation.well_to_well = true)
+    pub well_to_well: Option<f64>,
+    /// its 95% interval
+    pub well_to_well_ci95: Option<[f64; 2]>,
+    /// periodic landscapes: simulated drift, diffusion and hopping
+    pub periodic: Option<PeriodicPoint>,
     /// steps spent
     pub total_steps: u64,
     /// seed used
@@ -150,6 +173,10 @@ pub struct Point {
     pub barrier_height_kt: f64,
     /// every theory rate (per time unit)
     pub rates: Rates,
+    /// periodic landscapes: exact overdamped drift, effective diffusion and hopping rates
+    pub periodic: Option<PeriodicPoint>,
+    /// 95% intervals of the rates from the profile's sigma_U (with an [uncertainty] section)
+    pub uncertainty: Option<Vec<crate::uncertainty::Interval>>,
     /// the simulated rate, with --simulate
     pub simulation: Option<SimPoint>,
 }
@@ -303,11 +330,35 @@ pub fn run(
                     .map_err(|e| bad(e.to_string()))?;
                 crate::report::SimulationOut::rare(&plan, r, wall, th)
             };
+            let ww = if plan.section.well_to_well == Some(true) {
+                Some(
+                    simulate::run_transitions(&plan, &m, &t, threads, stop)
+                        .map_err(|e| bad(e.to_string()))?
+                        .0,
+                )
+            } else {
+                None
+            };
+            let per = simulate::run_periodic_for(&plan, &t, threads, stop)
+                .map_err(|e| bad(e.to_string()))?
+                .map(|(p, _)| p);
             Some(SimPoint {
                 method: out.method,
                 rate: out.rate,
                 rate_ci95: out.rate_ci95,
-                total_steps: out.total_steps,
+                well_to_well: ww.as_ref().map(|w| w.rate),
+                well_to_well_ci95: ww.as_ref().map(|w| w.rate_ci95),
+                periodic: per.as_ref().map(|p| PeriodicPoint {
+                    drift: p.drift,
+                    drift_ci95: Some(p.drift_ci95),
+                    effective_diffusion: Some(p.effective_diffusion),
+                    effective_diffusion_ci95: Some(p.effective_diffusion_ci95),
+                    hop_forward: Some(p.hop_forward),
+                    hop_backward: Some(p.hop_backward),
+                }),
+                total_steps: out.total_steps
+                    + ww.as_ref().map_or(0, |w| w.total_steps)
+                    + per.as_ref().map_or(0, |p| p.total_steps),
                 seed,
             })
         } else {
@@ -320,6 +371,15 @@ pub fn run(
             delta: t.regime.delta,
             barrier_height_kt: t.landscape.barrier_height,
             rates: t.rates,
+            periodic: t.periodic.as_ref().map(|p| PeriodicPoint {
+                drift: p.drift,
+                drift_ci95: None,
+                effective_diffusion: p.effective_diffusion,
+                effective_diffusion_ci95: None,
+                hop_forward: p.hopping.as_ref().map(|h| h.forward),
+                hop_backward: p.hopping.as_ref().map(|h| h.backward),
+            }),
+            uncertainty: None,
             simulation,
         });
     }
