@@ -395,6 +395,8 @@ impl Spline {
 #[derive(Debug, Clone)]
 pub struct Table {
     spline: Spline,
+    /// U at the knots (kT), as given to the spline
+    u: Vec<f64>,
     sigma_u: Option<Vec<f64>>,
     diffusion: Option<Spline>,
     wall_k: f64,
@@ -414,6 +416,7 @@ impl Table {
         let wall_k = 2.0 * WALL_RISE_KT / (width * width);
         Self {
             spline,
+            u,
             sigma_u: cols
                 .sigma_u
                 .as_ref()
@@ -423,6 +426,27 @@ impl Table {
             lo,
             hi,
         }
+    }
+    /// The same table with U at the knots replaced by `u` (kT): same x, σ_U, D column and walls.
+    /// Used to re-analyse a profile perturbed within its standard errors.
+    ///
+    /// # Panics
+    /// If `u` does not have one value per knot (a programming error, not user input).
+    pub fn with_knot_u(&self, u: &[f64]) -> Self {
+        assert_eq!(u.len(), self.u.len(), "one U value per knot");
+        Self {
+            spline: Spline::new(self.spline.knots(), u),
+            u: u.to_vec(),
+            sigma_u: self.sigma_u.clone(),
+            diffusion: self.diffusion.clone(),
+            wall_k: self.wall_k,
+            lo: self.lo,
+            hi: self.hi,
+        }
+    }
+    /// U at the knots (kT).
+    pub fn knot_u(&self) -> &[f64] {
+        &self.u
     }
     /// The spline of U.
     pub fn spline(&self) -> &Spline {
