@@ -10,7 +10,8 @@
 //! the same samples feed them); ℓ = 0 makes the knots independent. The kernel is cut at
 //! |x_i − x_j| < 6ℓ: there w² = e^(−36) ≈ 2e−16, below the rounding of Σ w² ≥ 1 (the diagonal
 //! term), so the cut changes nothing at double precision while keeping a 10⁵-knot table at
-//! O(n · ℓ/h) work per draw.
+//! O(n · ℓ/h) work per draw (h the knot spacing; on a uniform grid the weights are tabulated by
+//! |i − j| once). A user-chosen ℓ of many spacings on a huge table costs accordingly.
 //!
 //! Per-draw analysis. The perturbed table keeps x, σ_U and the D column; the landscape
 //! ([`Landscape::analyse`]) and the rates ([`theory::rates_for`]) are recomputed with these rules,
@@ -18,7 +19,9 @@
 //! the absorbing point stays at the unperturbed target; the reactant is the lowest minimum of the
 //! perturbed profile inside the unperturbed reactant basin (between the unperturbed maxima, or
 //! domain ends, that enclose the unperturbed reactant minimum); the barrier is then the highest
-//! maximum between reactant and target (the landscape's rule for a given target). A draw whose
+//! maximum between reactant and target (the landscape's rule for a given target). The rate
+//! quadratures split at the perturbed reactant, barrier and product and at the unperturbed
+//! stationary points, not at every spurious one (same integrals, far fewer panels). A draw whose
 //! analysis fails (no minimum in the basin, no barrier, a wall below the well) is counted and
 //! left out; more than 1% failed draws gives a warning.
 //!
@@ -63,6 +66,9 @@ pub const DEFAULT_DRAWS: usize = 400;
 pub const MIN_DRAWS: usize = 40;
 /// The kernel is cut at this many correlation lengths (w² = e^(−36) there).
 pub const KERNEL_CUT: f64 = 6.0;
+/// A draw whose MFPT quadrature changed by more than this (relative) at its last panel doubling is
+/// counted as unconverged (the threshold at which `theory::rates_for` warns).
+const MFPT_CHANGE_WARN: f64 = 1e-8;
 /// More failed draws than this fraction gives a warning.
 pub const FAILED_WARN_FRACTION: f64 = 0.01;
 
@@ -208,6 +214,8 @@ const KEYS: [(&str, Getter); 8] = [
 struct Draw {
     eb: f64,
     rates: Rates,
+    /// the MFPT quadrature met its tolerance (the threshold `theory::rates_for` warns at)
+    mfpt_converged: bool,
 }
 
 /// Median knot spacing.
@@ -228,45 +236,74 @@ fn quantile(sorted: &[f64], p: f64) -> f64 {
     }
 }
 
-/// For each knot i, the window [start, end) of knots within the cut and 1/sqrt(Σ w_ij²).
-fn kernel_rows(x: &[f64], ell: f64) -> Vec<(usize, usize, f64)> {
-    if ell == 0.0 {
-        return (0..x.len()).map(|i| (i, i + 1, 1.0)).collect();
-    }
-    let reach = KERNEL_CUT * ell;
-    x.iter()
-        .map(|&xi| {
+/// The smoothing kernel: for each knot i the window [start, end) of knots within the cut and
+/// 1/sqrt(Σ_j w_ij²); on a uniform grid the weights depend on |i − j| only and are tabulated once.
+struct Kernel {
+    ell: f64,
+    rows: Vec<(usize, usize, f64)>,
+    /// w by |i − j| (uniform grids)
+    by_offset: Option<Vec<f64>>,
+}
+
+impl Kernel {
+    fn new(x: &[f64], ell: f64) -> Self {
+        let n = x.len();
+        if ell == 0.0 {
+            return Self {
+                ell,
+                rows: (0..n).map(|i| (i, i + 1, 1.0)).collect(),
+                by_offset: None,
+            };
+        }
+        let reach = KERNEL_CUT * ell;
+        // uniform within 1e-9 spacings (the spline's own test): tabulate w(d·h)
+        let h = (x[n - 1] - x[0]) / (n - 1) as f64;
+        let uniform = x
+            .iter()
+            .enumerate()
+            .all(|(i, &xi)| (xi - (x[0] + h * i as f64)).abs() <= 1e-9 * h);
+        let by_offset = uniform.then(|| {
+            let dmax = ((reach / h).ceil() as usize + 1).min(n - 1);
+            (0..=dmax)
+                .map(|d| (-(d as f64 * h).powi(2) / (2.0 * ell * ell)).exp())
+                .collect()
+        });
+        let mut k = Self {
+            ell,
+            rows: Vec::with_capacity(n),
+            by_offset,
+        };
+        for (i, &xi) in x.iter().enumerate() {
             let start = x.partition_point(|&v| v <= xi - reach);
             let end = x.partition_point(|&v| v < xi + reach);
-            let s2: f64 = x[start..end]
-                .iter()
-                .map(|&xj| (-(xi - xj).powi(2) / (ell * ell)).exp())
-                .sum();
-            (start, end, 1.0 / s2.sqrt())
-        })
-        .collect()
+            let s2: f64 = (start..end).map(|j| k.weight(x, i, j).powi(2)).sum();
+            k.rows.push((start, end, 1.0 / s2.sqrt()));
+        }
+        k
+    }
+
+    #[inline]
+    fn weight(&self, x: &[f64], i: usize, j: usize) -> f64 {
+        match &self.by_offset {
+            Some(w) => w[i.abs_diff(j)],
+            None => (-(x[i] - x[j]).powi(2) / (2.0 * self.ell * self.ell)).exp(),
+        }
+    }
 }
 
 /// δU for draw `k` (see the module doc).
-fn perturbation(
-    x: &[f64],
-    sigma: &[f64],
-    rows: &[(usize, usize, f64)],
-    ell: f64,
-    seed: u64,
-    k: u64,
-) -> Vec<f64> {
+fn perturbation(x: &[f64], sigma: &[f64], kernel: &Kernel, seed: u64, k: u64) -> Vec<f64> {
     let mut rng = stream(seed, k);
     let xi: Vec<f64> = (0..x.len()).map(|_| rng.sample(StandardNormal)).collect();
-    rows.iter()
+    kernel
+        .rows
+        .iter()
         .enumerate()
         .map(|(i, &(start, end, norm))| {
-            let s: f64 = if ell == 0.0 {
+            let s: f64 = if kernel.ell == 0.0 {
                 xi[i]
             } else {
-                (start..end)
-                    .map(|j| (-(x[i] - x[j]).powi(2) / (2.0 * ell * ell)).exp() * xi[j])
-                    .sum()
+                (start..end).map(|j| kernel.weight(x, i, j) * xi[j]).sum()
             };
             sigma[i] * s * norm
         })
@@ -314,7 +351,11 @@ fn analyse_draw(
     l.points.dedup_by(|a, b| a.x == b.x);
     let eb = l.barrier_height;
     let t = theory::rates_for(table, &model.diffusion, model.mass, model.friction, l);
-    Some(Draw { eb, rates: t.rates })
+    Some(Draw {
+        eb,
+        rates: t.rates,
+        mfpt_converged: t.mfpt.last_change <= MFPT_CHANGE_WARN,
+    })
 }
 
 fn interval(key: &'static str, central: f64, mut v: Vec<f64>, log: bool) -> Interval {
@@ -400,13 +441,13 @@ pub fn propagate(
     let l0 = &central.landscape;
     let basin = basin(l0, table.domain());
     let target = l0.target;
-    let rows = kernel_rows(x, ell);
+    let kernel = Kernel::new(x, ell);
     let u0 = table.knot_u();
 
     let draws: Vec<Option<Draw>> = (0..opts.draws as u64)
         .into_par_iter()
         .map(|k| {
-            let du = perturbation(x, sigma, &rows, ell, opts.seed, k);
+            let du = perturbation(x, sigma, &kernel, opts.seed, k);
             let u: Vec<f64> = u0.iter().zip(&du).map(|(u, d)| u + d).collect();
             analyse_draw(&table.with_knot_u(&u), model, basin, target, &l0.points)
         })
@@ -425,6 +466,13 @@ pub fn propagate(
         ));
     }
 
+    let unconverged = ok.iter().filter(|d| !d.mfpt_converged).count();
+    if unconverged > 0 {
+        warnings.push(format!(
+            "the MFPT quadrature did not reach its tolerance for {unconverged} of {} perturbed profiles (a very noisy spline needs more panels than the quadrature allows): their 1/MFPT may be inaccurate",
+            ok.len()
+        ));
+    }
     let barrier = interval(
         "barrier",
         l0.barrier_height,
@@ -519,21 +567,31 @@ mod tests {
     }
 
     // The normalisation makes Σ_j (w_ij · norm_i)² = 1, so every knot keeps variance σ_i²
-    // (derived in the module doc). Rounding only: 1e-12.
+    // (derived in the module doc). Rounding only: 1e-12. The tabulated weights of a uniform grid
+    // equal the Gaussian at the knots' distance to rounding of x (1e-9 spacings by construction).
     #[test]
     fn kernel_rows_are_normalised() {
-        let x: Vec<f64> = (0..300)
+        let ell = 0.037;
+        let gauss = |d: f64| (-d * d / (2.0 * ell * ell)).exp();
+        let uneven: Vec<f64> = (0..300)
             .map(|i| f64::from(i) * 0.01 + 1e-3 * f64::from(i % 7))
             .collect();
-        let ell = 0.037;
-        for (i, &(start, end, norm)) in kernel_rows(&x, ell).iter().enumerate() {
-            let s: f64 = (start..end)
-                .map(|j| ((-(x[i] - x[j]).powi(2) / (2.0 * ell * ell)).exp() * norm).powi(2))
-                .sum();
-            assert!((s - 1.0).abs() < 1e-12, "{i}: {s}");
-            // the cut keeps every knot within 6 ℓ
-            assert!(start == 0 || x[i] - x[start - 1] >= KERNEL_CUT * ell);
-            assert!(end == x.len() || x[end] - x[i] >= KERNEL_CUT * ell);
+        let even: Vec<f64> = (0..300).map(|i| f64::from(i) * 0.01).collect();
+        for (x, uniform) in [(uneven, false), (even, true)] {
+            let k = Kernel::new(&x, ell);
+            for (i, &(start, end, norm)) in k.rows.iter().enumerate() {
+                let s: f64 = (start..end)
+                    .map(|j| (k.weight(&x, i, j) * norm).powi(2))
+                    .sum();
+                assert!((s - 1.0).abs() < 1e-12, "{i}: {s}");
+                for j in start..end {
+                    assert!((k.weight(&x, i, j) - gauss(x[i] - x[j])).abs() < 1e-12);
+                }
+                // the cut keeps every knot within 6 ℓ
+                assert!(start == 0 || x[i] - x[start - 1] >= KERNEL_CUT * ell);
+                assert!(end == x.len() || x[end] - x[i] >= KERNEL_CUT * ell);
+            }
+            assert_eq!(k.by_offset.is_some(), uniform);
         }
     }
 
@@ -544,11 +602,11 @@ mod tests {
         let x: Vec<f64> = (0..60).map(|i| f64::from(i) * 0.1).collect();
         let sigma: Vec<f64> = (0..60).map(|i| 0.1 + 0.01 * f64::from(i)).collect();
         for ell in [0.0, 0.1, 0.5] {
-            let rows = kernel_rows(&x, ell);
+            let kernel = Kernel::new(&x, ell);
             let m = 4000;
             let mut s2 = [0.0; 60];
             for k in 0..m {
-                let d = perturbation(&x, &sigma, &rows, ell, 7, k);
+                let d = perturbation(&x, &sigma, &kernel, 7, k);
                 for (a, b) in s2.iter_mut().zip(d) {
                     *a += b * b;
                 }
