@@ -68,6 +68,11 @@ fn run(m: &Model, draws: usize, ell: Option<f64>, seed: u64) -> UncertaintyRepor
 
 fn collapsed(i: &Interval, tol: f64) -> bool {
     let c = i.central;
+    let dev = [i.median, i.ci68[0], i.ci68[1], i.ci95[0], i.ci95[1]]
+        .iter()
+        .map(|v| ((v - c) / c).abs())
+        .fold(0.0, f64::max);
+    eprintln!("{}: largest relative deviation {dev:.1e}", i.key);
     let close = |v: f64| ((v - c) / c).abs() < tol;
     close(i.median) && i.ci68.iter().chain(&i.ci95).all(|&v| close(v))
 }

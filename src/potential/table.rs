@@ -568,6 +568,32 @@ mod tests {
         assert!(matches!(read_columns(b""), Err(TableError::Whole(_))));
     }
 
+    // Rebuilding from the same knot values repeats the same arithmetic (bit-identical); a constant
+    // shift c moves U by c up to the rounding of U + c (1e-12 for |U| <= 72 kT here), and U'' by
+    // those roundings over h² = 0.01 (1e-9).
+    #[test]
+    fn rebuilt_from_knot_values() {
+        let x: Vec<f64> = (0..=40).map(|i| -2.0 + f64::from(i) * 0.1).collect();
+        let u: Vec<f64> = x.iter().map(|&x| 8.0 * (x * x - 1.0).powi(2)).collect();
+        let cols = Columns {
+            x: x.clone(),
+            u,
+            sigma_u: Some(vec![0.2; 41]),
+            d: Some(vec![1.5; 41]),
+        };
+        let t = Table::new(&cols, 0.5);
+        let same = t.with_knot_u(t.knot_u());
+        let shifted: Vec<f64> = t.knot_u().iter().map(|u| u + 0.3).collect();
+        let moved = t.with_knot_u(&shifted);
+        assert_eq!(same.sigma_u(), Some(&[0.1; 41][..]));
+        assert!(same.diffusion().is_some());
+        for &p in &[-2.5, -1.33, 0.0, 0.71, 1.99, 2.2] {
+            assert_eq!(same.u(p).to_bits(), t.u(p).to_bits());
+            assert!((moved.u(p) - t.u(p) - 0.3).abs() < 1e-12);
+            assert!((moved.d2u(p) - t.d2u(p)).abs() < 1e-9);
+        }
+    }
+
     #[test]
     fn exact_derivative_roots() {
         let xs: Vec<f64> = (0..=400).map(|i| -2.0 + f64::from(i) * 0.01).collect();
