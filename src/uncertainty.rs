@@ -4,8 +4,10 @@
 //! Perturbation model. Draw k perturbs the knot values U_i by
 //! δU_i = σ_i · Σ_j w_ij ξ_j / sqrt(Σ_j w_ij²), ξ_j iid N(0, 1), w_ij = exp(−(x_i − x_j)²/(2ℓ²)):
 //! white noise smoothed over a correlation length ℓ and normalised so that every knot keeps its own
-//! marginal standard deviation σ_i exactly (Var δU_i = σ_i² Σ_j w_ij²/Σ_j w_ij² = σ_i²). For a
-//! uniform grid the correlation between knots a distance r apart is ≈ exp(−r²/(4ℓ²)). Default
+//! marginal standard deviation σ_i exactly (Var δU_i = σ_i² Σ_j w_ij²/Σ_j w_ij² = σ_i²). For ℓ
+//! well above the spacing the correlation between knots a distance r apart is ≈ exp(−r²/(4ℓ²)).
+//! Draw k takes its ξ from `engine::stream(seed, k)`; draws run in parallel (rayon) and are
+//! collected in draw order, so a report depends on the seed only, never on the thread count. Default
 //! ℓ = the median knot spacing (neighbouring rows of a free-energy profile are correlated because
 //! the same samples feed them); ℓ = 0 makes the knots independent. The kernel is cut at
 //! |x_i − x_j| < 6ℓ: there w² = e^(−36) ≈ 2e−16, below the rounding of Σ w² ≥ 1 (the diagonal
@@ -23,7 +25,9 @@
 //! quadratures split at the perturbed reactant, barrier and product and at the unperturbed
 //! stationary points, not at every spurious one (same integrals, far fewer panels). A draw whose
 //! analysis fails (no minimum in the basin, no barrier, a wall below the well) is counted and
-//! left out; more than 1% failed draws gives a warning.
+//! left out; more than 1% failed draws gives a warning. The central values are those of
+//! [`theory::analyse`] on the unperturbed profile (what the rate report shows); with σ_U = 0 every
+//! draw repeats them exactly.
 //!
 //! Summaries. Percentiles use linear interpolation between order statistics, position
 //! (M − 1)p in the sorted sample of M values (Hyndman & Fan, Am. Stat. 50, 361 (1996),
@@ -531,6 +535,8 @@ pub fn propagate(
         "dU_i = sigma_i * sum_j w_ij xi_j / sqrt(sum_j w_ij^2), xi_j iid N(0,1), w_ij = exp(-(x_i-x_j)^2/(2 l^2)), l = {ell:.4e}{}; {} draws, seed {}",
         if ell == 0.0 {
             " (independent knots)"
+        } else if opts.correlation_length.is_none() {
+            " (the median knot spacing)"
         } else {
             ""
         },
