@@ -395,6 +395,8 @@ impl Spline {
 #[derive(Debug, Clone)]
 pub struct Table {
     spline: Spline,
+    /// U at the knots (kT), as given to the spline
+    u: Vec<f64>,
     sigma_u: Option<Vec<f64>>,
     diffusion: Option<Spline>,
     wall_k: f64,
@@ -414,6 +416,7 @@ impl Table {
         let wall_k = 2.0 * WALL_RISE_KT / (width * width);
         Self {
             spline,
+            u,
             sigma_u: cols
                 .sigma_u
                 .as_ref()
@@ -423,6 +426,27 @@ impl Table {
             lo,
             hi,
         }
+    }
+    /// The same table with U at the knots replaced by `u` (kT): same x, σ_U, D column and walls.
+    /// Used to re-analyse a profile perturbed within its standard errors.
+    ///
+    /// # Panics
+    /// If `u` does not have one value per knot (a programming error, not user input).
+    pub fn with_knot_u(&self, u: &[f64]) -> Self {
+        assert_eq!(u.len(), self.u.len(), "one U value per knot");
+        Self {
+            spline: Spline::new(self.spline.knots(), u),
+            u: u.to_vec(),
+            sigma_u: self.sigma_u.clone(),
+            diffusion: self.diffusion.clone(),
+            wall_k: self.wall_k,
+            lo: self.lo,
+            hi: self.hi,
+        }
+    }
+    /// U at the knots (kT).
+    pub fn knot_u(&self) -> &[f64] {
+        &self.u
     }
     /// The spline of U.
     pub fn spline(&self) -> &Spline {
@@ -542,6 +566,32 @@ mod tests {
             Err(TableError::Whole(_))
         ));
         assert!(matches!(read_columns(b""), Err(TableError::Whole(_))));
+    }
+
+    // Rebuilding from the same knot values repeats the same arithmetic (bit-identical); a constant
+    // shift c moves U by c up to the rounding of U + c (1e-12 for |U| <= 72 kT here), and U'' by
+    // those roundings over h² = 0.01 (1e-9).
+    #[test]
+    fn rebuilt_from_knot_values() {
+        let x: Vec<f64> = (0..=40).map(|i| -2.0 + f64::from(i) * 0.1).collect();
+        let u: Vec<f64> = x.iter().map(|&x| 8.0 * (x * x - 1.0).powi(2)).collect();
+        let cols = Columns {
+            x: x.clone(),
+            u,
+            sigma_u: Some(vec![0.2; 41]),
+            d: Some(vec![1.5; 41]),
+        };
+        let t = Table::new(&cols, 0.5);
+        let same = t.with_knot_u(t.knot_u());
+        let shifted: Vec<f64> = t.knot_u().iter().map(|u| u + 0.3).collect();
+        let moved = t.with_knot_u(&shifted);
+        assert_eq!(same.sigma_u(), Some(&[0.1; 41][..]));
+        assert!(same.diffusion().is_some());
+        for &p in &[-2.5, -1.33, 0.0, 0.71, 1.99, 2.2] {
+            assert_eq!(same.u(p).to_bits(), t.u(p).to_bits());
+            assert!((moved.u(p) - t.u(p) - 0.3).abs() < 1e-12);
+            assert!((moved.d2u(p) - t.d2u(p)).abs() < 1e-9);
+        }
     }
 
     #[test]
