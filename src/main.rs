@@ -69,6 +69,13 @@ fn theory_of(m: &Model) -> Result<theory::TheoryReport, Failure> {
     theory::analyse(m).map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
 }
 
+/// The rates' intervals from a table's sigma_U column (None without one).
+fn uncertainty_of(m: &Model) -> Result<Option<escapade::uncertainty::UncertaintyReport>, Failure> {
+    let opts = escapade::uncertainty::UncertaintyOptions::for_model(m);
+    escapade::uncertainty::propagate(m, &opts)
+        .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
+}
+
 fn run(cli: Cli) -> Result<Done, Failure> {
     match cli.command {
         Command::Survey { file, plot, common } => {
@@ -91,7 +98,8 @@ fn run(cli: Cli) -> Result<Done, Failure> {
         Command::Rate { file, common } => {
             let m = load(Some(&file), &common)?;
             let t = theory_of(&m)?;
-            let r = RateReport::new(&m, &t);
+            let mut r = RateReport::new(&m, &t);
+            r.uncertainty = uncertainty_of(&m)?;
             ok(if common.json {
                 json::render(&r)
             } else {
@@ -346,7 +354,8 @@ fn simulate_cmd(
     }
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
-        let theory = RateReport::new(&m, &t);
+        let mut theory = RateReport::new(&m, &t);
+        theory.uncertainty = uncertainty_of(&m)?;
         let (comparison, verdict) =
             compare_rows(&theory.formulas, &out, t.landscape.barrier_height);
         let r = CompareReport {

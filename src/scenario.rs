@@ -665,10 +665,13 @@ impl Validator<'_> {
             "uncertainty.correlation_length",
             uncertainty.correlation_length.filter(|&c| c != 0.0),
         )?;
-        if matches!(uncertainty.draws, Some(n) if n < 20) {
+        if matches!(uncertainty.draws, Some(n) if n < crate::uncertainty::MIN_DRAWS as u64) {
             return Err(self.err(
                 "uncertainty.draws",
-                "must be at least 20 (percentile intervals need that many draws)",
+                format!(
+                    "must be at least {} (below that the 95% percentiles are the extreme draws)",
+                    crate::uncertainty::MIN_DRAWS
+                ),
             ));
         }
         if uncertainty_given

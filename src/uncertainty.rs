@@ -97,6 +97,18 @@ impl Default for UncertaintyOptions {
     }
 }
 
+impl UncertaintyOptions {
+    /// The options of a scenario's `[uncertainty]` section (defaults where absent).
+    pub fn for_model(m: &Model) -> Self {
+        let u = &m.uncertainty;
+        Self {
+            draws: u.draws.map_or(DEFAULT_DRAWS, |d| d as usize),
+            correlation_length: u.correlation_length,
+            seed: u.seed.unwrap_or(1),
+        }
+    }
+}
+
 /// Problems; [`UncertaintyError::key`] names the scenario key to look at.
 #[derive(Debug, Error, Clone, PartialEq)]
 #[non_exhaustive]

@@ -229,6 +229,8 @@ pub struct RateReport {
     pub depopulation: Option<f64>,
     /// periodic landscapes: drift, effective diffusion, hopping rates
     pub periodic: Option<PeriodicOut>,
+    /// intervals of every rate from the profile's sigma_U (tables with that column)
+    pub uncertainty: Option<crate::uncertainty::UncertaintyReport>,
 }
 
 impl SurveyReport {
@@ -258,6 +260,7 @@ impl RateReport {
             diffusion_barrier: t.diffusion_barrier,
             depopulation: t.depopulation,
             periodic: t.periodic.as_ref().map(|p| PeriodicOut::new(p, &m.units)),
+            uncertainty: None,
         }
     }
 }

@@ -218,8 +218,79 @@ pub fn rate(r: &RateReport) -> String {
     if let Some(p) = &r.periodic {
         periodic_theory(&mut out, p, &u);
     }
+    if let Some(q) = &r.uncertainty {
+        uncertainty(&mut out, q, &r.formulas, &u);
+    }
     warnings(&mut out, &reg.warnings);
     out
+}
+
+/// The rates' spread over perturbed profiles.
+fn uncertainty(
+    out: &mut String,
+    q: &crate::uncertainty::UncertaintyReport,
+    rows: &[crate::theory::RateRow],
+    u: &U,
+) {
+    let _ = writeln!(
+        out,
+        "profile uncertainty: {} perturbed profiles (Gaussian noise of the table's sigma_U, correlation length {} {}, seed {}){}",
+        q.draws,
+        num(q.correlation_length),
+        u.l,
+        q.seed,
+        if q.failed > 0 {
+            format!(", {} could not be analysed", q.failed)
+        } else {
+            String::new()
+        }
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "quantity".to_string(),
+        "unperturbed".to_string(),
+        "median".to_string(),
+        "68% interval".to_string(),
+        "95% interval".to_string(),
+    ]);
+    let iv = |v: [f64; 2]| format!("[{}, {}]", num(v[0]), num(v[1]));
+    t.add_row(vec![
+        "barrier height E_b (kT)".to_string(),
+        num(q.barrier.central),
+        num(q.barrier.median),
+        iv(q.barrier.ci68),
+        iv(q.barrier.ci95),
+    ]);
+    for i in &q.rates {
+        let label = rows
+            .iter()
+            .find(|r| r.key == i.key)
+            .map_or(i.key, |r| r.label);
+        t.add_row(vec![
+            format!("{label} (1/{})", u.t),
+            num(i.central),
+            num(i.median),
+            iv(i.ci68),
+            iv(i.ci95),
+        ]);
+    }
+    let _ = writeln!(out, "{t}");
+    for d in &q.decompositions {
+        if let (Some(b), Some(p), Some(c)) =
+            (d.barrier_share, d.prefactor_share, d.covariance_share)
+        {
+            let _ = writeln!(
+                out,
+                "spread of ln k ({}): variance {}; share from the barrier height {}, from the prefactor (curvatures) {}, covariance term {}",
+                d.key,
+                num(d.var_ln_k),
+                num(b),
+                num(p),
+                num(c)
+            );
+        }
+    }
+    warnings(out, &q.warnings);
 }
 
 /// The periodic landscape's drift, diffusion and hopping rates (theory).
