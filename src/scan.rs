@@ -379,7 +379,19 @@ pub fn run(
                 hop_forward: p.hopping.as_ref().map(|h| h.forward),
                 hop_backward: p.hopping.as_ref().map(|h| h.backward),
             }),
-            uncertainty: None,
+            uncertainty: if m.uncertainty_given {
+                let opts = crate::uncertainty::UncertaintyOptions::for_model(&m);
+                crate::uncertainty::propagate(&m, &opts)
+                    .map_err(|e| ScanError::Point {
+                        file: file.display().to_string(),
+                        key: spec.key.clone(),
+                        value: v,
+                        message: format!("{}: {e}", e.key()),
+                    })?
+                    .map(|u| u.rates)
+            } else {
+                None
+            },
             simulation,
         });
     }

@@ -20,10 +20,31 @@ pub fn scan(r: &ScanReport) -> String {
     for k in RATE_KEYS {
         let _ = write!(out, ",{k}");
     }
-    let _ = writeln!(
+    let unc = r.points.iter().any(|p| p.uncertainty.is_some());
+    if unc {
+        for k in RATE_KEYS {
+            let _ = write!(out, ",{k}_lo95,{k}_hi95");
+        }
+    }
+    let per = r.points.iter().any(|p| p.periodic.is_some());
+    if per {
+        let _ = write!(out, ",drift,effective_diffusion,hop_forward,hop_backward");
+    }
+    let _ = write!(
         out,
         ",simulation_method,simulation_rate,simulation_lo,simulation_hi"
     );
+    let _ = write!(
+        out,
+        ",simulation_well_to_well,simulation_well_to_well_lo,simulation_well_to_well_hi"
+    );
+    if per {
+        let _ = write!(
+            out,
+            ",simulation_drift,simulation_drift_lo,simulation_drift_hi,simulation_effective_diffusion,simulation_effective_diffusion_lo,simulation_effective_diffusion_hi,simulation_hop_forward,simulation_hop_backward"
+        );
+    }
+    out.push('\n');
     for p in &r.points {
         let _ = write!(
             out,
@@ -37,18 +58,81 @@ pub fn scan(r: &ScanReport) -> String {
         for k in RATE_KEYS {
             let _ = write!(out, ",{}", f(rate_of(&p.rates, k)));
         }
-        match &p.simulation {
-            Some(s) => {
-                let _ = writeln!(
+        if unc {
+            for k in RATE_KEYS {
+                let i = p
+                    .uncertainty
+                    .as_ref()
+                    .and_then(|v| v.iter().find(|i| i.key == k));
+                let _ = write!(
                     out,
-                    ",{},{:?},{:?},{:?}",
-                    s.method, s.rate, s.rate_ci95[0], s.rate_ci95[1]
+                    ",{},{}",
+                    f(i.map(|i| i.ci95[0])),
+                    f(i.map(|i| i.ci95[1]))
                 );
             }
+        }
+        if per {
+            periodic_fields(&mut out, p.periodic.as_ref(), false);
+        }
+        match &p.simulation {
+            Some(s) => {
+                let _ = write!(
+                    out,
+                    ",{},{:?},{:?},{:?},{},{},{}",
+                    s.method,
+                    s.rate,
+                    s.rate_ci95[0],
+                    s.rate_ci95[1],
+                    f(s.well_to_well),
+                    f(s.well_to_well_ci95.map(|c| c[0])),
+                    f(s.well_to_well_ci95.map(|c| c[1]))
+                );
+                if per {
+                    periodic_fields(&mut out, s.periodic.as_ref(), true);
+                }
+            }
             None => {
-                let _ = writeln!(out, ",,,,");
+                let _ = write!(out, ",,,,,,,");
+                if per {
+                    out.push_str(",,,,,,,,");
+                }
             }
         }
+        out.push('\n');
     }
     out
+}
+
+/// Drift, D_eff and hopping fields (with the intervals for a simulated point).
+fn periodic_fields(out: &mut String, p: Option<&crate::scan::PeriodicPoint>, sim: bool) {
+    let ci = |c: Option<[f64; 2]>, i: usize| f(c.map(|c| c[i]));
+    match (p, sim) {
+        (Some(p), true) => {
+            let _ = write!(
+                out,
+                ",{:?},{},{},{},{},{},{},{}",
+                p.drift,
+                ci(p.drift_ci95, 0),
+                ci(p.drift_ci95, 1),
+                f(p.effective_diffusion),
+                ci(p.effective_diffusion_ci95, 0),
+                ci(p.effective_diffusion_ci95, 1),
+                f(p.hop_forward),
+                f(p.hop_backward)
+            );
+        }
+        (Some(p), false) => {
+            let _ = write!(
+                out,
+                ",{:?},{},{},{}",
+                p.drift,
+                f(p.effective_diffusion),
+                f(p.hop_forward),
+                f(p.hop_backward)
+            );
+        }
+        (None, true) => out.push_str(",,,,,,,,"),
+        (None, false) => out.push_str(",,,,"),
+    }
 }

@@ -783,15 +783,59 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
     for k in &present {
         head.push(format!("{k} (1/{})", u.t));
     }
+    let unc = r.points.iter().any(|p| p.uncertainty.is_some());
+    if unc {
+        head.push(format!("1/MFPT 95% from σ_U (1/{})", u.t));
+    }
+    let per = r.points.iter().any(|p| p.periodic.is_some());
+    if per {
+        head.push(format!("drift ({}/{})", u.l, u.t));
+        head.push(format!("D_eff ({}²/{})", u.l, u.t));
+        head.push(format!("k+ / k− (1/{})", u.t));
+    }
     let sim = r.points.iter().any(|p| p.simulation.is_some());
     if sim {
-        head.push(format!("simulated (1/{}) [95%]", u.t));
+        head.push(format!("simulated escape (1/{}) [95%]", u.t));
+    }
+    let sim_ww = r.points.iter().any(|p| {
+        p.simulation
+            .as_ref()
+            .is_some_and(|s| s.well_to_well.is_some())
+    });
+    if sim_ww {
+        head.push(format!("simulated well-to-well (1/{}) [95%]", u.t));
+    }
+    let sim_per = r
+        .points
+        .iter()
+        .any(|p| p.simulation.as_ref().is_some_and(|s| s.periodic.is_some()));
+    if sim_per {
+        head.push("simulated drift, D_eff [95%]".to_string());
     }
     t.set_header(head);
+    let iv = |v: Option<[f64; 2]>| {
+        v.map_or_else(|| "—".into(), |[a, b]| format!("[{}, {}]", num(a), num(b)))
+    };
     for p in &r.points {
         let mut row = vec![num(p.value), p.regime.to_string(), num(p.barrier_height_kt)];
         for k in &present {
             row.push(opt(rate_of(&p.rates, k)));
+        }
+        if unc {
+            row.push(iv(p
+                .uncertainty
+                .as_ref()
+                .and_then(|v| v.iter().find(|i| i.key == "mfpt"))
+                .map(|i| i.ci95)));
+        }
+        if per {
+            let q = p.periodic.as_ref();
+            row.push(q.map_or_else(|| "—".into(), |q| num(q.drift)));
+            row.push(opt(q.and_then(|q| q.effective_diffusion)));
+            row.push(q.map_or_else(
+                || "—".into(),
+                |q| format!("{} / {}", opt(q.hop_forward), opt(q.hop_backward)),
+            ));
         }
         if sim {
             row.push(p.simulation.as_ref().map_or_else(
@@ -803,6 +847,29 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
                         num(s.rate_ci95[0]),
                         num(s.rate_ci95[1]),
                         s.method
+                    )
+                },
+            ));
+        }
+        if sim_ww {
+            let s = p.simulation.as_ref();
+            row.push(iv(s.and_then(|s| s.well_to_well_ci95)).replacen(
+                '[',
+                &format!("{} [", opt(s.and_then(|s| s.well_to_well))),
+                1,
+            ));
+        }
+        if sim_per {
+            let q = p.simulation.as_ref().and_then(|s| s.periodic.as_ref());
+            row.push(q.map_or_else(
+                || "—".into(),
+                |q| {
+                    format!(
+                        "{} {}, {} {}",
+                        num(q.drift),
+                        iv(q.drift_ci95),
+                        opt(q.effective_diffusion),
+                        iv(q.effective_diffusion_ci95)
                     )
                 },
             ));
