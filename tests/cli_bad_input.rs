@@ -513,6 +513,62 @@ const CASES: &[Case] = &[
         "unexpected argument",
         "",
     ),
+    // --- periodic profiles, profile uncertainty, well-to-well and memory runs ---
+    case(
+        "rate",
+        "periodic_not_periodic.toml",
+        "potential.periodic",
+        "the profile is not periodic",
+    ),
+    case(
+        "survey",
+        "periodic_too_long.toml",
+        "potential.periodic",
+        "longer than the domain",
+    ),
+    with_args(
+        "rate",
+        "good.toml",
+        &["--set", "potential.periodic=2"],
+        "",
+        "potential.periodic",
+        "expr and table",
+    ),
+    with_args(
+        "rate",
+        "good.toml",
+        &["--set", "uncertainty.draws=100"],
+        "",
+        "uncertainty",
+        "sigma_U column",
+    ),
+    case(
+        "rate",
+        "uncertainty_few_draws.toml",
+        "uncertainty.draws",
+        "at least 40",
+    ),
+    with_args(
+        "rate",
+        "good.toml",
+        &["--set", "simulation.transitions=0"],
+        "",
+        "simulation.transitions",
+        "at least 1",
+    ),
+    with_args(
+        "simulate",
+        "good.toml",
+        &[
+            "--set",
+            "particle.memory_time=0.5",
+            "--set",
+            "simulation.dynamics=overdamped",
+        ],
+        "",
+        "simulation.dynamics",
+        "memory",
+    ),
     // no scenario file at all: the message must say which argument is missing
     with_args("survey", "", &[], "<FILE>", "required", ""),
 ];
