@@ -203,6 +203,8 @@ pub struct SimulationSection {
     pub well_to_well: Option<bool>,
     /// well-to-well transitions expected over the whole count (sets the trajectory length)
     pub transitions: Option<u64>,
+    /// independent long trajectories for the well-to-well count and periodic measurements
+    pub long_trajectories: Option<u64>,
 }
 
 /// The file as written.
@@ -802,6 +804,12 @@ impl Validator<'_> {
         self.positive("simulation.budget_steps", s.budget_steps)?;
         if s.trajectories == Some(0) {
             return Err(self.err("simulation.trajectories", "must be at least 1"));
+        }
+        if matches!(s.long_trajectories, Some(n) if n < 2) {
+            return Err(self.err(
+                "simulation.long_trajectories",
+                "must be at least 2 (intervals come from their spread)",
+            ));
         }
         if s.transitions == Some(0) {
             return Err(self.err("simulation.transitions", "must be at least 1"));

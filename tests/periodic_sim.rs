@@ -26,7 +26,7 @@ fn bessel_i0(x: f64) -> f64 {
     sum
 }
 
-const WB: &str = "[particle]\ndiffusion = 1.0\n[potential]\nfamily = \"washboard\"\namplitude = 2.0\nperiod = 1.0\ntilt = 0.0\n[simulation]\nseed = 11\ntrajectories = 96\n";
+const WB: &str = "[particle]\ndiffusion = 1.0\n[potential]\nfamily = \"washboard\"\namplitude = 2.0\nperiod = 1.0\ntilt = 0.0\n[simulation]\nseed = 11\nlong_trajectories = 96\n";
 
 // Untilted washboard U = −A cos(2πx/L), A = 2 kT: D_eff = D/I0(A/kT)² (Lifson–Jackson closed
 // form). The estimate's relative standard error is sqrt(2/(N−1)) over N = 96 × 64 block
@@ -79,7 +79,7 @@ fn untilted_washboard_effective_diffusion_matches_lifson_jackson() {
 // Results depend on the seed only.
 #[test]
 fn periodic_runs_do_not_depend_on_threads() {
-    let (m, t) = model(WB, &["simulation.trajectories=4"]);
+    let (m, t) = model(WB, &["simulation.long_trajectories=4"]);
     let plan = Plan::new(&m, &t).unwrap();
     let k = 2.0 * t.rates.mfpt.unwrap();
     let stop = AtomicBool::new(false);

@@ -830,7 +830,10 @@ pub fn run_transitions(
     stop: &AtomicBool,
 ) -> Result<(transitions::TransitionResult, f64), SimError> {
     let l = &t.landscape;
-    let n = transitions::DEFAULT_TRANSITION_TRAJECTORIES;
+    let n = plan
+        .section
+        .long_trajectories
+        .unwrap_or(transitions::DEFAULT_TRANSITION_TRAJECTORIES);
     let k = t
         .rates
         .well_to_well
@@ -883,13 +886,12 @@ pub fn run_transitions(
 
 /// The size of a [`run_periodic`] run: (trajectories, recorded blocks, steps per block, total
 /// steps). Blocks last [`periodic::BLOCK_HOP_TIMES`] expected hopping times from `hop_total` (the
-/// theory's k₊ + k₋); `simulation.trajectories` (default 32) long trajectories.
+/// theory's k₊ + k₋); `simulation.long_trajectories` (default 32) long trajectories.
 pub fn periodic_size(plan: &Plan, hop_total: f64) -> (u64, u64, u64, f64) {
     let n = plan
         .section
-        .trajectories
-        .unwrap_or(periodic::DEFAULT_PERIODIC_TRAJECTORIES)
-        .max(2);
+        .long_trajectories
+        .unwrap_or(periodic::DEFAULT_PERIODIC_TRAJECTORIES);
     let blocks = periodic::DEFAULT_BLOCKS;
     let block_steps = (periodic::BLOCK_HOP_TIMES / hop_total / plan.params.dt)
         .ceil()
