@@ -217,6 +217,13 @@ pub fn rate(r: &RateReport) -> String {
     }
     if let Some(p) = &r.periodic {
         periodic_theory(&mut out, p, &u);
+        if reg.name != crate::theory::regime::RegimeName::Overdamped {
+            let _ = writeln!(
+                out,
+                "note: the exact drift, D_eff and hop rates above are those of overdamped dynamics; in the {} regime inertia matters: the Kramers hop rates apply, and the long simulated trajectories measure the rest",
+                reg.name.as_str()
+            );
+        }
     }
     if let Some(q) = &r.uncertainty {
         uncertainty(&mut out, q, &r.formulas, &u);

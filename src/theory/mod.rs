@@ -6,7 +6,6 @@
 pub mod kramers;
 pub mod mfpt;
 pub mod periodic;
-pub mod pgh;
 pub mod regime;
 pub mod tst;
 pub mod turnover;

@@ -1,1 +1,0 @@
-//! Pollak–Grabert–Hänggi turnover rate (placeholder; being written).
