@@ -22,6 +22,11 @@ pub fn num(v: f64) -> String {
     }
 }
 
+/// "v [lo, hi]".
+fn with_ci(v: f64, [lo, hi]: [f64; 2]) -> String {
+    format!("{} [{}, {}]", num(v), num(lo), num(hi))
+}
+
 fn opt(v: Option<f64>) -> String {
     v.map_or_else(|| "—".into(), num)
 }
@@ -517,51 +522,39 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
     if let Some(w) = &s.well_to_well {
         let _ = writeln!(
             out,
-            "well-to-well (counted transitions, not the escape): {} trajectories × {} {}, {} forward and {} back; rate out of the reactant well {} /{} [{}, {}], out of the product well {} /{} [{}, {}]\n  states: {}",
+            "well-to-well (counted transitions, not the escape): {} trajectories × {} {}, {} forward and {} back; rate out of the reactant well {} /{}, out of the product well {} /{}\n  states: {}",
             w.trajectories,
             num(w.time_per_trajectory),
             u.t,
             w.forward,
             w.backward,
-            num(w.rate),
+            with_ci(w.rate, w.rate_ci95),
             u.t,
-            num(w.rate_ci95[0]),
-            num(w.rate_ci95[1]),
-            num(w.rate_back),
+            with_ci(w.rate_back, w.rate_back_ci95),
             u.t,
-            num(w.rate_back_ci95[0]),
-            num(w.rate_back_ci95[1]),
             w.rule
         );
     }
     if let Some(p) = &s.periodic {
         let _ = writeln!(
             out,
-            "periodic landscape (long trajectories on the whole line): {} trajectories × {} blocks of {} {}; drift {} {}/{} [{}, {}], D_eff {} {}²/{} [{}, {}]; hops out of the reactant well {} forward, {} back: k+ {} /{} [{}, {}], k− {} /{} [{}, {}]",
+            "periodic landscape (long trajectories on the whole line): {} trajectories × {} blocks of {} {}; drift {} {}/{}, D_eff {} {}²/{}; hops out of the reactant well {} forward, {} back: k+ {} /{}, k− {} /{}",
             p.trajectories,
             p.blocks,
             num(p.block_time),
             u.t,
-            num(p.drift),
+            with_ci(p.drift, p.drift_ci95),
             u.l,
             u.t,
-            num(p.drift_ci95[0]),
-            num(p.drift_ci95[1]),
-            num(p.effective_diffusion),
+            with_ci(p.effective_diffusion, p.effective_diffusion_ci95),
             u.l,
             u.t,
-            num(p.effective_diffusion_ci95[0]),
-            num(p.effective_diffusion_ci95[1]),
             p.hops_forward,
             p.hops_backward,
-            num(p.hop_forward),
+            with_ci(p.hop_forward, p.hop_forward_ci95),
             u.t,
-            num(p.hop_forward_ci95[0]),
-            num(p.hop_forward_ci95[1]),
-            num(p.hop_backward),
+            with_ci(p.hop_backward, p.hop_backward_ci95),
             u.t,
-            num(p.hop_backward_ci95[0]),
-            num(p.hop_backward_ci95[1]),
         );
     }
     let _ = writeln!(

@@ -736,15 +736,7 @@ pub fn run_rare(
     threads: usize,
     stop: &AtomicBool,
 ) -> Result<(RareResult, f64, usize), SimError> {
-    let threads = if threads == 0 {
-        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
-    } else {
-        threads
-    };
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .expect("a thread pool");
+    let (pool, threads) = pool_for(threads);
     let l = &t.landscape;
     let t0 = std::time::Instant::now();
     let res = pool.install(|| match plan.method {
@@ -812,6 +804,20 @@ pub fn run_rare(
     Ok((res, t0.elapsed().as_secs_f64(), threads))
 }
 
+/// A rayon pool of `threads` threads (0 = all cores), and that number.
+fn pool_for(threads: usize) -> (rayon::ThreadPool, usize) {
+    let threads = if threads == 0 {
+        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
+    } else {
+        threads
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool");
+    (pool, threads)
+}
+
 /// Planned stage probability for user-given interfaces (unknown in advance).
 const STAGE_GUESS: f64 = 0.2;
 
@@ -859,15 +865,7 @@ pub fn run_transitions(
             ),
         ));
     }
-    let threads = if threads == 0 {
-        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
-    } else {
-        threads
-    };
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .expect("a thread pool");
+    let (pool, _) = pool_for(threads);
     let t0 = std::time::Instant::now();
     let r = pool.install(|| {
         with_force!(plan, |f, mb| transitions::run(
@@ -929,15 +927,7 @@ pub fn run_periodic(
             ),
         ));
     }
-    let threads = if threads == 0 {
-        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
-    } else {
-        threads
-    };
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .expect("a thread pool");
+    let (pool, _) = pool_for(threads);
     let t0 = std::time::Instant::now();
     let r = pool.install(|| {
         with_force!(plan, |f, mb| {
