@@ -315,42 +315,14 @@ fn simulate_cmd(
     };
     let mut out = out;
     let mut interrupted = interrupted;
-    if !interrupted && plan.section.well_to_well == Some(true) {
-        if !common.quiet && !common.json {
-            eprintln!("counting well-to-well transitions in long trajectories");
+    if shard.is_some() {
+        if plan.section.well_to_well == Some(true) || t.periodic.is_some() {
+            out.warnings.push(
+                "the long-trajectory measurements (well-to-well count; periodic drift, diffusion and hopping) are not split into shards: run them without --shard".into(),
+            );
         }
-        match simulate::run_transitions(&plan, &m, &t, sim.threads, &STOP) {
-            Ok((w, wall)) => {
-                out.total_steps += w.total_steps;
-                out.wall_seconds += wall;
-                out.well_to_well = Some(w);
-            }
-            Err(simulate::SimError::Interrupted) => interrupted = true,
-            Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
-        }
-    }
-    if !interrupted && let Some(h) = t.periodic.as_ref().and_then(|p| p.hopping.as_ref()) {
-        let (_, _, _, steps) = simulate::periodic_size(&plan, h.forward + h.backward);
-        if steps > plan.budget_steps {
-            out.warnings.push(format!(
-                "periodic landscape: measuring drift and diffusion would take about {steps:.2e} steps, over simulation.budget_steps = {:.2e}; raise the budget to run it",
-                plan.budget_steps
-            ));
-        } else {
-            if !common.quiet && !common.json {
-                eprintln!("measuring drift, diffusion and hopping in long trajectories");
-            }
-            match simulate::run_periodic_for(&plan, &t, sim.threads, &STOP) {
-                Ok(Some((p, wall))) => {
-                    out.total_steps += p.total_steps;
-                    out.wall_seconds += wall;
-                    out.periodic = Some(p);
-                }
-                Ok(None) => {}
-                Err(simulate::SimError::Interrupted) => interrupted = true,
-                Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
-            }
-        }
+    } else if !interrupted {
+        long_runs(&m, &t, &plan, common, sim, &mut out, &mut interrupted)?;
     }
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
@@ -383,6 +355,58 @@ fn simulate_cmd(
         }
     };
     Ok(Done { text, code })
+}
+
+/// The long-trajectory measurements after the escape run: the well-to-well count (when asked
+/// for) and, for periodic landscapes, drift, diffusion and hopping (when the cost fits the budget).
+/// Sets `interrupted` on Ctrl-C.
+fn long_runs(
+    m: &Model,
+    t: &theory::TheoryReport,
+    plan: &Plan,
+    common: &Common,
+    sim: &SimOpts,
+    out: &mut SimulationOut,
+    interrupted: &mut bool,
+) -> Result<(), Failure> {
+    if plan.section.well_to_well == Some(true) {
+        if !common.quiet && !common.json {
+            eprintln!("counting well-to-well transitions in long trajectories");
+        }
+        match simulate::run_transitions(plan, m, t, sim.threads, &STOP) {
+            Ok((w, wall)) => {
+                out.total_steps += w.total_steps;
+                out.wall_seconds += wall;
+                out.well_to_well = Some(w);
+            }
+            Err(simulate::SimError::Interrupted) => *interrupted = true,
+            Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+        }
+    }
+    if !*interrupted && let Some(h) = t.periodic.as_ref().and_then(|p| p.hopping.as_ref()) {
+        let (_, _, _, steps) = simulate::periodic_size(plan, h.forward + h.backward);
+        if steps > plan.budget_steps {
+            out.warnings.push(format!(
+                "periodic landscape: measuring drift and diffusion would take about {steps:.2e} steps, over simulation.budget_steps = {:.2e}; raise the budget to run it",
+                plan.budget_steps
+            ));
+        } else {
+            if !common.quiet && !common.json {
+                eprintln!("measuring drift, diffusion and hopping in long trajectories");
+            }
+            match simulate::run_periodic_for(plan, t, sim.threads, &STOP) {
+                Ok(Some((p, wall))) => {
+                    out.total_steps += p.total_steps;
+                    out.wall_seconds += wall;
+                    out.periodic = Some(p);
+                }
+                Ok(None) => {}
+                Err(simulate::SimError::Interrupted) => *interrupted = true,
+                Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+            }
+        }
+    }
+    Ok(())
 }
 
 fn merge_cmd(files: &[PathBuf], as_json: bool, output: Option<&Path>) -> Result<Done, Failure> {
