@@ -742,6 +742,17 @@ impl Validator<'_> {
         };
         let start = inside("states.start", sf.states.start)?;
         let target = inside("states.target", sf.states.target)?;
+        // a target on a wall is never reached: the wall reflects first
+        if let Some(x) = target
+            && (x == lo || x == hi)
+        {
+            return Err(self.err(
+                "states.target",
+                format!(
+                    "{x} is a domain end, where the wall reflects every trajectory: put the target inside [{lo}, {hi}]"
+                ),
+            ));
+        }
         // the washboard's reference well is the one at the origin
         let start = start.or(match potential {
             AnyPotential::Family(Family::Washboard { .. }) => Some(0.0),

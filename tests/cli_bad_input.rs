@@ -513,6 +513,7 @@ const CASES: &[Case] = &[
         "unexpected argument",
         "",
     ),
+    case("rate", "target_on_wall.toml", "states.target", "domain end"),
     // --- periodic profiles, profile uncertainty, well-to-well and memory runs ---
     case(
         "rate",
