@@ -33,8 +33,9 @@ use std::sync::atomic::{AtomicBool, Ordering};
 pub const CORE_MARGIN_KT: f64 = 3.0;
 /// Default number of independent long trajectories.
 pub const DEFAULT_TRANSITION_TRAJECTORIES: u64 = 32;
-/// Default number of expected transitions over all trajectories (a 10% relative 95% half-width).
-pub const DEFAULT_TRANSITIONS: f64 = 400.0;
+/// Default number of expected transitions over all trajectories, both directions: about 400 out
+/// of each well of a symmetric double well, a 10% relative 95% half-width on each rate.
+pub const DEFAULT_TRANSITIONS: f64 = 800.0;
 
 /// The counted transitions and the rates they give.
 #[derive(Debug, Clone, Serialize)]
