@@ -387,7 +387,10 @@ fn long_runs(
         }
     }
     if !*interrupted && let Some(h) = t.periodic.as_ref().and_then(|p| p.hopping.as_ref()) {
-        let (_, _, _, steps) = simulate::periodic_size(plan, h.forward + h.backward);
+        let (_, _, _, steps) = simulate::periodic_size(
+            plan,
+            simulate::periodic_rate(t).unwrap_or(h.forward + h.backward),
+        );
         if steps > plan.budget_steps {
             out.warnings.push(format!(
                 "periodic landscape: measuring drift and diffusion would take about {steps:.2e} steps, over simulation.budget_steps = {:.2e}; raise the budget to run it",

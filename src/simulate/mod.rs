@@ -883,15 +883,16 @@ pub fn run_transitions(
 }
 
 /// The size of a [`run_periodic`] run: (trajectories, recorded blocks, steps per block, total
-/// steps). Blocks last [`periodic::BLOCK_HOP_TIMES`] expected hopping times from `hop_total` (the
-/// theory's k₊ + k₋); `simulation.long_trajectories` (default 32) long trajectories.
-pub fn periodic_size(plan: &Plan, hop_total: f64) -> (u64, u64, u64, f64) {
+/// steps). Blocks last [`periodic::BLOCK_TIMES`] / `rate`, `rate` the slowest rate of moving on by
+/// one period (see [`run_periodic_for`]); `simulation.long_trajectories` (default 32) long
+/// trajectories.
+pub fn periodic_size(plan: &Plan, rate: f64) -> (u64, u64, u64, f64) {
     let n = plan
         .section
         .long_trajectories
         .unwrap_or(periodic::DEFAULT_PERIODIC_TRAJECTORIES);
     let blocks = periodic::DEFAULT_BLOCKS;
-    let block_steps = (periodic::BLOCK_HOP_TIMES / hop_total / plan.params.dt)
+    let block_steps = (periodic::BLOCK_TIMES / rate / plan.params.dt)
         .ceil()
         .clamp(1.0, 1e15);
     let total = block_steps * (blocks + 1) as f64 * n as f64;
@@ -900,8 +901,9 @@ pub fn periodic_size(plan: &Plan, hop_total: f64) -> (u64, u64, u64, f64) {
 
 /// Runs the long-trajectory measurements of [`periodic`] (drift, effective diffusion, hopping
 /// rates) for a periodic landscape: `minima` are the minima of one period (reactant first),
-/// `origin` the start of the base period on which the force is known, `hop_total` the theory's
-/// k₊ + k₋ (sets the block length, [`periodic_size`]). Returns the result and the wall time.
+/// `origin` the start of the base period on which the force is known, `rate` the slowest rate of
+/// moving on by one period (sets the block length, [`periodic_size`]). Returns the result and the
+/// wall time.
 ///
 /// # Errors
 /// A run beyond [`REFUSE_FACTOR`] × the step budget, or an interruption.
@@ -911,18 +913,18 @@ pub fn run_periodic(
     minima: &[f64],
     origin: f64,
     period: f64,
-    hop_total: f64,
+    rate: f64,
     threads: usize,
     stop: &AtomicBool,
 ) -> Result<(periodic::PeriodicSimResult, f64), SimError> {
-    let (n, blocks, block_steps, total) = periodic_size(plan, hop_total);
+    let (n, blocks, block_steps, total) = periodic_size(plan, rate);
     if total > REFUSE_FACTOR * plan.budget_steps {
         return Err(key_err(
             "simulation.budget_steps",
             format!(
-                "measuring drift and diffusion needs about {total:.2e} steps ({n} trajectories × {} blocks of {block_steps} steps, a block being {} expected hopping times), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower the barrier, use fewer trajectories or raise the budget",
+                "measuring drift and diffusion needs about {total:.2e} steps ({n} trajectories × {} blocks of {block_steps} steps, a block being {} times the slowest time to move on by one period), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: lower the barrier, use fewer trajectories or raise the budget",
                 blocks + 1,
-                periodic::BLOCK_HOP_TIMES,
+                periodic::BLOCK_TIMES,
                 plan.budget_steps
             ),
         ));
@@ -940,8 +942,9 @@ pub fn run_periodic(
 }
 
 /// The periodic measurements for an analysed periodic landscape (`t.periodic` with hopping):
-/// the minima of one period from the landscape's stationary points, the base period's origin, and
-/// the exact overdamped k₊ + k₋ for the block length. `None` when the landscape is not periodic or
+/// the minima of one period, the base period's origin, and for the block length the slowest rate
+/// of moving on by one period, min(k₊ + k₋, 2 D_eff/L²) (exact overdamped values; the second is
+/// the slower one when a period holds several wells). `None` when the landscape is not periodic or
 /// has no minimum (running state).
 ///
 /// # Errors
@@ -958,29 +961,26 @@ pub fn run_periodic_for(
     let Some(h) = &p.hopping else {
         return Ok(None);
     };
-    let minima = periodic_minima(&t.landscape, h.reactant, p.period);
+    let rate = periodic_rate(t).unwrap_or(h.forward + h.backward);
     run_periodic(
         plan,
-        &minima,
+        &h.period_minima,
         p.origin,
         p.period,
-        h.forward + h.backward,
+        rate,
         threads,
         stop,
     )
     .map(Some)
 }
 
-/// The minima in [x_a, x_a + L) among the landscape's stationary points, x_a first.
-pub fn periodic_minima(l: &crate::landscape::Landscape, x_a: f64, period: f64) -> Vec<f64> {
-    // a minimum within 1e-9 periods of x_a + L is the next copy of x_a
-    let end = x_a + period * (1.0 - 1e-9);
-    let mut m: Vec<f64> = l
-        .points
-        .iter()
-        .filter(|p| p.kind == crate::landscape::Kind::Minimum && p.x > x_a && p.x < end)
-        .map(|p| p.x)
-        .collect();
-    m.insert(0, x_a);
-    m
+/// The slowest rate of moving on by one period, min(k₊ + k₋, 2 D_eff/L²), from the exact
+/// overdamped periodic theory (`None` without it).
+pub fn periodic_rate(t: &TheoryReport) -> Option<f64> {
+    let p = t.periodic.as_ref()?;
+    let h = p.hopping.as_ref()?;
+    let d_eff = p
+        .effective_diffusion
+        .unwrap_or(p.effective_diffusion_untilted);
+    Some((h.forward + h.backward).min(2.0 * d_eff / (p.period * p.period)))
 }

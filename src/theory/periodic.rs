@@ -355,6 +355,8 @@ pub struct Hopping {
     pub barrier_backward: f64,
     /// x_± = x_a ± L (one minimum per period)
     pub one_well_per_period: bool,
+    /// the minima of one period [x_a, x_a + L), x_a first (the sites of the long simulations)
+    pub period_minima: Vec<f64>,
     /// splitting probability π_+ (reach x_+ before x_−)
     pub splitting_forward: f64,
     /// exact overdamped MFPT from x_a to either neighbour
@@ -760,8 +762,18 @@ fn hopping(
         let wb = (b.curvature.abs() / m).sqrt();
         Some(kramers::lambda_plus(gamma, wb) / wb * wa / (2.0 * PI) * (-e).exp())
     };
+    // one period's minima from x_a on; copies of x_a within the snap are x_a itself
+    let period_minima: Vec<f64> = std::iter::once(xa)
+        .chain(
+            minima
+                .iter()
+                .map(|p| p.x)
+                .filter(|&x| x > xa + snap && x < xa + l - snap),
+        )
+        .collect();
     Ok(Some(Hopping {
         reactant: xa,
+        period_minima,
         forward_minimum: xp,
         backward_minimum: xm,
         forward_barrier_top: bp.x,
