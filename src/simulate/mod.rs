@@ -39,6 +39,8 @@ pub const DT_RELAXATION_FRACTION: f64 = 0.02;
 pub const DT_FRICTION: f64 = 0.2;
 /// Default horizon, in expected escape times.
 pub const HORIZON_ESCAPE_TIMES: f64 = 20.0;
+/// A memory time below this fraction of dt is simulated as memoryless friction.
+pub const MEMORY_NEGLIGIBLE: f64 = 1e-9;
 /// Default ensemble size.
 pub const DEFAULT_TRAJECTORIES: u64 = 1000;
 
@@ -295,6 +297,17 @@ impl Plan {
         let mobility = match (&m.diffusion, dynamics) {
             (Diffusion::Constant(_), _) | (_, Dynamics::Underdamped) => None,
             (d, Dynamics::Overdamped) => Some(GridD::new(d, lo, hi)),
+        };
+        // a memory far shorter than the step is memoryless friction to O(τ/dt); the memory
+        // variable's spread sqrt(mγ/τ) would otherwise leave floating point
+        let (kind, scheme) = match memory {
+            Some(tau) if kind == Kind::BaoabMemory && tau < MEMORY_NEGLIGIBLE * dt => {
+                warnings.push(format!(
+                    "memory_time = {tau:.3e} is below {MEMORY_NEGLIGIBLE:.0e} dt: simulated as memoryless friction (relative error of order tau/dt)"
+                ));
+                (Kind::Baoab, "baoab")
+            }
+            _ => (kind, scheme),
         };
         let params = Params {
             kind,
