@@ -147,6 +147,9 @@ pub struct PotentialSection {
     pub periodic: Option<f64>,
 }
 
+/// Most perturbed profiles accepted (each is a full re-analysis; a million already takes hours).
+const MAX_DRAWS: u64 = 1_000_000;
+
 /// `[uncertainty]`: how a table's sigma_U column is propagated into the rates
 #[derive(Debug, Clone, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -667,6 +670,9 @@ impl Validator<'_> {
             "uncertainty.correlation_length",
             uncertainty.correlation_length.filter(|&c| c != 0.0),
         )?;
+        if matches!(uncertainty.draws, Some(n) if n > MAX_DRAWS) {
+            return Err(self.err("uncertainty.draws", format!("must be at most {MAX_DRAWS}")));
+        }
         if matches!(uncertainty.draws, Some(n) if n < crate::uncertainty::MIN_DRAWS as u64) {
             return Err(self.err(
                 "uncertainty.draws",
@@ -753,9 +759,17 @@ impl Validator<'_> {
                 ),
             ));
         }
-        // the washboard's reference well is the one at the origin
-        let start = start.or(match potential {
+        // the washboard's reference well is the one at the origin; a periodic profile's is the
+        // lowest point of its base period (the middle period of the analysis window, away from
+        // the window's walls, whatever the tilt)
+        let start = start.or(match &potential {
             AnyPotential::Family(Family::Washboard { .. }) => Some(0.0),
+            AnyPotential::Periodic(w) => {
+                let (x0, l) = (w.origin(), w.period());
+                (0..2000)
+                    .map(|i| x0 + l * f64::from(i) / 2000.0)
+                    .min_by(|a, b| w.u(*a).total_cmp(&w.u(*b)))
+            }
             _ => None,
         });
         if let Some(sim) = &sf.simulation {

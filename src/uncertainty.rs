@@ -264,9 +264,15 @@ struct Kernel {
 impl Kernel {
     fn new(x: &[f64], ell: f64) -> Self {
         let n = x.len();
-        if ell == 0.0 {
+        // below 1/40 of the closest spacing a neighbour's weight is e^(−800) = 0 in f64: the
+        // knots are independent (and the window search would lose the knot itself to rounding)
+        let closest = x
+            .windows(2)
+            .map(|w| w[1] - w[0])
+            .fold(f64::INFINITY, f64::min);
+        if ell < closest / 40.0 {
             return Self {
-                ell,
+                ell: 0.0,
                 rows: (0..n).map(|i| (i, i + 1, 1.0)).collect(),
                 by_offset: None,
             };
@@ -279,9 +285,16 @@ impl Kernel {
             .enumerate()
             .all(|(i, &xi)| (xi - (x[0] + h * i as f64)).abs() <= 1e-9 * h);
         let by_offset = uniform.then(|| {
-            let dmax = ((reach / h).ceil() as usize + 1).min(n - 1);
+            // in f64 first: a huge ℓ must not overflow the integer cast
+            let dmax_f = (reach / h).ceil() + 1.0;
+            let dmax = if dmax_f >= (n - 1) as f64 {
+                n - 1
+            } else {
+                dmax_f as usize
+            };
+            // (d h/ℓ)² rather than (d h)²/ℓ²: a tiny ℓ must not make 0/0
             (0..=dmax)
-                .map(|d| (-(d as f64 * h).powi(2) / (2.0 * ell * ell)).exp())
+                .map(|d| (-0.5 * (d as f64 * h / ell).powi(2)).exp())
                 .collect()
         });
         let mut k = Self {
@@ -302,7 +315,7 @@ impl Kernel {
     fn weight(&self, x: &[f64], i: usize, j: usize) -> f64 {
         match &self.by_offset {
             Some(w) => w[i.abs_diff(j)],
-            None => (-(x[i] - x[j]).powi(2) / (2.0 * self.ell * self.ell)).exp(),
+            None => (-0.5 * ((x[i] - x[j]) / self.ell).powi(2)).exp(),
         }
     }
 }

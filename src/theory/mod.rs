@@ -186,6 +186,21 @@ fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
             "barrier below 5 kT: asymptotic formula unreliable".into()
         },
     };
+    // the friction-dependent memoryless formulas do not hold with memory
+    for r in t.rows.iter_mut().filter(|r| {
+        matches!(
+            r.key,
+            "kramers" | "smoluchowski" | "energy_diffusion" | "turnover" | "well_to_well" | "mfpt"
+        )
+    }) {
+        if r.valid {
+            r.valid = false;
+            r.note = "assumes memoryless friction (memory_time is set)".into();
+        }
+    }
+    t.regime
+        .trusted
+        .retain(|k| matches!(*k, "tst" | "tst_exact"));
     if row.valid {
         t.regime.trusted.push("grote_hynes");
     }
