@@ -290,6 +290,7 @@ pub fn run(
     let mut kt_unit = 1.0;
     let mut action_first = None;
     let mut omega_first = None;
+    let mut skipped: Vec<String> = Vec::new();
     for (i, &v) in values.iter().enumerate() {
         let (m, t) = point_theory(file, base, &spec.key, v, &[])?;
         if units.is_none() {
@@ -330,18 +331,38 @@ pub fn run(
                     .map_err(|e| bad(e.to_string()))?;
                 crate::report::SimulationOut::rare(&plan, r, wall, th)
             };
+            // the long-trajectory measurements as in `compare`: skipped (with a note) when they
+            // do not fit the step budget, never a reason to stop the scan
             let ww = if plan.section.well_to_well == Some(true) {
-                Some(
-                    simulate::run_transitions(&plan, &m, &t, threads, stop)
-                        .map_err(|e| bad(e.to_string()))?
-                        .0,
-                )
+                match simulate::run_transitions(&plan, &m, &t, threads, stop) {
+                    Ok((w, _)) => Some(w),
+                    Err(e @ simulate::SimError::Interrupted) => return Err(bad(e.to_string())),
+                    Err(e) => {
+                        skipped.push(format!(
+                            "{} = {v}: well-to-well count not run: {e}",
+                            spec.key
+                        ));
+                        None
+                    }
+                }
             } else {
                 None
             };
-            let per = simulate::run_periodic_for(&plan, &t, threads, stop)
-                .map_err(|e| bad(e.to_string()))?
-                .map(|(p, _)| p);
+            let fits = simulate::periodic_rate(&t)
+                .is_some_and(|r| simulate::periodic_size(&plan, r).3 <= plan.budget_steps);
+            let per = if fits {
+                simulate::run_periodic_for(&plan, &t, threads, stop)
+                    .map_err(|e| bad(e.to_string()))?
+                    .map(|(p, _)| p)
+            } else {
+                if t.periodic.is_some() {
+                    skipped.push(format!(
+                        "{} = {v}: periodic drift and diffusion not simulated (over simulation.budget_steps)",
+                        spec.key
+                    ));
+                }
+                None
+            };
             Some(SimPoint {
                 method: out.method,
                 rate: out.rate,
@@ -396,7 +417,7 @@ pub fn run(
         });
     }
     let units = units.expect("at least two points");
-    let mut notes = Vec::new();
+    let mut notes = skipped;
     let fits = match kind {
         Kind::Temperature => {
             notes.push(

@@ -682,6 +682,12 @@ impl Validator<'_> {
                 ),
             ));
         }
+        if uncertainty_given && matches!(&potential, AnyPotential::Periodic(_)) {
+            return Err(self.err(
+                "uncertainty",
+                "is not available for periodic profiles yet: drop [uncertainty] or potential.periodic",
+            ));
+        }
         if uncertainty_given
             && !matches!(&potential, AnyPotential::Table(t) if t.sigma_u().is_some())
         {

@@ -197,6 +197,7 @@ pub struct UncertaintyReport {
     /// the seed used
     pub seed: u64,
     /// E_b (kT)
+    #[serde(rename = "barrier_height_kT")]
     pub barrier: Interval,
     /// one per rate that applies, in `theory::Rates` order (grote_hynes omitted)
     pub rates: Vec<Interval>,

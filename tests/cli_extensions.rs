@@ -134,7 +134,7 @@ fn table_with_sigma_reports_rate_intervals() {
         );
         assert!(a <= b && b <= x && x <= y, "{r}");
     }
-    assert!(u["barrier"]["ci95"].is_array());
+    assert!(u["barrier_height_kT"]["ci95"].is_array());
 }
 
 // Weak friction: the well-to-well row is set against the counted transitions, the escape rows
@@ -161,7 +161,7 @@ fn well_to_well_is_set_against_counted_transitions() {
     assert!((r - f(&v["rates"]["well_to_well"]) / ww).abs() < 1e-12);
 }
 
-// Memory friction is simulated with the memory integrator and Grote–Hynes is reported.
+// Memory friction is simulated with the memory integrator and set against Grote–Hynes.
 #[test]
 fn memory_example_runs_the_memory_integrator() {
     let v = json(&[
@@ -174,4 +174,17 @@ fn memory_example_runs_the_memory_integrator() {
     ]);
     assert_eq!(v["simulation"]["scheme"], "baoab-memory");
     assert!(f(&v["rates"]["grote_hynes"]) > f(&v["rates"]["kramers"]));
+    // the simulated escape is within Grote–Hynes' documented accuracy (finite-barrier band of
+    // report::accuracy_band), and the memoryless formulas are not trusted here
+    let rows = v["comparison"].as_array().unwrap();
+    let row = |k: &str| rows.iter().find(|r| r["method"] == k).unwrap();
+    assert!(f(&v["simulation"]["rate"]) > 0.0);
+    assert_eq!(
+        row("grote_hynes")["consistent"],
+        true,
+        "{}",
+        row("grote_hynes")
+    );
+    assert_eq!(row("kramers")["valid"], false);
+    assert_eq!(v["regime"]["trusted"], serde_json::json!(["grote_hynes"]));
 }

@@ -806,6 +806,16 @@ pub fn run_rare(
                     flux::default_window(l, plan.params.gamma)
                 }
             });
+            let steps = n as f64 * (window / plan.params.dt).ceil();
+            if steps > REFUSE_FACTOR * plan.budget_steps {
+                return Err(key_err(
+                    "simulation.flux_time",
+                    format!(
+                        "reactive flux over a window of {window:.3e} needs about {steps:.2e} steps ({n} trajectories), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: shorten flux_time, use fewer trajectories or raise the budget",
+                        plan.budget_steps
+                    ),
+                ));
+            }
             with_force!(plan, |f, mb| flux::run(plan, f, mb, l, tst, n, window, stop))
                 .map(RareResult::Flux)
         }
