@@ -4,25 +4,13 @@
 //! uncertainty.rs, well_to_well.rs and memory.rs; here the numbers are checked for consistency
 //! between commands and with their own intervals (common practice, no source).
 
-use assert_cmd::Command;
+mod common;
+use common::json;
+
 use serde_json::Value;
 
 fn example(name: &str) -> String {
     format!("{}/examples/{name}", env!("CARGO_MANIFEST_DIR"))
-}
-
-fn json(args: &[&str]) -> Value {
-    let out = Command::cargo_bin("escapade")
-        .unwrap()
-        .args(args)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{args:?}: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
 }
 
 fn f(v: &Value) -> f64 {

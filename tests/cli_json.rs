@@ -1,6 +1,9 @@
 //! The JSON contract of `survey --json` and `rate --json` on every example, the `--set` override,
 //! unit conversions at the output boundary (CODATA 2018), and the demo command.
 
+mod common;
+use common::json;
+
 use assert_cmd::Command;
 use serde_json::Value;
 
@@ -13,20 +16,6 @@ fn examples() -> Vec<std::path::PathBuf> {
         .collect();
     v.sort();
     v
-}
-
-fn json(args: &[&str]) -> Value {
-    let out = Command::cargo_bin("escapade")
-        .unwrap()
-        .args(args)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{args:?}: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
 }
 
 fn is_num_or_null(v: &Value) -> bool {

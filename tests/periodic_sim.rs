@@ -2,18 +2,11 @@
 //! (Lifson & Jackson, J. Chem. Phys. 36, 2410 (1962)), drift, and hopping rates. Fixed seeds;
 //! tolerances in standard errors (4σ) plus stated time-step biases.
 
-use escapade::scenario::{Model, Override};
-use escapade::simulate::{self, Plan};
-use escapade::theory::{self, TheoryReport};
-use std::path::Path;
-use std::sync::atomic::AtomicBool;
+mod common;
+use common::model;
 
-fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
-    let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
-    let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
-    let t = theory::analyse(&m).unwrap();
-    (m, t)
-}
+use escapade::simulate::{self, Plan};
+use std::sync::atomic::AtomicBool;
 
 /// I0(x) by its power series Σ (x/2)^{2k}/(k!)² (Abramowitz & Stegun 9.6.10); 40 terms reach
 /// 1e-16 relative for x ≤ 10.

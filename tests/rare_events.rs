@@ -2,21 +2,16 @@
 //! against brute force, its independence of the interfaces, and the reactive-flux transmission
 //! coefficient against Kramers. Fixed seeds; tolerances in standard errors (4σ) plus stated biases.
 
+mod common;
+use common::model;
+
 use escapade::report::SimulationOut;
-use escapade::scenario::{Model, Override};
+use escapade::scenario::Model;
 use escapade::simulate::{self, Method, Plan, RunOptions, run_ensemble};
 use escapade::stats::summarise;
-use escapade::theory::{self, TheoryReport};
+use escapade::theory::TheoryReport;
 use statrs::distribution::{ContinuousCDF, StudentsT};
-use std::path::Path;
 use std::sync::atomic::AtomicBool;
-
-fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
-    let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
-    let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
-    let t = theory::analyse(&m).unwrap();
-    (m, t)
-}
 
 fn rare(m: &Model, t: &TheoryReport) -> SimulationOut {
     let plan = Plan::new(m, t).unwrap();

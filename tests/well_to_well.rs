@@ -4,19 +4,14 @@
 //! brute-force first-passage rate to the product minimum). Fixed seeds; tolerances in standard
 //! errors (4σ) plus stated biases.
 
-use escapade::scenario::{Model, Override};
+mod common;
+use common::model;
+
+use escapade::scenario::Model;
 use escapade::simulate::{self, Plan, RunOptions, run_ensemble};
 use escapade::stats::summarise;
-use escapade::theory::{self, TheoryReport};
-use std::path::Path;
+use escapade::theory::TheoryReport;
 use std::sync::atomic::AtomicBool;
-
-fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
-    let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
-    let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
-    let t = theory::analyse(&m).unwrap();
-    (m, t)
-}
 
 const DW: &str = "[particle]\nmass = 1.0\nfriction = 0.05\n[potential]\nfamily = \"double-well\"\nbarrier = 6.0\nhalf_width = 1.0\n[states]\nstart = -1.0\n[simulation]\nseed = 7\ndynamics = \"underdamped\"\n";
 
