@@ -97,7 +97,19 @@ fn run(cli: Cli) -> Result<Done, Failure> {
         }
         Command::Rate { file, common } => {
             let m = load(Some(&file), &common)?;
-            let t = theory_of(&m)?;
+            let analysis = theory::analyse_or_running(&m)
+                .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
+            let t = match analysis {
+                theory::Analysis::Full(t) => *t,
+                theory::Analysis::Running(p) => {
+                    let r = escapade::report::RunningReport::new(&m, &p);
+                    return ok(if common.json {
+                        json::render(&r)
+                    } else {
+                        table::running(&r)
+                    });
+                }
+            };
             let mut r = RateReport::new(&m, &t);
             r.uncertainty = uncertainty_of(&m)?;
             ok(if common.json {

@@ -13,7 +13,7 @@
 use crate::fit::{self, Line};
 use crate::scenario::{Model, Override, ScenarioError};
 use crate::simulate::{self, Method, Plan, RunOptions};
-use crate::theory::{self, Rates, TheoryReport};
+use crate::theory::{self, Rates};
 use crate::units::K_B;
 use serde::Serialize;
 use std::path::Path;
@@ -136,6 +136,20 @@ pub struct PeriodicPoint {
     pub hop_backward: Option<f64>,
 }
 
+impl PeriodicPoint {
+    /// The exact overdamped values of a periodic analysis.
+    fn theory(p: &crate::theory::periodic::PeriodicTheory) -> Self {
+        Self {
+            drift: p.drift,
+            drift_ci95: None,
+            effective_diffusion: p.effective_diffusion,
+            effective_diffusion_ci95: None,
+            hop_forward: p.hopping.as_ref().map(|h| h.forward),
+            hop_backward: p.hopping.as_ref().map(|h| h.backward),
+        }
+    }
+}
+
 /// A simulated rate at one point.
 #[derive(Debug, Clone, Serialize)]
 pub struct SimPoint {
@@ -256,12 +270,12 @@ fn point_theory(
     key: &str,
     v: f64,
     extra: &[Override],
-) -> Result<(Model, TheoryReport), ScanError> {
+) -> Result<(Model, theory::Analysis), ScanError> {
     let mut o = base.to_vec();
     o.push(Override::parse(&format!("{key}={v:?}"))?);
     o.extend_from_slice(extra);
     let m = Model::load(file, &o)?;
-    let t = theory::analyse(&m).map_err(|e| ScanError::Point {
+    let t = theory::analyse_or_running(&m).map_err(|e| ScanError::Point {
         file: file.display().to_string(),
         key: key.to_string(),
         value: v,
@@ -292,7 +306,33 @@ pub fn run(
     let mut omega_first = None;
     let mut skipped: Vec<String> = Vec::new();
     for (i, &v) in values.iter().enumerate() {
-        let (m, t) = point_theory(file, base, &spec.key, v, &[])?;
+        let (m, t) = match point_theory(file, base, &spec.key, v, &[])? {
+            (m, theory::Analysis::Full(t)) => (m, *t),
+            // past the critical tilt: no well and no rate, only the sliding particle's drift
+            (m, theory::Analysis::Running(p)) => {
+                if units.is_none() {
+                    units = Some(m.units.names.clone());
+                    kt_unit = m.units.kt_in_energy_unit;
+                }
+                skipped.push(format!(
+                    "{} = {v}: running state (past the critical tilt): no rates, drift and D_eff only{}",
+                    spec.key,
+                    if simulate { "; not simulated" } else { "" }
+                ));
+                points.push(Point {
+                    value: v,
+                    regime: "running",
+                    gamma_over_omega_barrier: None,
+                    delta: None,
+                    barrier_height_kt: 0.0,
+                    rates: Rates::default(),
+                    periodic: Some(PeriodicPoint::theory(&p)),
+                    uncertainty: None,
+                    simulation: None,
+                });
+                continue;
+            }
+        };
         if units.is_none() {
             units = Some(m.units.names.clone());
             kt_unit = m.units.kt_in_energy_unit;
@@ -304,13 +344,24 @@ pub fn run(
             // 63 bits: TOML integers are signed
             let seed =
                 simulate::engine::splitmix64(master ^ (i as u64).wrapping_mul(0x9e37_79b9)) >> 1;
-            let (m, t) = point_theory(
+            let (m, t) = match point_theory(
                 file,
                 base,
                 &spec.key,
                 v,
                 &[Override::parse(&format!("simulation.seed={seed}"))?],
-            )?;
+            )? {
+                (m, theory::Analysis::Full(t)) => (m, *t),
+                // the same point gave a well a moment ago: only a changed file can do this
+                (_, theory::Analysis::Running(_)) => {
+                    return Err(ScanError::Point {
+                        file: file.display().to_string(),
+                        key: spec.key.clone(),
+                        value: v,
+                        message: "the scenario changed during the scan".into(),
+                    });
+                }
+            };
             let bad = |e: String| ScanError::Point {
                 file: file.display().to_string(),
                 key: spec.key.clone(),
@@ -392,14 +443,7 @@ pub fn run(
             delta: t.regime.delta,
             barrier_height_kt: t.landscape.barrier_height,
             rates: t.rates,
-            periodic: t.periodic.as_ref().map(|p| PeriodicPoint {
-                drift: p.drift,
-                drift_ci95: None,
-                effective_diffusion: p.effective_diffusion,
-                effective_diffusion_ci95: None,
-                hop_forward: p.hopping.as_ref().map(|h| h.forward),
-                hop_backward: p.hopping.as_ref().map(|h| h.backward),
-            }),
+            periodic: t.periodic.as_ref().map(PeriodicPoint::theory),
             uncertainty: if m.uncertainty_given {
                 let opts = crate::uncertainty::UncertaintyOptions::for_model(&m);
                 crate::uncertainty::propagate(&m, &opts)

@@ -176,3 +176,45 @@ fn memory_example_runs_the_memory_integrator() {
     assert_eq!(row("kramers")["valid"], false);
     assert_eq!(v["regime"]["trusted"], serde_json::json!(["grote_hynes"]));
 }
+
+// Past the critical tilt (F > 2πA/L) the washboard has no minimum: `rate` reports the running
+// state (drift and D_eff, no hopping) instead of failing. The mobility v/F of a tilted washboard
+// rises from its Lifson–Jackson value to the free D as F grows (from memory), so
+// D_LJ·F < v < D·F; that brackets the drift independently of the quadrature's details.
+#[test]
+fn running_state_past_the_critical_tilt() {
+    let dir = std::env::temp_dir().join(format!("escapade-running-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let file = dir.join("wb.toml");
+    std::fs::write(
+        &file,
+        "[particle]\ndiffusion = 0.5\n[potential]\nfamily = \"washboard\"\namplitude = 2.0\nperiod = 1.0\ntilt = 20.0\n",
+    )
+    .unwrap();
+    let v = json(&["rate", file.to_str().unwrap(), "--json"]);
+    assert!(v.get("landscape").is_none() && v.get("rates").is_none());
+    let p = &v["periodic"];
+    assert!(p["hopping"].is_null());
+    let (drift, lj) = (f(&p["drift"]), f(&p["effective_diffusion_untilted"]));
+    assert!(lj * 20.0 < drift && drift < 0.5 * 20.0, "{drift}");
+    // a force scan across the critical tilt (2π·2 ≈ 12.6) keeps going and marks the running points
+    let s = json(&[
+        "scan",
+        file.to_str().unwrap(),
+        "--vary",
+        "potential.tilt",
+        "--from",
+        "0",
+        "--to",
+        "20",
+        "--points",
+        "3",
+        "--json",
+    ]);
+    let pts = s["points"].as_array().unwrap();
+    assert_eq!(pts[0]["regime"], "overdamped");
+    assert_eq!(pts[2]["regime"], "running");
+    assert!(pts[2]["rates"]["mfpt"].is_null());
+    assert!((f(&pts[2]["periodic"]["drift"]) / drift - 1.0).abs() < 1e-12);
+    let _ = std::fs::remove_dir_all(&dir);
+}

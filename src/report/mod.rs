@@ -160,6 +160,33 @@ impl PeriodicOut {
     }
 }
 
+/// `rate` output for a periodic landscape past its critical tilt: no well, so no rates; the
+/// drift and effective diffusion of the running state.
+#[derive(Debug, Clone, Serialize)]
+pub struct RunningReport {
+    /// scenario facts (not part of the JSON contract)
+    #[serde(skip)]
+    pub header: Header,
+    /// unit names
+    pub units: UnitNames,
+    /// drift and effective diffusion (hopping is null)
+    pub periodic: PeriodicOut,
+    /// warnings
+    pub warnings: Vec<String>,
+}
+
+impl RunningReport {
+    /// From a model and its periodic analysis.
+    pub fn new(m: &Model, p: &crate::theory::periodic::PeriodicTheory) -> Self {
+        Self {
+            header: Header::new(m),
+            units: m.units.names.clone(),
+            periodic: PeriodicOut::new(p, &m.units),
+            warnings: p.warnings.clone(),
+        }
+    }
+}
+
 /// Scenario facts shown in headers.
 #[derive(Debug, Clone, Serialize)]
 pub struct Header {

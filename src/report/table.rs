@@ -305,6 +305,20 @@ fn uncertainty(
     warnings(out, &q.warnings);
 }
 
+/// Renders `rate` in the running state.
+pub fn running(r: &super::RunningReport) -> String {
+    let mut out = String::new();
+    let u = U::new(&r.units);
+    header(&mut out, &r.header, &r.units);
+    let _ = writeln!(
+        out,
+        "running state: the tilt exceeds the critical tilt, so U has no minimum and no escape rate; the particle slides with the drift below"
+    );
+    periodic_theory(&mut out, &r.periodic, &u);
+    warnings(&mut out, &r.warnings);
+    out
+}
+
 /// The periodic landscape's drift, diffusion and hopping rates (theory).
 fn periodic_theory(out: &mut String, p: &super::PeriodicOut, u: &U) {
     let _ = writeln!(

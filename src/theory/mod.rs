@@ -28,6 +28,9 @@ pub enum TheoryError {
     /// The periodic analysis failed.
     #[error(transparent)]
     Periodic(#[from] periodic::PeriodicError),
+    /// A periodic analysis was asked of a scenario without a period.
+    #[error("the scenario has no period (potential.periodic or the washboard family)")]
+    NotPeriodic,
 }
 
 impl TheoryError {
@@ -36,6 +39,7 @@ impl TheoryError {
         match self {
             Self::Landscape(e) => e.key(),
             Self::Periodic(e) => e.key(),
+            Self::NotPeriodic => "potential.periodic",
         }
     }
 }
@@ -139,21 +143,8 @@ pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
     if let Some(tau) = model.memory_time {
         add_grote_hynes(&mut t, tau);
     }
-    if let Some(period) = model.period {
-        // the base period: the wrapper's own, or the washboard's domain start
-        let x0 = match pot {
-            crate::scenario::AnyPotential::Periodic(w) => w.origin(),
-            other => other.domain().0,
-        };
-        let p = periodic::analyse(
-            pot,
-            &model.diffusion,
-            x0,
-            period,
-            t.landscape.reactant,
-            model.mass,
-            t.friction,
-        )?;
+    if model.period.is_some() {
+        let p = analyse_periodic(model, t.landscape.reactant, t.friction)?;
         t.regime.warnings.extend(p.warnings.iter().cloned());
         if model.memory_time.is_some() {
             t.regime.warnings.push(
@@ -163,6 +154,62 @@ pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
         t.periodic = Some(p);
     }
     Ok(t)
+}
+
+/// What [`analyse_or_running`] found.
+#[derive(Debug, Clone)]
+pub enum Analysis {
+    /// a landscape with a reactant well: every rate
+    Full(Box<TheoryReport>),
+    /// a periodic landscape tilted past its critical tilt (no minimum left): drift and effective
+    /// diffusion only
+    Running(Box<periodic::PeriodicTheory>),
+}
+
+/// As [`analyse`], except that a periodic landscape with no minimum left (the running state past
+/// the critical tilt) gives its periodic analysis instead of an error.
+///
+/// # Errors
+/// As [`analyse`].
+pub fn analyse_or_running(model: &Model) -> Result<Analysis, TheoryError> {
+    match analyse(model) {
+        Ok(t) => Ok(Analysis::Full(Box::new(t))),
+        Err(TheoryError::Landscape(LandscapeError::NoMinimum { .. })) if model.period.is_some() => {
+            let p = analyse_periodic(model, f64::NAN, model.friction)?;
+            Ok(Analysis::Running(Box::new(p)))
+        }
+        Err(e) => Err(e),
+    }
+}
+
+/// The periodic analysis of a scenario with a period (`None` without one): drift, effective
+/// diffusion, and hopping out of the minimum nearest `x_a_guess` (NaN: the base period's start).
+/// It needs no landscape, so it also describes the running state past the critical tilt, where
+/// no minimum is left.
+///
+/// # Errors
+/// A profile that is not periodic, or non-finite values.
+pub fn analyse_periodic(
+    model: &Model,
+    x_a_guess: f64,
+    friction: Option<f64>,
+) -> Result<periodic::PeriodicTheory, TheoryError> {
+    let pot = &model.potential;
+    let period = model.period.ok_or(TheoryError::NotPeriodic)?;
+    // the base period: the wrapper's own, or the washboard's domain start
+    let x0 = match pot {
+        crate::scenario::AnyPotential::Periodic(w) => w.origin(),
+        other => other.domain().0,
+    };
+    Ok(periodic::analyse(
+        pot,
+        &model.diffusion,
+        x0,
+        period,
+        x_a_guess,
+        model.mass,
+        friction,
+    )?)
 }
 
 /// Adds the Grote–Hynes rate k_GH = (λ_r/ω_b) k_TST for an exponential memory kernel of memory
