@@ -3,6 +3,9 @@
 //! rates against Grote–Hynes, the memoryless limit, determinism and the plan's rules. Fixed seeds;
 //! tolerances in standard errors (4σ) plus stated biases; no retries.
 
+mod common;
+use common::batch_mean;
+
 use escapade::report::SimulationOut;
 use escapade::scenario::{Model, Override};
 use escapade::simulate::engine::{Kind, Params, Start, sample_states};
@@ -29,18 +32,6 @@ fn brute(m: &Model, t: &TheoryReport, threads: usize) -> (Plan, Vec<Outcome>) {
     };
     let r = run_ensemble(&plan, &opts, &AtomicBool::new(false), |_, _| {}).unwrap();
     (plan, r.outcomes)
-}
-
-/// Mean and its standard error by batch means (50 batches), for correlated samples.
-fn batch_mean(xs: &[f64]) -> (f64, f64) {
-    let nb = 50;
-    let len = xs.len() / nb;
-    let means: Vec<f64> = (0..nb)
-        .map(|b| xs[b * len..(b + 1) * len].iter().sum::<f64>() / len as f64)
-        .collect();
-    let m = means.iter().sum::<f64>() / nb as f64;
-    let var = means.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (nb - 1) as f64;
-    (m, (var / nb as f64).sqrt())
 }
 
 // Harmonic well U = κx²/2 (κ = 4, m = 2, γ = 1, τ = 0.5): the embedded stationary law

@@ -1,6 +1,9 @@
 //! Validation of the simulation engine. Fixed seeds; tolerances in standard errors (4σ) plus any
 //! known bias, stated beside each check; no retries.
 
+mod common;
+use common::batch_mean;
+
 use escapade::potential::Family;
 use escapade::scenario::{Model, Override};
 use escapade::simulate::engine::{Kind, Params, Start, sample_path};
@@ -27,18 +30,6 @@ fn run(m: &Model, threads: usize) -> (Plan, Vec<Outcome>) {
     };
     let r = run_ensemble(&plan, &opts, &never, |_, _| {}).unwrap();
     (plan, r.outcomes)
-}
-
-/// Mean and its standard error by batch means (50 batches), for correlated samples.
-fn batch_mean(xs: &[f64]) -> (f64, f64) {
-    let nb = 50;
-    let len = xs.len() / nb;
-    let means: Vec<f64> = (0..nb)
-        .map(|b| xs[b * len..(b + 1) * len].iter().sum::<f64>() / len as f64)
-        .collect();
-    let m = means.iter().sum::<f64>() / nb as f64;
-    let var = means.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (nb - 1) as f64;
-    (m, (var / nb as f64).sqrt())
 }
 
 fn params(kind: Kind, dt: f64, mass: f64, gamma: f64, lo: f64, hi: f64) -> Params {

@@ -27,3 +27,15 @@ pub fn json(args: &[&str]) -> serde_json::Value {
     );
     serde_json::from_slice(&out.stdout).unwrap()
 }
+
+/// Mean and its standard error by batch means (50 batches), for correlated samples.
+pub fn batch_mean(xs: &[f64]) -> (f64, f64) {
+    let nb = 50;
+    let len = xs.len() / nb;
+    let means: Vec<f64> = (0..nb)
+        .map(|b| xs[b * len..(b + 1) * len].iter().sum::<f64>() / len as f64)
+        .collect();
+    let m = means.iter().sum::<f64>() / nb as f64;
+    let var = means.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (nb - 1) as f64;
+    (m, (var / nb as f64).sqrt())
+}
