@@ -21,7 +21,7 @@ pub struct Rule {
     pub t: [f64; NODES],
     /// weights w_j
     pub w: [f64; NODES],
-    /// S[j][k] = ∫_{-1}^{t_j} ℓ_k
+    /// `S[j][k]` = ∫_{-1}^{t_j} ℓ_k
     pub s: [[f64; NODES]; NODES],
 }
 

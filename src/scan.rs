@@ -189,7 +189,7 @@ pub struct Point {
     pub rates: Rates,
     /// periodic landscapes: exact overdamped drift, effective diffusion and hopping rates
     pub periodic: Option<PeriodicPoint>,
-    /// 95% intervals of the rates from the profile's sigma_U (with an [uncertainty] section)
+    /// 95% intervals of the rates from the profile's sigma_U (with an `[uncertainty]` section)
     pub uncertainty: Option<Vec<crate::uncertainty::Interval>>,
     /// the simulated rate, with --simulate
     pub simulation: Option<SimPoint>,

@@ -664,7 +664,7 @@ pub(crate) fn step_state<F: Force, M: Mobility>(
     step(p, c, force, mob, s, rng);
 }
 
-/// How [`run_between`] ended.
+/// How `run_between` ended.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Exit {
     /// reached the upper interface

@@ -122,7 +122,7 @@ struct Row {
 
 /// Runs `n` trajectories of `blocks` + 1 blocks of `block_steps` steps on the whole line.
 /// `minima` are the minima of one period, ascending, the reactant first (`minima[0]`), all in
-/// [minima[0], minima[0] + period).
+/// `[minima[0], minima[0] + period)`.
 #[allow(clippy::too_many_arguments)] // the run's full context
 pub fn run<F: Force, M: Mobility>(
     plan: &Plan,
