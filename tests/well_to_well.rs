@@ -5,29 +5,14 @@
 //! errors (4σ) plus stated biases.
 
 mod common;
-use common::model;
+use common::{brute_force_rate, model};
 
 use escapade::scenario::Model;
-use escapade::simulate::{self, Plan, RunOptions, run_ensemble};
-use escapade::stats::summarise;
+use escapade::simulate::{self, Plan};
 use escapade::theory::TheoryReport;
 use std::sync::atomic::AtomicBool;
 
 const DW: &str = "[particle]\nmass = 1.0\nfriction = 0.05\n[potential]\nfamily = \"double-well\"\nbarrier = 6.0\nhalf_width = 1.0\n[states]\nstart = -1.0\n[simulation]\nseed = 7\ndynamics = \"underdamped\"\n";
-
-/// Escape rate (brute force, first passage to the product minimum) and its standard error.
-fn escape(m: &Model, t: &TheoryReport) -> (f64, f64) {
-    let plan = Plan::new(m, t).unwrap();
-    let run = run_ensemble(
-        &plan,
-        &RunOptions::default(),
-        &AtomicBool::new(false),
-        |_, _| {},
-    )
-    .unwrap();
-    let s = summarise(&run.outcomes, plan.params.dt, plan.params.max_steps);
-    (s.rate, s.rate / (s.escaped as f64).sqrt())
-}
 
 /// Well-to-well rate (transition count) and its standard error.
 fn well_to_well(m: &Model, t: &TheoryReport) -> (f64, f64, u64) {
@@ -59,7 +44,7 @@ fn simulated_well_to_well_is_about_half_the_escape_rate_at_weak_friction() {
     // 600 expected from theory (both directions) gives about 250 forward transitions counted
     // (the theory runs ~25% high at 6 kT)
     let (m, t) = model(DW, &["simulation.transitions=600"]);
-    let (ke, se_e) = escape(&m, &t);
+    let (ke, se_e) = brute_force_rate(&m, &t);
     let (kw, se_w, n) = well_to_well(&m, &t);
     assert!(n > 200, "only {n} transitions");
     let ratio = kw / ke;
@@ -86,7 +71,7 @@ fn simulated_well_to_well_is_about_half_the_escape_rate_at_weak_friction() {
 #[test]
 fn simulated_well_to_well_equals_escape_at_strong_friction() {
     let (m, t) = model(DW, &["particle.friction=5"]);
-    let (ke, se_e) = escape(&m, &t);
+    let (ke, se_e) = brute_force_rate(&m, &t);
     let (kw, se_w, _) = well_to_well(&m, &t);
     let ratio = kw / ke;
     let se = ratio * ((se_e / ke).powi(2) + (se_w / kw).powi(2)).sqrt();

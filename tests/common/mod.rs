@@ -2,8 +2,11 @@
 #![allow(dead_code)]
 
 use escapade::scenario::{Model, Override};
+use escapade::simulate::{Plan, RunOptions, run_ensemble};
+use escapade::stats::summarise;
 use escapade::theory::{self, TheoryReport};
 use std::path::Path;
+use std::sync::atomic::AtomicBool;
 
 /// A scenario from TOML text with `--set`-style overrides, and its theory.
 pub fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
@@ -38,4 +41,18 @@ pub fn batch_mean(xs: &[f64]) -> (f64, f64) {
     let m = means.iter().sum::<f64>() / nb as f64;
     let var = means.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (nb - 1) as f64;
     (m, (var / nb as f64).sqrt())
+}
+
+/// The brute-force escape rate of a scenario and its standard error k/sqrt(escapes) (Poisson).
+pub fn brute_force_rate(m: &Model, t: &TheoryReport) -> (f64, f64) {
+    let plan = Plan::new(m, t).unwrap();
+    let run = run_ensemble(
+        &plan,
+        &RunOptions::default(),
+        &AtomicBool::new(false),
+        |_, _| {},
+    )
+    .unwrap();
+    let s = summarise(&run.outcomes, plan.params.dt, plan.params.max_steps);
+    (s.rate, s.rate / (s.escaped as f64).sqrt())
 }
