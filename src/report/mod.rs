@@ -254,6 +254,8 @@ pub struct RateReport {
     pub diffusion_barrier: f64,
     /// A(δ)
     pub depopulation: Option<f64>,
+    /// the PGH energy loss Δ/kT and Υ = A(Δ/kT)
+    pub pgh: Option<crate::theory::PghReport>,
     /// periodic landscapes: drift, effective diffusion, hopping rates
     pub periodic: Option<PeriodicOut>,
     /// intervals of every rate from the profile's sigma_U (tables with that column)
@@ -286,6 +288,7 @@ impl RateReport {
             friction: t.friction,
             diffusion_barrier: t.diffusion_barrier,
             depopulation: t.depopulation,
+            pgh: t.pgh,
             periodic: t.periodic.as_ref().map(|p| PeriodicOut::new(p, &m.units)),
             uncertainty: None,
         }

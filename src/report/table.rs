@@ -193,6 +193,20 @@ pub fn rate(r: &RateReport) -> String {
         opt(reg.delta),
         opt(r.depopulation)
     );
+    if let Some(p) = &r.pgh {
+        let _ = writeln!(
+            out,
+            "unstable normal mode (PGH): energy loss Δ/kT = {}, Υ = A(Δ/kT) = {}, u₀₀² = {}{}",
+            num(p.energy_loss),
+            num(p.depopulation),
+            num(p.u00_squared),
+            if p.reflected {
+                ", orbit reflected by the wall"
+            } else {
+                ""
+            }
+        );
+    }
     let mut t = table();
     t.set_header(vec![
         "formula".to_string(),

@@ -6,6 +6,7 @@
 pub mod kramers;
 pub mod mfpt;
 pub mod periodic;
+pub mod pgh;
 pub mod regime;
 pub mod tst;
 pub mod turnover;
@@ -65,6 +66,8 @@ pub struct Rates {
     pub grote_hynes: Option<f64>,
     /// Mel'nikov's well-to-well transition rate of a double well (not an escape rate)
     pub well_to_well: Option<f64>,
+    /// Pollak–Grabert–Hänggi turnover rate for Ohmic friction (escape from the well)
+    pub pgh: Option<f64>,
 }
 
 /// One rate with its standing in this regime.
@@ -118,8 +121,25 @@ pub struct TheoryReport {
     pub diffusion_barrier: f64,
     /// A(δ)
     pub depopulation: Option<f64>,
+    /// the PGH energy loss along the unstable normal mode and Υ = A(Δ/kT)
+    pub pgh: Option<PghReport>,
     /// drift, effective diffusion and hopping rates of a periodic landscape
     pub periodic: Option<periodic::PeriodicTheory>,
+}
+
+/// The energy loss behind the PGH rate.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct PghReport {
+    /// Δ/kT, the energy the unstable normal mode loses in one excursion into the well
+    pub energy_loss: f64,
+    /// Υ = A(Δ/kT)
+    pub depopulation: f64,
+    /// u₀₀², the unstable mode's share of the system coordinate
+    pub u00_squared: f64,
+    /// the turning point of the unstable mode's orbit (the wall when it is reflected there)
+    pub turning_point: f64,
+    /// whether the orbit is reflected by the wall
+    pub reflected: bool,
 }
 
 /// Stationary points strictly between two positions (panel breakpoints for quadrature).
@@ -237,7 +257,13 @@ fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
     for r in t.rows.iter_mut().filter(|r| {
         matches!(
             r.key,
-            "kramers" | "smoluchowski" | "energy_diffusion" | "turnover" | "well_to_well" | "mfpt"
+            "kramers"
+                | "smoluchowski"
+                | "energy_diffusion"
+                | "turnover"
+                | "pgh"
+                | "well_to_well"
+                | "mfpt"
         )
     }) {
         if r.valid {
@@ -307,6 +333,36 @@ pub fn rates_for(
     ));
     let ln_ed = ln_tst.zip(delta).map(|(k, d)| k + d.ln());
     let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
+    // PGH: the energy loss along the unstable normal mode replaces γ I_b
+    let pgh = match (mass, gamma, ln_kramers) {
+        (Some(m), Some(g), Some(_)) if g > 0.0 => {
+            match pgh::energy_loss(
+                pot,
+                m,
+                g,
+                l.barrier,
+                l.curvature_barrier,
+                l.turning_point,
+                l.wall,
+            ) {
+                Ok(e) => Some(PghReport {
+                    energy_loss: e.delta,
+                    depopulation: turnover::depopulation(e.delta),
+                    u00_squared: e.u00_squared,
+                    turning_point: e.turning_point,
+                    reflected: e.reflected,
+                }),
+                Err(e) => {
+                    warnings.push(format!("{e}: the PGH rate is not given"));
+                    None
+                }
+            }
+        }
+        _ => None,
+    };
+    let ln_pgh = ln_kramers
+        .zip(pgh)
+        .map(|(k, p)| pgh::ln_rate(k, p.energy_loss));
     // well-to-well (double wells with a product minimum): δ₂ from the product-side orbit
     let delta2 = match (gamma, l.action_product) {
         (Some(g), Some(i)) => Some(g * i).filter(|d| d.is_finite() && *d > 0.0),
@@ -332,6 +388,7 @@ pub fn rates_for(
         mfpt: Some((-m.ln_time).exp()),
         grote_hynes: None,
         well_to_well: exp(ln_ww),
+        pgh: exp(ln_pgh),
     };
     let low_note = "barrier below 5 kT: asymptotic formula unreliable";
     let pick = |ok: bool, good: &str, bad: &str| -> (bool, String) {
@@ -414,6 +471,18 @@ pub fn rates_for(
     });
     let (v, n) = pick(
         true,
+        "holds at all frictions, Ohmic (finite-barrier error ~kT/E_b)",
+        "",
+    );
+    rows.push(RateRow {
+        key: "pgh",
+        label: "Pollak-Grabert-Hanggi (escape)",
+        rate: rates.pgh,
+        valid: v && rates.pgh.is_some(),
+        note: n,
+    });
+    let (v, n) = pick(
+        true,
         "transitions between the wells (Mel'nikov 1991), not the first escape",
         "",
     );
@@ -442,6 +511,8 @@ pub fn rates_for(
             "needs particle.mass".into()
         } else if r.key == "well_to_well" && !has_product {
             "no product well (a metastable well has only an escape rate)".into()
+        } else if r.key == "pgh" && gamma.is_some() && ln_kramers.is_some() {
+            "the unstable mode's orbit could not be followed (see the warnings)".into()
         } else {
             "needs a friction".into()
         };
@@ -468,6 +539,7 @@ pub fn rates_for(
         friction: gamma,
         diffusion_barrier: d_b,
         depopulation: ln_a.map(f64::exp),
+        pgh,
         periodic: None,
     }
 }

@@ -1,0 +1,319 @@
+//! The Pollak–Grabert–Hänggi (PGH) turnover rate for Ohmic friction: the energy Δ that the unstable
+//! normal mode loses to the bath in one excursion into the well, and the rate built on it.
+//!
+//! Construction (Pollak, Grabert & Hänggi, J. Chem. Phys. 91, 4073 (1989), Secs. II–III): the
+//! system with its harmonic bath is diagonalised at the barrier top. The unstable normal mode ρ has
+//! frequency λ‡ (for Ohmic friction Kramers' λ₊ = sqrt(γ²/4 + ω_b²) − γ/2) and its share of the
+//! system coordinate is u₀₀, with u₀₀² = [1 + ½(γ̂(λ‡)/λ‡ + γ̂'(λ‡))]⁻¹ = 2λ‡/(2λ‡ + γ) for constant
+//! γ̂ = γ. The nonlinear part of the potential, V₁(q) = U(x_b + q) − U_b + ½ m ω_b² q², is the only
+//! coupling between ρ and the stable modes. To lowest order in it:
+//!
+//! - ρ moves with the stable modes at rest, in the potential of mean force −½λ‡²ρ² + V₁(u₀₀ρ).
+//!   Written for the displacement r = u₀₀ρ/√m along x this is an orbit of mass M = m/u₀₀² in
+//!   W(r) = U(x_b + r) − U_b + ½ c r², c = m(ω_b² − λ‡²/u₀₀²) = mγλ‡/2, at the barrier energy W = 0:
+//!   from the barrier top into the well, to its turning point, and back.
+//! - The force −u_j0 V₁'(r(t))/√m on each stable mode j transfers ½|F̃_j(λ_j)|² to it. Summed with
+//!   the spectral weight Σ_j u_j0² δ(ω − λ_j) = (2ω/π) Im χ̂(−iω), χ̂(s) = 1/(s² − ω_b² + γs), this is
+//!   Δ = (γ/πm) ∫₀^∞ dω ω² |Ṽ₁'(ω)|² / [(ω² + λ‡²)(ω² + (λ‡ + γ)²)].
+//! - The orbit's equation of motion gives V₁'(r) = M(λ‡² r − r̈), so Ṽ₁' = M(λ‡² + ω²) r̃ and
+//!   Δ = (γM²/πm) ∫₀^∞ dω |ṙ̃(ω)|² (ω² + λ‡²)/(ω² + Λ²), Λ = λ‡ + γ. By Parseval this is
+//!   Δ = (γM²/m) ∫ g(t)² dt with g the velocity ṙ passed through the filter (s + λ‡)/(s + Λ), that
+//!   is ġ = −Λ g + r̈ + λ‡ ṙ. The filter is a convolution with a positive kernel, so Δ keeps full
+//!   precision at strong friction, where the frequency-domain weight is ~(λ‡/Λ)² ≪ 1.
+//! - As γ → 0, u₀₀ → 1, Λ → λ‡ → ω_b and Δ → γ m ∫ṙ² dt = γ I_b, Mel'nikov's energy loss.
+//!
+//! The rate is k_PGH = Υ (λ‡/ω_b) k_TST with the depopulation factor
+//! Υ = exp[(1/π) ∫ dy ln(1 − e^{−(Δ/4kT)(1 + y²)})/(1 + y²)], which is A(δ) of [`super::turnover`] at
+//! δ = Δ/kT (PGH 1989, Sec. IV).
+//!
+//! Numerics: the turning point of W by Brent's method; the half orbit by fourth-order Runge–Kutta
+//! on a uniform time grid (Newton's equation near the turning point, where the velocity vanishes,
+//! then the energy equation ṙ = −sqrt(−2W/M), which is stable as the orbit creeps up to the
+//! saddle), down to r = 1e-4 of the turning point, where W is quadratic to 1e-4 and the orbit is
+//! continued analytically as r e^{−λ‡t}. The filter is integrated exactly for a piecewise-linear
+//! source, ∫g² by the trapezoidal rule; both are second order in the step, which is 1/400 of the
+//! fastest local period, so Δ is good to about 1e-6 (checked against mpmath for the cubic well).
+//! A wall behind the well at the barrier energy reflects the orbit: ṙ flips, and g jumps by the
+//! same amount (the impulse in r̈).
+
+use super::kramers;
+use crate::potential::Potential;
+use roots::{SimpleConvergency, find_root_brent};
+use serde::Serialize;
+use thiserror::Error;
+
+/// Time steps per radian of the fastest local motion: the second-order filter and trapezoid errors
+/// are then ~(1/400)²/12 ≈ 5e-7 relative.
+const STEPS_PER_RADIAN: f64 = 400.0;
+/// The orbit is continued analytically below this fraction of the turning point, where W is
+/// quadratic to this relative accuracy.
+const TAIL_FRACTION: f64 = 1e-4;
+/// Most steps for the half orbit: a potential whose fastest motion is 10⁴ times faster than its
+/// slowest would need more, and is reported rather than ground through.
+const MAX_STEPS: usize = 20_000_000;
+
+/// Why no energy loss could be computed.
+#[derive(Debug, Error, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum PghError {
+    /// The potential of mean force does not fall below the barrier energy next to the barrier.
+    #[error("the PGH orbit does not start: the potential of mean force is not below the barrier next to it")]
+    NoOrbit,
+    /// The orbit's turning point is a stationary point of W (it would take forever to reach).
+    #[error("the PGH orbit turns at a stationary point of the potential of mean force")]
+    StationaryTurningPoint,
+    /// The orbit needs more steps than [`MAX_STEPS`].
+    #[error("the PGH orbit needs more than {MAX_STEPS} time steps (time scales too far apart)")]
+    TooManySteps,
+    /// Non-finite values along the orbit.
+    #[error("non-finite values along the PGH orbit")]
+    NotFinite,
+}
+
+/// The energy loss and the quantities behind it.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct EnergyLoss {
+    /// Δ/kT
+    pub delta: f64,
+    /// λ‡ (Kramers' λ₊ for Ohmic friction)
+    pub lambda: f64,
+    /// u₀₀²
+    pub u00_squared: f64,
+    /// the turning point of the orbit in x (the wall if the orbit reaches it)
+    pub turning_point: f64,
+    /// whether the orbit is reflected by the wall
+    pub reflected: bool,
+    /// time steps of the half orbit
+    pub steps: usize,
+}
+
+/// u₀₀² = 2λ‡/(2λ‡ + γ), the unstable mode's share of the system coordinate for Ohmic friction.
+pub fn u00_squared(gamma: f64, lambda: f64) -> f64 {
+    2.0 * lambda / (2.0 * lambda + gamma)
+}
+
+/// ln k_PGH = ln k_Kramers + ln Υ(Δ/kT); `ln_kramers` is ln[(λ₊/ω_b) k_TST].
+pub fn ln_rate(ln_kramers: f64, delta: f64) -> f64 {
+    ln_kramers + super::turnover::ln_depopulation(delta)
+}
+
+/// The energy loss Δ/kT along the unstable mode's orbit into the well.
+///
+/// `barrier` and `kappa_b` = |U''(x_b)| describe the barrier top; `turning` is the far turning point
+/// of the bare orbit at the barrier energy (the landscape's, which is `wall` when U stays below
+/// U_b up to the reflecting end behind the well); `mass` m and Ohmic `gamma` in the scenario's
+/// internal units (kT = 1). W ≥ U − U_b, so the orbit turns between the barrier and `turning`.
+///
+/// # Errors
+/// See [`PghError`].
+pub fn energy_loss(
+    pot: &dyn Potential,
+    mass: f64,
+    gamma: f64,
+    barrier: f64,
+    kappa_b: f64,
+    turning: f64,
+    wall: f64,
+) -> Result<EnergyLoss, PghError> {
+    let s = (turning - barrier).signum();
+    let wb = (kappa_b / mass).sqrt();
+    let lam = kramers::lambda_plus(gamma, wb);
+    let u00sq = u00_squared(gamma, lam);
+    let big_m = mass / u00sq;
+    let c = 0.5 * mass * gamma * lam;
+    let ub = pot.u(barrier);
+    let w = |r: f64| pot.u(barrier + s * r) - ub + 0.5 * c * r * r;
+    let dw = |r: f64| s * pot.du(barrier + s * r) + c * r;
+    let d2w = |r: f64| pot.d2u(barrier + s * r) + c;
+    let r_bare = (turning - barrier).abs();
+    let at_wall = (turning - wall).abs() <= 1e-12 * r_bare;
+    if !(r_bare > 0.0 && big_m.is_finite() && lam > 0.0) {
+        return Err(PghError::NotFinite);
+    }
+
+    // the first zero of W away from the barrier (the bare turning point at the latest), or the wall
+    let n = 4000;
+    let mut prev = r_bare / f64::from(n);
+    if w(prev) >= 0.0 {
+        return Err(PghError::NoOrbit);
+    }
+    let mut turn = None;
+    for i in 2..=n {
+        let r = r_bare * f64::from(i) / f64::from(n);
+        if w(r) >= 0.0 || (i == n && !at_wall) {
+            let mut conv = SimpleConvergency {
+                eps: 1e-15 * r_bare,
+                max_iter: 500,
+            };
+            // W(r_bare) ≥ 0 up to rounding when the bare orbit turns there
+            let root = if w(r) >= 0.0 {
+                find_root_brent(prev, r, &w, &mut conv).unwrap_or(r)
+            } else {
+                r
+            };
+            turn = Some(root);
+            break;
+        }
+        prev = r;
+    }
+    let (r_t, v0, reflected) = match turn {
+        Some(r) => {
+            // a turning point where W' vanishes is never reached
+            if dw(r) * r <= 1e-9 * kappa_b * r * r {
+                return Err(PghError::StationaryTurningPoint);
+            }
+            (r, 0.0, false)
+        }
+        None => (r_bare, -(-2.0 * w(r_bare) / big_m).sqrt(), true),
+    };
+
+    // the fastest local frequency along the orbit
+    let mut omega2 = lam * lam;
+    for i in 0..=400 {
+        let r = r_t * f64::from(i) / 400.0;
+        omega2 = omega2.max(d2w(r).abs() / big_m);
+    }
+    let h = 1.0 / (omega2.sqrt() * STEPS_PER_RADIAN);
+    let acc = |r: f64| -dw(r) / big_m;
+    let speed = |r: f64| -(-2.0 * w(r) / big_m).max(0.0).sqrt();
+
+    // the outgoing half orbit from the turning point (t = 0) to the barrier: (r, ṙ, r̈) per step
+    let mut path: Vec<(f64, f64, f64)> = vec![(r_t, v0, acc(r_t))];
+    let (mut r, mut v) = (r_t, v0);
+    // Newton's equation while the velocity is small, then the energy equation
+    while r > 0.5 * r_t {
+        let (k1r, k1v) = (v, acc(r));
+        let (k2r, k2v) = (v + 0.5 * h * k1v, acc(r + 0.5 * h * k1r));
+        let (k3r, k3v) = (v + 0.5 * h * k2v, acc(r + 0.5 * h * k2r));
+        let (k4r, k4v) = (v + h * k3v, acc(r + h * k3r));
+        r += h / 6.0 * (k1r + 2.0 * k2r + 2.0 * k3r + k4r);
+        v += h / 6.0 * (k1v + 2.0 * k2v + 2.0 * k3v + k4v);
+        path.push((r, v, acc(r)));
+        if path.len() > MAX_STEPS {
+            return Err(PghError::TooManySteps);
+        }
+        if !(r.is_finite() && v.is_finite()) || r > r_t * (1.0 + 1e-6) {
+            return Err(PghError::NotFinite);
+        }
+    }
+    while r > TAIL_FRACTION * r_t {
+        let k1 = speed(r);
+        let k2 = speed(r + 0.5 * h * k1);
+        let k3 = speed(r + 0.5 * h * k2);
+        let k4 = speed(r + h * k3);
+        r += h / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4);
+        path.push((r, speed(r), acc(r)));
+        if path.len() > MAX_STEPS {
+            return Err(PghError::TooManySteps);
+        }
+        if !r.is_finite() {
+            return Err(PghError::NotFinite);
+        }
+    }
+    let r_end = path.last().map_or(r_t, |p| p.0);
+
+    // the filter ġ = −Λg + f, f = r̈ + λṙ, over the whole orbit (incoming half: r(−t) = r(t),
+    // ṙ(−t) = −ṙ(t)); exact for f linear between grid points
+    let big_l = lam + gamma;
+    let x = big_l * h;
+    let e = (-x).exp();
+    let phi = -(-x).exp_m1() / x; // (1 − e^{−x})/x
+    let (a0, a1) = ((phi - e) / big_l, (1.0 - phi) / big_l);
+    let f_in = |p: &(f64, f64, f64)| p.2 - lam * p.1;
+    let f_out = |p: &(f64, f64, f64)| p.2 + lam * p.1;
+    // incoming analytic tail r = r_end e^{λt}: f = 2λ² r, g = 2λ² r/(Λ + λ), ∫g² = g²/(2λ)
+    let mut g = 2.0 * lam * lam * r_end / (big_l + lam);
+    let mut int = g * g / (2.0 * lam);
+    let mut f_prev = f_in(&path[path.len() - 1]);
+    for p in path.iter().rev().skip(1) {
+        let f = f_in(p);
+        let g_new = e * g + a0 * f_prev + a1 * f;
+        int += 0.5 * h * (g * g + g_new * g_new);
+        g = g_new;
+        f_prev = f;
+    }
+    if reflected {
+        // ṙ flips from +|v0| to −|v0| at the wall: the impulse in r̈ moves g by the same amount
+        g -= 2.0 * v0.abs();
+    }
+    let mut f_prev = f_out(&path[0]);
+    for p in path.iter().skip(1) {
+        let f = f_out(p);
+        let g_new = e * g + a0 * f_prev + a1 * f;
+        int += 0.5 * h * (g * g + g_new * g_new);
+        g = g_new;
+        f_prev = f;
+    }
+    // outgoing analytic tail: f = r̈ + λṙ = 0 for r e^{−λt}, so g decays as e^{−Λt}
+    int += g * g / (2.0 * big_l);
+    let delta = gamma * big_m * big_m / mass * int;
+    if !(delta.is_finite() && delta > 0.0) {
+        return Err(PghError::NotFinite);
+    }
+    Ok(EnergyLoss {
+        delta,
+        lambda: lam,
+        u00_squared: u00sq,
+        turning_point: barrier + s * r_t,
+        reflected,
+        steps: path.len(),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::potential::family::Family;
+
+    fn cubic(eb: f64) -> Family {
+        Family::Cubic {
+            eb,
+            l: 1.5,
+            domain: (-2.0, 2.0),
+        }
+    }
+
+    // Weak friction: Δ → γ I_b with I_b = 36 E_b/(5 ω_b) for the cubic well (Kramers 1940; HTB
+    // 1990 Sec. IV; the closed form is in PHYSICS.md §10). The correction is O(γ/ω_b) = 1e-5 here,
+    // the discretisation ~1e-6: 1e-4.
+    #[test]
+    fn weak_friction_energy_loss_is_gamma_times_action() {
+        let (eb, m) = (6.0, 1.0);
+        let p = cubic(eb);
+        let kb = p.d2u(1.0).abs();
+        let wb = (kb / m).sqrt();
+        let g = 1e-5 * wb;
+        let el = energy_loss(&p, m, g, 1.0, kb, -0.5, -2.0).unwrap();
+        let ib = 36.0 * eb / (5.0 * wb);
+        assert!((el.delta / (g * ib) - 1.0).abs() < 1e-4, "{}", el.delta / (g * ib));
+        assert!(!el.reflected);
+        // the bare orbit turns at x = −L/3 = −0.5
+        assert!((el.turning_point + 0.5).abs() < 1e-4);
+    }
+
+    // u₀₀² from its definition: the residue of χ̂(s) = 1/(s² − ω_b² + γs) at s = λ‡ is
+    // 1/(2λ‡ + γ), and that of u₀₀²/(s² − λ‡²) is u₀₀²/(2λ‡) (common practice, no source).
+    #[test]
+    fn u00_is_the_residue_ratio() {
+        let (g, wb) = (2.5, 1.3);
+        let l = kramers::lambda_plus(g, wb);
+        assert!((u00_squared(g, l) - 2.0 * l / (2.0 * l + g)).abs() < 1e-15);
+        assert!((l * l + g * l - wb * wb).abs() < 1e-12);
+    }
+
+    // A wall inside the orbit: the orbit is reflected and Δ is smaller than without the wall
+    // (a shorter excursion) but positive.
+    #[test]
+    fn wall_reflects_the_orbit() {
+        let p = Family::Cubic {
+            eb: 6.0,
+            l: 1.5,
+            domain: (-0.2, 2.0),
+        };
+        let kb = p.d2u(1.0).abs();
+        let el = energy_loss(&p, 1.0, 0.3, 1.0, kb, -0.2, -0.2).unwrap();
+        assert!(el.reflected);
+        let free = energy_loss(&cubic(6.0), 1.0, 0.3, 1.0, kb, -0.5, -2.0).unwrap();
+        assert!(el.delta > 0.0 && el.delta < free.delta);
+    }
+}
