@@ -236,13 +236,14 @@ pub struct ScanReport {
 }
 
 /// Rate keys in report order.
-pub const RATE_KEYS: [&str; 9] = [
+pub const RATE_KEYS: [&str; 10] = [
     "tst",
     "tst_exact",
     "kramers",
     "smoluchowski",
     "energy_diffusion",
     "turnover",
+    "pgh",
     "mfpt",
     "grote_hynes",
     "well_to_well",
@@ -257,6 +258,7 @@ pub fn rate_of(r: &Rates, key: &str) -> Option<f64> {
         "smoluchowski" => r.smoluchowski,
         "energy_diffusion" => r.energy_diffusion,
         "turnover" => r.turnover,
+        "pgh" => r.pgh,
         "mfpt" => r.mfpt,
         "grote_hynes" => r.grote_hynes,
         "well_to_well" => r.well_to_well,

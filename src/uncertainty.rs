@@ -215,13 +215,14 @@ pub struct UncertaintyReport {
 type Getter = fn(&Rates) -> Option<f64>;
 
 /// The rate keys reported, with their getters.
-const KEYS: [(&str, Getter); 8] = [
+const KEYS: [(&str, Getter); 9] = [
     ("tst", |r| r.tst),
     ("tst_exact", |r| r.tst_exact),
     ("kramers", |r| r.kramers),
     ("smoluchowski", |r| r.smoluchowski),
     ("energy_diffusion", |r| r.energy_diffusion),
     ("turnover", |r| r.turnover),
+    ("pgh", |r| r.pgh),
     ("mfpt", |r| r.mfpt),
     ("well_to_well", |r| r.well_to_well),
 ];

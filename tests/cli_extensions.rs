@@ -145,6 +145,7 @@ fn well_to_well_is_set_against_counted_transitions() {
     let row = |k: &str| rows.iter().find(|r| r["method"] == k).unwrap();
     assert_eq!(row("well_to_well")["against"], "well-to-well");
     assert_eq!(row("turnover")["against"], "escape");
+    assert_eq!(row("pgh")["against"], "escape");
     let r = f(&row("well_to_well")["ratio_to_simulation"]);
     assert!((r - f(&v["rates"]["well_to_well"]) / ww).abs() < 1e-12);
 }

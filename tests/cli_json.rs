@@ -68,6 +68,7 @@ fn rate_json_follows_the_contract_on_every_example() {
             "smoluchowski",
             "energy_diffusion",
             "turnover",
+            "pgh",
             "mfpt",
             "grote_hynes",
             "well_to_well",
@@ -76,6 +77,20 @@ fn rate_json_follows_the_contract_on_every_example() {
                 v["rates"].get(k).is_some_and(is_num_or_null),
                 "{f}: rates.{k}"
             );
+        }
+        // the PGH energy loss beside the rate: null exactly when the rate is
+        let p = &v["pgh"];
+        assert_eq!(p.is_null(), v["rates"]["pgh"].is_null(), "{f}: pgh");
+        if !p.is_null() {
+            for k in [
+                "energy_loss",
+                "depopulation",
+                "u00_squared",
+                "turning_point",
+            ] {
+                assert!(p[k].as_f64().is_some(), "{f}: pgh.{k}");
+            }
+            assert!(p["reflected"].is_boolean(), "{f}: pgh.reflected");
         }
         let t = v["mfpt_time"].as_f64().unwrap();
         let k = v["rates"]["mfpt"].as_f64().unwrap();
@@ -181,8 +196,8 @@ fn compare_json_follows_the_contract_and_agrees_on_every_example() {
         assert!(s["rate_ci95"].as_array().is_some_and(|a| a.len() == 2));
         assert!(s["dynamics"].is_string());
         let rows = v["comparison"].as_array().unwrap();
-        // eight rates, and Grote–Hynes with memory friction
-        let expected = 8 + usize::from(v["rates"]["grote_hynes"].is_number());
+        // nine rates, and Grote–Hynes with memory friction
+        let expected = 9 + usize::from(v["rates"]["grote_hynes"].is_number());
         assert_eq!(rows.len(), expected, "{f}");
         for r in rows {
             for k in ["method", "valid"] {

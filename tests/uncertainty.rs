@@ -95,6 +95,7 @@ fn zero_sigma_collapses_every_interval() {
             "smoluchowski",
             "energy_diffusion",
             "turnover",
+            "pgh",
             "mfpt",
             "well_to_well"
         ]
@@ -114,7 +115,7 @@ fn fully_correlated_shift_leaves_rates_unchanged() {
     let m = quartic(0.3);
     let r = run(&m, 40, Some(1e9), 5);
     assert_eq!(r.failed, 0);
-    assert_eq!(r.rates.len(), 8);
+    assert_eq!(r.rates.len(), 9);
     for i in &r.rates {
         assert!(collapsed(i, 1e-10), "{i:?}");
     }

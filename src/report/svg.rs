@@ -14,7 +14,7 @@ const W: u32 = 900;
 const H: u32 = 600;
 
 fn colour(i: usize) -> RGBColor {
-    const C: [RGBColor; 8] = [
+    const C: [RGBColor; 10] = [
         RGBColor(31, 119, 180),
         RGBColor(255, 127, 14),
         RGBColor(44, 160, 44),
@@ -23,6 +23,8 @@ fn colour(i: usize) -> RGBColor {
         RGBColor(140, 86, 75),
         RGBColor(227, 119, 194),
         RGBColor(127, 127, 127),
+        RGBColor(188, 189, 34),
+        RGBColor(23, 190, 207),
     ];
     C[i % C.len()]
 }
@@ -35,6 +37,7 @@ fn label(key: &str) -> &'static str {
         "smoluchowski" => "Smoluchowski",
         "energy_diffusion" => "energy diffusion",
         "turnover" => "Mel'nikov-Meshkov",
+        "pgh" => "Pollak-Grabert-Hanggi",
         "mfpt" => "1/MFPT (overdamped)",
         "grote_hynes" => "Grote-Hynes",
         "well_to_well" => "well-to-well",

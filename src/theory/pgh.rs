@@ -1,8 +1,9 @@
 //! The Pollak–Grabert–Hänggi (PGH) turnover rate for Ohmic friction: the energy Δ that the unstable
 //! normal mode loses to the bath in one excursion into the well, and the rate built on it.
 //!
-//! Construction (Pollak, Grabert & Hänggi, J. Chem. Phys. 91, 4073 (1989), Secs. II–III): the
-//! system with its harmonic bath is diagonalised at the barrier top. The unstable normal mode ρ has
+//! Construction (Pollak, Grabert & Hänggi, J. Chem. Phys. 91, 4073 (1989); the paper's text was
+//! not available to us, so each step below is derived from the model Hamiltonian it starts from,
+//! system plus bilinearly coupled harmonic bath, and checked in its limits): the system with its harmonic bath is diagonalised at the barrier top. The unstable normal mode ρ has
 //! frequency λ‡ (for Ohmic friction Kramers' λ₊ = sqrt(γ²/4 + ω_b²) − γ/2) and its share of the
 //! system coordinate is u₀₀, with u₀₀² = [1 + ½(γ̂(λ‡)/λ‡ + γ̂'(λ‡))]⁻¹ = 2λ‡/(2λ‡ + γ) for constant
 //! γ̂ = γ. The nonlinear part of the potential, V₁(q) = U(x_b + q) − U_b + ½ m ω_b² q², is the only
@@ -24,7 +25,7 @@
 //!
 //! The rate is k_PGH = Υ (λ‡/ω_b) k_TST with the depopulation factor
 //! Υ = exp[(1/π) ∫ dy ln(1 − e^{−(Δ/4kT)(1 + y²)})/(1 + y²)], which is A(δ) of [`super::turnover`] at
-//! δ = Δ/kT (PGH 1989, Sec. IV).
+//! δ = Δ/kT (PGH 1989).
 //!
 //! Numerics: the turning point of W by Brent's method; the half orbit by fourth-order Runge–Kutta
 //! on a uniform time grid (Newton's equation near the turning point, where the velocity vanishes,
@@ -57,7 +58,9 @@ const MAX_STEPS: usize = 20_000_000;
 #[non_exhaustive]
 pub enum PghError {
     /// The potential of mean force does not fall below the barrier energy next to the barrier.
-    #[error("the PGH orbit does not start: the potential of mean force is not below the barrier next to it")]
+    #[error(
+        "the PGH orbit does not start: the potential of mean force is not below the barrier next to it"
+    )]
     NoOrbit,
     /// The orbit's turning point is a stationary point of W (it would take forever to reach).
     #[error("the PGH orbit turns at a stationary point of the potential of mean force")]
@@ -285,7 +288,11 @@ mod tests {
         let g = 1e-5 * wb;
         let el = energy_loss(&p, m, g, 1.0, kb, -0.5, -2.0).unwrap();
         let ib = 36.0 * eb / (5.0 * wb);
-        assert!((el.delta / (g * ib) - 1.0).abs() < 1e-4, "{}", el.delta / (g * ib));
+        assert!(
+            (el.delta / (g * ib) - 1.0).abs() < 1e-4,
+            "{}",
+            el.delta / (g * ib)
+        );
         assert!(!el.reflected);
         // the bare orbit turns at x = −L/3 = −0.5
         assert!((el.turning_point + 0.5).abs() < 1e-4);
