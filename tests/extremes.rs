@@ -25,6 +25,7 @@ fn all_rates_finite(t: &theory::TheoryReport) {
         r.smoluchowski,
         r.energy_diffusion,
         r.turnover,
+        r.pgh,
         r.mfpt,
     ]
     .into_iter()

@@ -28,10 +28,12 @@ proptest! {
     ) {
         let t = dw(eb, a, m, g);
         for k in [t.rates.tst, t.rates.tst_exact, t.rates.kramers, t.rates.smoluchowski,
-                  t.rates.energy_diffusion, t.rates.turnover, t.rates.mfpt] {
+                  t.rates.energy_diffusion, t.rates.turnover, t.rates.pgh, t.rates.mfpt] {
             let k = k.unwrap();
             prop_assert!(k.is_finite() && k > 0.0, "{k}");
         }
+        // PGH = Υ k_Kramers with 0 < Υ < 1 (a probability of not being depleted; PGH 1989)
+        prop_assert!(t.rates.pgh.unwrap() <= t.rates.kramers.unwrap() * (1.0 + 1e-12));
         prop_assert!(t.mfpt.time.is_finite() && t.mfpt.time > 0.0);
     }
 

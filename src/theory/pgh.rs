@@ -49,9 +49,10 @@ const STEPS_PER_RADIAN: f64 = 400.0;
 /// The orbit is continued analytically below this fraction of the turning point, where W is
 /// quadratic to this relative accuracy.
 const TAIL_FRACTION: f64 = 1e-4;
-/// Most steps for the half orbit: a potential whose fastest motion is 10⁴ times faster than its
-/// slowest would need more, and is reported rather than ground through.
-const MAX_STEPS: usize = 20_000_000;
+/// Most steps for the half orbit (24 bytes each): it lasts about 10/λ‡ in steps of 1/(400 ω_max),
+/// so this allows ω_max/λ‡ up to about 500; a profile with faster local motion is reported rather
+/// than ground through.
+const MAX_STEPS: usize = 2_000_000;
 
 /// Why no energy loss could be computed.
 #[derive(Debug, Error, Clone, PartialEq)]
