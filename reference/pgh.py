@@ -22,6 +22,17 @@ checked here by direct quadrature in --check).  The energy loss is then the freq
 with lam = sqrt(gamma^2/4 + w_b^2) - gamma/2 and u00^2 = 2 lam/(2 lam + gamma).  This route (closed-form
 orbit, frequency domain) shares nothing with the Rust code's (numerical orbit, time-domain filter).
 The weak-friction limit Delta/gamma -> I_b = 36 E_b/(5 w_b) is checked too.
+
+The formula itself (spectral weight, u00, the unstable mode's potential) is checked by a second,
+explicit route, `mode_sum`: an Ohmic bath discretised into N = 1500 oscillators (omega_j = (j + 1/2) dw up
+to a cutoff 60 max(w_b, gamma), couplings c_j^2 = (2/pi) gamma omega_j^2 dw, so that
+J(w) = (pi/2) sum c_j^2/omega_j delta(w - omega_j) = gamma w, counterterm included), the system-bath
+Hessian at the barrier diagonalised through its secular equation
+K00 - mu - sum c_j^2/(omega_j^2 - mu) = 0 (bisection between poles), the normal-mode shares
+u_k0^2 = 1/(1 + sum c_j^2/(omega_j^2 - mu_k)^2), and the energy handed to each stable mode k by the force
+V1'(r(t)) = b r(t)^2 along the orbit, (1/2) u_k0^2 |F~(lambda_k)|^2 with
+F~(w) = b A^2 pi nu (nu^2 + 4)/(6 k sinh(pi nu/2)), nu = w/k (the sech^4 transform; --check compares it
+with quadrature).  Plain floats: about 20 s per friction.
 """
 
 import json
@@ -61,6 +72,60 @@ def delta(ratio):
     return g, lam, u00sq, d, a, k
 
 
+def mode_sum(ratio, n=1500, cutoff=60.0):
+    """Delta from an explicitly discretised bath (floats; see the module doc)."""
+    import math
+    eb, l, m = float(EB), float(L), float(M_PARTICLE)
+    kb = 13.5 * eb / l ** 2
+    wb = math.sqrt(kb / m)
+    b = 20.25 * eb / l ** 3
+    g = ratio * wb
+    wc = cutoff * max(wb, g)
+    dw = wc / n
+    ws = [(j + 0.5) * dw for j in range(n)]
+    c2 = [(2 / math.pi) * g * w * w * dw for w in ws]
+    k00 = -wb ** 2 + sum(c / w ** 2 for c, w in zip(c2, ws))
+
+    def sec(mu):
+        return k00 - mu - sum(c / (w * w - mu) for c, w in zip(c2, ws))
+
+    def share(mu):
+        return 1 / (1 + sum(c / (w * w - mu) ** 2 for c, w in zip(c2, ws)))
+
+    def bisect(a, z, iters):
+        fa = sec(a)
+        for _ in range(iters):
+            mid = 0.5 * (a + z)
+            fm = sec(mid)
+            if (fm > 0) == (fa > 0):
+                a, fa = mid, fm
+            else:
+                z = mid
+        return 0.5 * (a + z)
+
+    mu0 = bisect(-4 * wb ** 2, -1e-12, 200)
+    lam = math.sqrt(-mu0)
+    u00sq = share(mu0)
+    big_m = m / u00sq
+    a = 3 * big_m * lam ** 2 / (2 * b)
+    k = lam / 2
+    edges = [0.0] + [w * w for w in ws]
+    total = 0.0
+    for i in range(n):
+        lo = edges[i] + 1e-12 * (edges[i + 1] - edges[i])
+        hi = edges[i + 1] - 1e-12 * (edges[i + 1] - edges[i])
+        if (sec(lo) > 0) == (sec(hi) > 0):
+            continue
+        mu = bisect(lo, hi, 80)
+        om = math.sqrt(mu)
+        nu = om / k
+        if nu > 200:  # |F~|^2 ~ e^{-pi nu}: below 1e-270 of the peak
+            continue
+        f = b * a * a * math.pi * nu * (nu * nu + 4) / (6 * k * math.sinh(math.pi * nu / 2))
+        total += share(mu) * f * f / (2 * m)
+    return total, lam
+
+
 def main():
     check = '--check' in sys.argv
     mp.dps = 40 if check else 30
@@ -79,12 +144,21 @@ def main():
         direct = 2 * mp.quad(lambda t: a * mp.sech(k * t) ** 2 * mp.cos(w * t), [0, mp.inf])
         closed = a * mp.pi * w / (k ** 2 * mp.sinh(mp.pi * w / (2 * k)))
         print('sech^2 transform, closed/direct - 1:', closed / direct - 1)
+        for nu in ['0.3', '1.7', '4']:
+            nu = mpf(nu)
+            direct = 2 * mp.quad(lambda x: mp.sech(x) ** 4 * mp.cos(nu * x), [0, mp.inf])
+            closed = mp.pi * nu * (nu ** 2 + 4) / (6 * mp.sinh(mp.pi * nu / 2))
+            print('sech^4 transform at nu =', nu, 'closed/direct - 1:', closed / direct - 1)
         stored = json.load(open(os.path.join(HERE, 'pgh_values.json')))
         for s, r in zip(stored['cubic'], rows):
             print(r['gamma_over_omega_b'], 'stored/recomputed - 1:', s['delta'] / r['delta'] - 1)
         return
+    modes = []
+    for r in ['0.1', '1', '3']:
+        d, lam = mode_sum(float(r))
+        modes.append({'gamma_over_omega_b': float(r), 'delta': d, 'lambda': lam, 'bath_modes': 1500})
     out = {'potential': 'cubic family, E_b = 6 kT, L = 1.5 (barrier at x = 1), m = 1, kT = 1',
-           'action': float(ib), 'cubic': rows}
+           'action': float(ib), 'cubic': rows, 'mode_sum': modes}
     with open(os.path.join(HERE, 'pgh_values.json'), 'w') as fh:
         json.dump(out, fh, indent=1, sort_keys=True)
         fh.write('\n')
