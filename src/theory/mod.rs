@@ -345,13 +345,19 @@ pub fn rates_for(
                 l.turning_point,
                 l.wall,
             ) {
-                Ok(e) => Some(PghReport {
-                    energy_loss: e.delta,
-                    depopulation: turnover::depopulation(e.delta),
-                    u00_squared: e.u00_squared,
-                    turning_point: e.turning_point,
-                    reflected: e.reflected,
-                }),
+                Ok(e) => {
+                    let ln_ups = turnover::ln_depopulation(e.delta);
+                    Some((
+                        PghReport {
+                            energy_loss: e.delta,
+                            depopulation: ln_ups.exp(),
+                            u00_squared: e.u00_squared,
+                            turning_point: e.turning_point,
+                            reflected: e.reflected,
+                        },
+                        ln_ups,
+                    ))
+                }
                 Err(e) => {
                     warnings.push(format!("{e}: the PGH rate is not given"));
                     None
@@ -360,9 +366,9 @@ pub fn rates_for(
         }
         _ => None,
     };
-    let ln_pgh = ln_kramers
-        .zip(pgh)
-        .map(|(k, p)| pgh::ln_rate(k, p.energy_loss));
+    // k_PGH = Υ (λ‡/ω_b) k_TST = Υ k_Kramers
+    let ln_pgh = ln_kramers.zip(pgh).map(|(k, (_, ln_ups))| k + ln_ups);
+    let pgh = pgh.map(|(p, _)| p);
     // well-to-well (double wells with a product minimum): δ₂ from the product-side orbit
     let delta2 = match (gamma, l.action_product) {
         (Some(g), Some(i)) => Some(g * i).filter(|d| d.is_finite() && *d > 0.0),

@@ -170,11 +170,6 @@ pub fn u00_squared(gamma: f64, lambda: f64) -> f64 {
     2.0 * lambda / (2.0 * lambda + gamma)
 }
 
-/// ln k_PGH = ln k_Kramers + ln Υ(Δ/kT); `ln_kramers` is ln[(λ₊/ω_b) k_TST].
-pub fn ln_rate(ln_kramers: f64, delta: f64) -> f64 {
-    ln_kramers + super::turnover::ln_depopulation(delta)
-}
-
 /// The energy loss Δ/kT along the unstable mode's orbit into the well.
 ///
 /// `barrier` and `kappa_b` = |U''(x_b)| describe the barrier top; `turning` is the far turning point
