@@ -23,6 +23,9 @@ with lam = sqrt(gamma^2/4 + w_b^2) - gamma/2 and u00^2 = 2 lam/(2 lam + gamma). 
 orbit, frequency domain) shares nothing with the Rust code's (numerical orbit, time-domain filter).
 The weak-friction limit Delta/gamma -> I_b = 36 E_b/(5 w_b) is checked too.
 
+`memory`: the same for the exponential kernel K^(s) = gamma/(1 + s tau), integrated in the plain form
+of `delta_memory` (complex D, no factorisation), at tau w_b = 0.5 and 2.
+
 The formula itself (spectral weight, u00, the unstable mode's potential) is checked by a second,
 explicit route, `mode_sum`: an Ohmic bath discretised into N = 1500 oscillators (omega_j = (j + 1/2) dw up
 to a cutoff 60 max(w_b, gamma), couplings c_j^2 = (2/pi) gamma omega_j^2 dw, so that
@@ -70,6 +73,40 @@ def delta(ratio):
     integral = mp.quad(f, [0, lam / 4, lam, 4 * lam, 16 * lam, 64 * lam, mp.inf])
     d = g * big_m ** 2 / (mp.pi * M_PARTICLE) * integral
     return g, lam, u00sq, d, a, k
+
+
+def delta_memory(ratio, tau_wb):
+    """Delta for the exponential memory kernel K^(s) = gamma/(1 + s tau), straight from
+    Delta = (1/(pi m)) Int_0^inf w^2 Re K^(-iw) |V1'~(w)|^2/|D(w)|^2 dw, D(w) = -w^2 - w_b^2 - iw K^(-iw),
+    V1'~ = M (lam^2 + w^2) r~ (no factorisation of D), with lam the Grote-Hynes root and
+    u00^2 = [1 + (K^(lam)/lam + K^'(lam))/2]^-1."""
+    kb = mpf('13.5') * EB / L ** 2
+    wb = mp.sqrt(kb / M_PARTICLE)
+    g = mpf(ratio) * wb
+    tau = mpf(tau_wb) / wb
+    cubic = lambda x: tau * x ** 3 + x ** 2 + (g - tau * wb ** 2) * x - wb ** 2
+    lam = mp.findroot(cubic, (mpf(0), wb), solver='bisect')
+    khat = g / (1 + lam * tau)
+    khat_p = -g * tau / (1 + lam * tau) ** 2
+    u00sq = 1 / (1 + (khat / lam + khat_p) / 2)
+    big_m = M_PARTICLE / u00sq
+    b = mpf('20.25') * EB / L ** 3
+    a = 3 * big_m * lam ** 2 / (2 * b)
+    k = lam / 2
+
+    def rt(w):
+        if w == 0:
+            return 2 * a / k
+        return a * mp.pi * w / (k ** 2 * mp.sinh(mp.pi * w / (2 * k)))
+
+    def f(w):
+        kw = g / (1 - 1j * w * tau)
+        d = -w ** 2 - wb ** 2 - 1j * w * kw
+        force = big_m * (lam ** 2 + w ** 2) * rt(w)
+        return w ** 2 * mp.re(kw) * force ** 2 / abs(d) ** 2
+
+    integral = mp.quad(f, [0, lam / 4, lam, 4 * lam, 16 * lam, 64 * lam, mp.inf])
+    return g, tau, lam, u00sq, integral / (mp.pi * M_PARTICLE)
 
 
 def mode_sum(ratio, n=1500, cutoff=60.0):
@@ -149,16 +186,25 @@ def main():
             direct = 2 * mp.quad(lambda x: mp.sech(x) ** 4 * mp.cos(nu * x), [0, mp.inf])
             closed = mp.pi * nu * (nu ** 2 + 4) / (6 * mp.sinh(mp.pi * nu / 2))
             print('sech^4 transform at nu =', nu, 'closed/direct - 1:', closed / direct - 1)
+        g, tau, lam, u00sq, d = delta_memory('1', '1e-12')
+        print('memory form at tau = 1e-12/w_b against the Ohmic one - 1:', d / delta('1')[3] - 1)
         stored = json.load(open(os.path.join(HERE, 'pgh_values.json')))
         for s, r in zip(stored['cubic'], rows):
             print(r['gamma_over_omega_b'], 'stored/recomputed - 1:', s['delta'] / r['delta'] - 1)
         return
+    memory = []
+    for r in ['0.3', '1', '3']:
+        for tw in ['0.5', '2']:
+            g, tau, lam, u00sq, d = delta_memory(r, tw)
+            memory.append({'gamma_over_omega_b': float(mpf(r)), 'tau_omega_b': float(mpf(tw)),
+                           'gamma': float(g), 'memory_time': float(tau), 'lambda': float(lam),
+                           'u00_squared': float(u00sq), 'delta': float(d)})
     modes = []
     for r in ['0.1', '1', '3']:
         d, lam = mode_sum(float(r))
         modes.append({'gamma_over_omega_b': float(r), 'delta': d, 'lambda': lam, 'bath_modes': 1500})
     out = {'potential': 'cubic family, E_b = 6 kT, L = 1.5 (barrier at x = 1), m = 1, kT = 1',
-           'action': float(ib), 'cubic': rows, 'mode_sum': modes}
+           'action': float(ib), 'cubic': rows, 'memory': memory, 'mode_sum': modes}
     with open(os.path.join(HERE, 'pgh_values.json'), 'w') as fh:
         json.dump(out, fh, indent=1, sort_keys=True)
         fh.write('\n')

@@ -215,7 +215,7 @@ pub struct UncertaintyReport {
 type Getter = fn(&Rates) -> Option<f64>;
 
 /// The rate keys reported, with their getters.
-const KEYS: [(&str, Getter); 9] = [
+const KEYS: [(&str, Getter); 10] = [
     ("tst", |r| r.tst),
     ("tst_exact", |r| r.tst_exact),
     ("kramers", |r| r.kramers),
@@ -224,6 +224,7 @@ const KEYS: [(&str, Getter); 9] = [
     ("turnover", |r| r.turnover),
     ("pgh", |r| r.pgh),
     ("mfpt", |r| r.mfpt),
+    ("grote_hynes", |r| r.grote_hynes),
     ("well_to_well", |r| r.well_to_well),
 ];
 
@@ -381,7 +382,10 @@ fn analyse_draw(
     l.points.sort_by(|a, b| a.x.total_cmp(&b.x));
     l.points.dedup_by(|a, b| a.x == b.x);
     let eb = l.barrier_height;
-    let t = theory::rates_for(table, &model.diffusion, model.mass, model.friction, l);
+    let mut t = theory::rates_for(table, &model.diffusion, model.mass, model.friction, l);
+    if let Some(tau) = model.memory_time {
+        theory::apply_memory(&mut t, table, model.mass, tau);
+    }
     Some(Draw {
         eb,
         rates: t.rates,

@@ -142,6 +142,50 @@ pub struct PghReport {
     pub reflected: bool,
 }
 
+/// The PGH report and ln k_PGH = ln[(λ‡/ω_b) k_TST] + ln Υ, where `ln_prefactor_rate` is
+/// ln[(λ‡/ω_b) k_TST] for the same friction (Kramers, or Grote–Hynes with a memory time); `None`
+/// with a warning when the unstable mode's orbit cannot be followed.
+fn pgh_rate(
+    pot: &dyn Potential,
+    mass: f64,
+    gamma: f64,
+    memory_time: Option<f64>,
+    l: &Landscape,
+    ln_prefactor_rate: f64,
+    warnings: &mut Vec<String>,
+) -> Option<(PghReport, f64)> {
+    if gamma <= 0.0 {
+        return None;
+    }
+    let args = (l.barrier, l.curvature_barrier, l.turning_point, l.wall);
+    match pgh::energy_loss(
+        pot,
+        mass,
+        gamma,
+        memory_time,
+        args.0,
+        args.1,
+        args.2,
+        args.3,
+    ) {
+        Ok(e) => {
+            let ln_ups = turnover::ln_depopulation(e.delta);
+            let report = PghReport {
+                energy_loss: e.delta,
+                depopulation: ln_ups.exp(),
+                u00_squared: e.u00_squared,
+                turning_point: e.turning_point,
+                reflected: e.reflected,
+            };
+            Some((report, ln_prefactor_rate + ln_ups))
+        }
+        Err(e) => {
+            warnings.push(format!("{e}: the PGH rate is not given"));
+            None
+        }
+    }
+}
+
 /// Stationary points strictly between two positions (panel breakpoints for quadrature).
 fn between(l: &Landscape, a: f64, b: f64) -> Vec<f64> {
     let (lo, hi) = (a.min(b), a.max(b));
@@ -161,7 +205,7 @@ pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
     let l = Landscape::analyse(pot, model.start, model.target, model.mass)?;
     let mut t = rates_for(pot, &model.diffusion, model.mass, model.friction, l);
     if let Some(tau) = model.memory_time {
-        add_grote_hynes(&mut t, tau);
+        apply_memory(&mut t, pot, model.mass, tau);
     }
     if model.period.is_some() {
         let p = analyse_periodic(model, t.landscape.reactant, t.friction)?;
@@ -233,14 +277,35 @@ pub fn analyse_periodic(
 }
 
 /// Adds the Grote–Hynes rate k_GH = (λ_r/ω_b) k_TST for an exponential memory kernel of memory
-/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)).
-fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
-    let (Some(g), Some(wb), Some(tst)) = (t.friction, t.landscape.omega_barrier, t.rates.tst)
+/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)), redoes PGH for that kernel and marks
+/// the memoryless friction-dependent rates as not holding.
+pub fn apply_memory(t: &mut TheoryReport, pot: &dyn Potential, mass: Option<f64>, tau: f64) {
+    let (Some(g), Some(wb), Some(tst), Some(m)) =
+        (t.friction, t.landscape.omega_barrier, t.rates.tst, mass)
     else {
         return;
     };
     let k = kramers::lambda_grote_hynes(g, wb, tau) / wb * tst;
     t.rates.grote_hynes = Some(k);
+    let pgh = pgh_rate(
+        pot,
+        m,
+        g,
+        Some(tau),
+        &t.landscape,
+        k.ln(),
+        &mut t.regime.warnings,
+    );
+    t.rates.pgh = pgh.map(|(_, ln_k)| ln_k.exp());
+    t.pgh = pgh.map(|(p, _)| p);
+    if let Some(r) = t.rows.iter_mut().find(|r| r.key == "pgh") {
+        r.rate = t.rates.pgh;
+        r.valid = r.valid && r.rate.is_some();
+        if r.valid {
+            r.note =
+                "holds at all frictions, exponential memory (finite-barrier error ~kT/E_b)".into();
+        }
+    }
     let high = t.landscape.barrier_height >= LOW_BARRIER_KT;
     let row = RateRow {
         key: "grote_hynes",
@@ -257,13 +322,7 @@ fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
     for r in t.rows.iter_mut().filter(|r| {
         matches!(
             r.key,
-            "kramers"
-                | "smoluchowski"
-                | "energy_diffusion"
-                | "turnover"
-                | "pgh"
-                | "well_to_well"
-                | "mfpt"
+            "kramers" | "smoluchowski" | "energy_diffusion" | "turnover" | "well_to_well" | "mfpt"
         )
     }) {
         if r.valid {
@@ -271,15 +330,10 @@ fn add_grote_hynes(t: &mut TheoryReport, tau: f64) {
             r.note = "assumes memoryless friction (memory_time is set)".into();
         }
     }
-    t.regime
-        .trusted
-        .retain(|k| matches!(*k, "tst" | "tst_exact"));
-    if row.valid {
-        t.regime.trusted.push("grote_hynes");
-    }
     t.rows.push(row);
+    t.regime.trusted = t.rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
     t.regime.warnings.push(format!(
-        "memory friction (tau = {tau:.4e}): the Grote-Hynes rate applies; Kramers, turnover and the MFPT assume memoryless friction"
+        "memory friction (tau = {tau:.4e}): the Grote-Hynes rate applies at strong friction and PGH (with the same kernel) at all frictions; Kramers, Mel'nikov-Meshkov and the MFPT assume memoryless friction"
     ));
 }
 
@@ -335,39 +389,10 @@ pub fn rates_for(
     let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
     // PGH: the energy loss along the unstable normal mode replaces γ I_b
     let pgh = match (mass, gamma, ln_kramers) {
-        (Some(m), Some(g), Some(_)) if g > 0.0 => {
-            match pgh::energy_loss(
-                pot,
-                m,
-                g,
-                l.barrier,
-                l.curvature_barrier,
-                l.turning_point,
-                l.wall,
-            ) {
-                Ok(e) => {
-                    let ln_ups = turnover::ln_depopulation(e.delta);
-                    Some((
-                        PghReport {
-                            energy_loss: e.delta,
-                            depopulation: ln_ups.exp(),
-                            u00_squared: e.u00_squared,
-                            turning_point: e.turning_point,
-                            reflected: e.reflected,
-                        },
-                        ln_ups,
-                    ))
-                }
-                Err(e) => {
-                    warnings.push(format!("{e}: the PGH rate is not given"));
-                    None
-                }
-            }
-        }
+        (Some(m), Some(g), Some(k)) => pgh_rate(pot, m, g, None, &l, k, &mut warnings),
         _ => None,
     };
-    // k_PGH = Υ (λ‡/ω_b) k_TST = Υ k_Kramers
-    let ln_pgh = ln_kramers.zip(pgh).map(|(k, (_, ln_ups))| k + ln_ups);
+    let ln_pgh = pgh.map(|(_, k)| k);
     let pgh = pgh.map(|(p, _)| p);
     // well-to-well (double wells with a product minimum): δ₂ from the product-side orbit
     let delta2 = match (gamma, l.action_product) {
