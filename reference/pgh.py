@@ -23,6 +23,9 @@ with lam = sqrt(gamma^2/4 + w_b^2) - gamma/2 and u00^2 = 2 lam/(2 lam + gamma). 
 orbit, frequency domain) shares nothing with the Rust code's (numerical orbit, time-domain filter).
 The weak-friction limit Delta/gamma -> I_b = 36 E_b/(5 w_b) is checked too.
 
+`memory_reflected`: the same with a wall cutting the orbit (series transform, mp.dps = 25), at
+(gamma/w_b, tau w_b) = (1, 0.5) and (30, 3), the second with a sharp resonance at sqrt(beta).
+
 `memory`: the same for the exponential kernel K^(s) = gamma/(1 + s tau), integrated in the plain form
 of `delta_memory` (complex D, no factorisation), at tau w_b = 0.5 and 2.
 
@@ -107,6 +110,53 @@ def delta_memory(ratio, tau_wb):
 
     integral = mp.quad(f, [0, lam / 4, lam, 4 * lam, 16 * lam, 64 * lam, mp.inf])
     return g, tau, lam, u00sq, integral / (mp.pi * M_PARTICLE)
+
+
+def delta_memory_reflected(ratio, tau_wb, r_wall):
+    """As delta_memory, for the orbit cut by a reflecting wall at distance r_wall from the barrier
+    (inside the orbit): r(t) = A sech^2(k(|t| + t0)) with sech^2(k t0) = r_wall/A. Its transform comes
+    from sech^2(y) = 4 sum_{n>=1} (-1)^(n+1) n e^(-2ny) (y > 0):
+    r~(w) = 8A sum_n (-1)^(n+1) n q^n 2nk/((2nk)^2 + w^2), q = e^(-2k t0).  Breakpoints at the
+    resonance sqrt(beta) +- multiples of alpha (see memory_integral in pgh.rs)."""
+    kb = mpf('13.5') * EB / L ** 2
+    wb = mp.sqrt(kb / M_PARTICLE)
+    g = mpf(ratio) * wb
+    tau = mpf(tau_wb) / wb
+    cubic = lambda x: tau * x ** 3 + x ** 2 + (g - tau * wb ** 2) * x - wb ** 2
+    lam = mp.findroot(cubic, (mpf(0), wb), solver='bisect')
+    khat = g / (1 + lam * tau)
+    khat_p = -g * tau / (1 + lam * tau) ** 2
+    u00sq = 1 / (1 + (khat / lam + khat_p) / 2)
+    big_m = M_PARTICLE / u00sq
+    b = mpf('20.25') * EB / L ** 3
+    a = 3 * big_m * lam ** 2 / (2 * b)
+    k = lam / 2
+    rw = mpf(r_wall)
+    assert rw < a, 'the wall must cut the orbit'
+    q = mp.exp(-2 * mp.asech(mp.sqrt(rw / a)))
+
+    def rt(w):
+        s, n = mpf(0), 1
+        while True:
+            term = (-1) ** (n + 1) * n * q ** n * 2 * n * k / ((2 * n * k) ** 2 + w ** 2)
+            s += term
+            if n > 5 and abs(term) < mpf(10) ** -25 * abs(s):
+                return 8 * a * s
+            n += 1
+
+    def f(w):
+        kw = g / (1 - 1j * w * tau)
+        d = -w ** 2 - wb ** 2 - 1j * w * kw
+        force = big_m * (lam ** 2 + w ** 2) * rt(w)
+        return w ** 2 * mp.re(kw) * force ** 2 / abs(d) ** 2
+
+    alpha = lam + 1 / tau
+    root_beta = mp.sqrt(wb ** 2 / (tau * lam))
+    pts = [mpf(0), lam / 4, lam, 4 * lam, 16 * lam, 64 * lam, 1 / tau, alpha]
+    pts += [p for p in (root_beta + j * alpha / 2 for j in [-30, -10, -3, -1, 0, 1, 3, 10, 30]) if p > 0]
+    pts += [10 * wb, 100 * wb, 1000 * wb, 10000 * wb]
+    integral = mp.quad(f, sorted(set(pts)) + [mp.inf], maxdegree=10)
+    return g, tau, integral / (mp.pi * M_PARTICLE)
 
 
 def mode_sum(ratio, n=1500, cutoff=60.0):
@@ -199,12 +249,21 @@ def main():
             memory.append({'gamma_over_omega_b': float(mpf(r)), 'tau_omega_b': float(mpf(tw)),
                            'gamma': float(g), 'memory_time': float(tau), 'lambda': float(lam),
                            'u00_squared': float(u00sq), 'delta': float(d)})
+    reflected = []
+    for r, tw, rw in [('1', '0.5', '0.5'), ('30', '3', '0.5')]:
+        mp.dps = 25
+        g, tau, d = delta_memory_reflected(r, tw, rw)
+        mp.dps = 30
+        reflected.append({'gamma_over_omega_b': float(mpf(r)), 'tau_omega_b': float(mpf(tw)),
+                          'gamma': float(g), 'memory_time': float(tau), 'wall_distance': float(mpf(rw)),
+                          'delta': float(d)})
     modes = []
     for r in ['0.1', '1', '3']:
         d, lam = mode_sum(float(r))
         modes.append({'gamma_over_omega_b': float(r), 'delta': d, 'lambda': lam, 'bath_modes': 1500})
     out = {'potential': 'cubic family, E_b = 6 kT, L = 1.5 (barrier at x = 1), m = 1, kT = 1',
-           'action': float(ib), 'cubic': rows, 'memory': memory, 'mode_sum': modes}
+           'action': float(ib), 'cubic': rows, 'memory': memory, 'memory_reflected': reflected,
+           'mode_sum': modes}
     with open(os.path.join(HERE, 'pgh_values.json'), 'w') as fh:
         json.dump(out, fh, indent=1, sort_keys=True)
         fh.write('\n')

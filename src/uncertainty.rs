@@ -199,7 +199,7 @@ pub struct UncertaintyReport {
     /// E_b (kT)
     #[serde(rename = "barrier_height_kT")]
     pub barrier: Interval,
-    /// one per rate that applies, in `theory::Rates` order (grote_hynes omitted)
+    /// one per rate that applies
     pub rates: Vec<Interval>,
     /// var(E_b)/var(ln k) for 1/MFPT
     pub barrier_share: Option<f64>,
@@ -382,10 +382,14 @@ fn analyse_draw(
     l.points.sort_by(|a, b| a.x.total_cmp(&b.x));
     l.points.dedup_by(|a, b| a.x == b.x);
     let eb = l.barrier_height;
-    let mut t = theory::rates_for(table, &model.diffusion, model.mass, model.friction, l);
-    if let Some(tau) = model.memory_time {
-        theory::apply_memory(&mut t, table, model.mass, tau);
-    }
+    let t = theory::rates_for(
+        table,
+        &model.diffusion,
+        model.mass,
+        model.friction,
+        model.memory_time,
+        l,
+    );
     Some(Draw {
         eb,
         rates: t.rates,

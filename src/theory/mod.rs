@@ -203,10 +203,15 @@ fn between(l: &Landscape, a: f64, b: f64) -> Vec<f64> {
 pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
     let pot = &model.potential;
     let l = Landscape::analyse(pot, model.start, model.target, model.mass)?;
-    let mut t = rates_for(pot, &model.diffusion, model.mass, model.friction, l);
-    if let Some(tau) = model.memory_time {
-        apply_memory(&mut t, pot, model.mass, tau);
-    }
+    let t = rates_for(
+        pot,
+        &model.diffusion,
+        model.mass,
+        model.friction,
+        model.memory_time,
+        l,
+    );
+    let mut t = t;
     if model.period.is_some() {
         let p = analyse_periodic(model, t.landscape.reactant, t.friction)?;
         t.regime.warnings.extend(p.warnings.iter().cloned());
@@ -277,34 +282,18 @@ pub fn analyse_periodic(
 }
 
 /// Adds the Grote–Hynes rate k_GH = (λ_r/ω_b) k_TST for an exponential memory kernel of memory
-/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)), redoes PGH for that kernel and marks
-/// the memoryless friction-dependent rates as not holding.
-pub fn apply_memory(t: &mut TheoryReport, pot: &dyn Potential, mass: Option<f64>, tau: f64) {
-    let (Some(g), Some(wb), Some(tst), Some(m)) =
-        (t.friction, t.landscape.omega_barrier, t.rates.tst, mass)
+/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)) and marks the memoryless
+/// friction-dependent rates as not holding; PGH was computed for the same kernel by
+/// [`rates_for`].
+fn apply_memory(t: &mut TheoryReport, tau: f64) {
+    let (Some(g), Some(wb), Some(tst)) = (t.friction, t.landscape.omega_barrier, t.rates.tst)
     else {
         return;
     };
     let k = kramers::lambda_grote_hynes(g, wb, tau) / wb * tst;
     t.rates.grote_hynes = Some(k);
-    let pgh = pgh_rate(
-        pot,
-        m,
-        g,
-        Some(tau),
-        &t.landscape,
-        k.ln(),
-        &mut t.regime.warnings,
-    );
-    t.rates.pgh = pgh.map(|(_, ln_k)| ln_k.exp());
-    t.pgh = pgh.map(|(p, _)| p);
-    if let Some(r) = t.rows.iter_mut().find(|r| r.key == "pgh") {
-        r.rate = t.rates.pgh;
-        r.valid = r.valid && r.rate.is_some();
-        if r.valid {
-            r.note =
-                "holds at all frictions, exponential memory (finite-barrier error ~kT/E_b)".into();
-        }
+    if let Some(r) = t.rows.iter_mut().find(|r| r.key == "pgh" && r.valid) {
+        r.note = "holds at all frictions, exponential memory (finite-barrier error ~kT/E_b)".into();
     }
     let high = t.landscape.barrier_height >= LOW_BARRIER_KT;
     let row = RateRow {
@@ -337,12 +326,14 @@ pub fn apply_memory(t: &mut TheoryReport, pot: &dyn Potential, mass: Option<f64>
     ));
 }
 
-/// Computes the rates for an analysed landscape.
+/// Computes the rates for an analysed landscape; with a `memory_time` the friction has the
+/// exponential kernel, which brings in Grote–Hynes and PGH for that kernel (see [`apply_memory`]).
 pub fn rates_for(
     pot: &dyn Potential,
     diffusion: &Diffusion,
     mass: Option<f64>,
     friction: Option<f64>,
+    memory_time: Option<f64>,
     l: Landscape,
 ) -> TheoryReport {
     let eb = l.barrier_height;
@@ -388,8 +379,15 @@ pub fn rates_for(
     let ln_ed = ln_tst.zip(delta).map(|(k, d)| k + d.ln());
     let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
     // PGH: the energy loss along the unstable normal mode replaces γ I_b
-    let pgh = match (mass, gamma, ln_kramers) {
-        (Some(m), Some(g), Some(k)) => pgh_rate(pot, m, g, None, &l, k, &mut warnings),
+    // its prefactor rate (λ‡/ω_b) k_TST is Kramers', or Grote–Hynes' with memory
+    let ln_pgh_prefactor = match (memory_time, gamma, l.omega_barrier, ln_tst) {
+        (Some(tau), Some(g), Some(wb), Some(k)) => {
+            Some(k + (kramers::lambda_grote_hynes(g, wb, tau) / wb).ln())
+        }
+        _ => ln_kramers,
+    };
+    let pgh = match (mass, gamma, ln_pgh_prefactor) {
+        (Some(m), Some(g), Some(k)) => pgh_rate(pot, m, g, memory_time, &l, k, &mut warnings),
         _ => None,
     };
     let ln_pgh = pgh.map(|(_, k)| k);
@@ -554,7 +552,7 @@ pub fn rates_for(
         ));
     }
     let trusted = rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
-    TheoryReport {
+    let mut t = TheoryReport {
         regime: RegimeReport {
             name,
             gamma_over_omega_barrier: g_over_wb,
@@ -572,5 +570,9 @@ pub fn rates_for(
         depopulation: ln_a.map(f64::exp),
         pgh,
         periodic: None,
+    };
+    if let Some(tau) = memory_time {
+        apply_memory(&mut t, tau);
     }
+    t
 }
