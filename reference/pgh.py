@@ -78,11 +78,9 @@ def delta(ratio):
     return g, lam, u00sq, d, a, k
 
 
-def delta_memory(ratio, tau_wb):
-    """Delta for the exponential memory kernel K^(s) = gamma/(1 + s tau), straight from
-    Delta = (1/(pi m)) Int_0^inf w^2 Re K^(-iw) |V1'~(w)|^2/|D(w)|^2 dw, D(w) = -w^2 - w_b^2 - iw K^(-iw),
-    V1'~ = M (lam^2 + w^2) r~ (no factorisation of D), with lam the Grote-Hynes root and
-    u00^2 = [1 + (K^(lam)/lam + K^'(lam))/2]^-1."""
+def memory_setup(ratio, tau_wb):
+    """w_b, gamma, tau, the Grote-Hynes root lam, u00^2 = [1 + (K^(lam)/lam + K^'(lam))/2]^-1, M = m/u00^2,
+    and the sech^2 orbit's amplitude A = 3 M lam^2/(2b) and rate k = lam/2 for the cubic well."""
     kb = mpf('13.5') * EB / L ** 2
     wb = mp.sqrt(kb / M_PARTICLE)
     g = mpf(ratio) * wb
@@ -96,6 +94,15 @@ def delta_memory(ratio, tau_wb):
     b = mpf('20.25') * EB / L ** 3
     a = 3 * big_m * lam ** 2 / (2 * b)
     k = lam / 2
+    return wb, g, tau, lam, u00sq, big_m, a, k
+
+
+def delta_memory(ratio, tau_wb):
+    """Delta for the exponential memory kernel K^(s) = gamma/(1 + s tau), straight from
+    Delta = (1/(pi m)) Int_0^inf w^2 Re K^(-iw) |V1'~(w)|^2/|D(w)|^2 dw, D(w) = -w^2 - w_b^2 - iw K^(-iw),
+    V1'~ = M (lam^2 + w^2) r~ (no factorisation of D), with lam the Grote-Hynes root and
+    u00^2 = [1 + (K^(lam)/lam + K^'(lam))/2]^-1."""
+    wb, g, tau, lam, u00sq, big_m, a, k = memory_setup(ratio, tau_wb)
 
     def rt(w):
         if w == 0:
@@ -118,19 +125,7 @@ def delta_memory_reflected(ratio, tau_wb, r_wall):
     from sech^2(y) = 4 sum_{n>=1} (-1)^(n+1) n e^(-2ny) (y > 0):
     r~(w) = 8A sum_n (-1)^(n+1) n q^n 2nk/((2nk)^2 + w^2), q = e^(-2k t0).  Breakpoints at the
     resonance sqrt(beta) +- multiples of alpha (see memory_integral in pgh.rs)."""
-    kb = mpf('13.5') * EB / L ** 2
-    wb = mp.sqrt(kb / M_PARTICLE)
-    g = mpf(ratio) * wb
-    tau = mpf(tau_wb) / wb
-    cubic = lambda x: tau * x ** 3 + x ** 2 + (g - tau * wb ** 2) * x - wb ** 2
-    lam = mp.findroot(cubic, (mpf(0), wb), solver='bisect')
-    khat = g / (1 + lam * tau)
-    khat_p = -g * tau / (1 + lam * tau) ** 2
-    u00sq = 1 / (1 + (khat / lam + khat_p) / 2)
-    big_m = M_PARTICLE / u00sq
-    b = mpf('20.25') * EB / L ** 3
-    a = 3 * big_m * lam ** 2 / (2 * b)
-    k = lam / 2
+    wb, g, tau, lam, u00sq, big_m, a, k = memory_setup(ratio, tau_wb)
     rw = mpf(r_wall)
     assert rw < a, 'the wall must cut the orbit'
     q = mp.exp(-2 * mp.asech(mp.sqrt(rw / a)))
