@@ -106,6 +106,35 @@ fn zero_sigma_collapses_every_interval() {
     assert!(r.barrier_share.is_none() && r.prefactor_share.is_none());
 }
 
+// With a memory time the draws use the same model as the central value: Grote–Hynes gets an
+// interval and PGH is the memory version, so σ_U = 0 still collapses every interval onto the
+// central value (1e-12 as above); a draw without the memory would put PGH 33% low here.
+#[test]
+fn memory_friction_draws_match_the_central_model() {
+    let rows: Vec<(f64, f64, f64)> = (0..=400)
+        .map(|i| {
+            let x = -2.0 + f64::from(i) * 0.01;
+            (x, 8.0 * (x * x - 1.0).powi(2), 0.0)
+        })
+        .collect();
+    let m = model(
+        "quartic-memory",
+        "mass = 1.0\nfriction = 8.0\nmemory_time = 0.5",
+        -1.0,
+        &rows,
+    );
+    let r = run(&m, 40, None, 3);
+    assert_eq!(r.failed, 0);
+    let keys: Vec<&str> = r.rates.iter().map(|i| i.key).collect();
+    assert!(
+        keys.contains(&"grote_hynes") && keys.contains(&"pgh"),
+        "{keys:?}"
+    );
+    for i in &r.rates {
+        assert!(collapsed(i, 1e-12), "{i:?}");
+    }
+}
+
 // ℓ far larger than the table with uniform σ_U: every knot moves by the same δU (the kernel is
 // exactly 1 everywhere), and rates depend only on differences of U, so nothing changes but
 // rounding: U + c loses up to ε·max|U| ≈ 1.6e-14 kT per knot, which the spline and the quadratures
