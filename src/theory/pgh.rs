@@ -4,9 +4,10 @@
 //!
 //! Construction (Pollak, Grabert & Hänggi, J. Chem. Phys. 91, 4073 (1989); the paper's text was
 //! not available to us, so each step below is derived from the model Hamiltonian it starts from,
-//! system plus bilinearly coupled harmonic bath, and checked in its limits): the system with its harmonic bath is diagonalised at the barrier top. The unstable normal mode ρ has
-//! frequency λ‡ (for Ohmic friction Kramers' λ₊ = sqrt(γ²/4 + ω_b²) − γ/2) and its share of the
-//! system coordinate is u₀₀, with u₀₀² = [1 + ½(γ̂(λ‡)/λ‡ + γ̂'(λ‡))]⁻¹ = 2λ‡/(2λ‡ + γ) for constant
+//! system plus bilinearly coupled harmonic bath, and checked in its limits): the system with its
+//! harmonic bath is diagonalised at the barrier top. The unstable normal mode ρ has frequency λ‡
+//! (for Ohmic friction Kramers' λ₊ = sqrt(γ²/4 + ω_b²) − γ/2) and its share of the system
+//! coordinate is u₀₀, with u₀₀² = [1 + ½(γ̂(λ‡)/λ‡ + γ̂'(λ‡))]⁻¹ = 2λ‡/(2λ‡ + γ) for constant
 //! γ̂ = γ. The nonlinear part of the potential, V₁(q) = U(x_b + q) − U_b + ½ m ω_b² q², is the only
 //! coupling between ρ and the stable modes. To lowest order in it:
 //!
@@ -47,10 +48,11 @@
 //! that is linear between grid points (so fast e^{−Λt} transients cost nothing however large Λh);
 //! the error is that of the linear interpolation, second order in the step, which is 1/(400 ω_max)
 //! with ω_max the fastest local frequency: Δ is good to about 1e-6 (checked against mpmath for the
-//! cubic well). A wall behind the well at the barrier energy reflects the orbit: ṙ flips, and g
-//! jumps by the same amount (the impulse in r̈). The turning point is searched on 4000 points and
-//! ω_max on 400, so a feature of W narrower than 1/4000 of the orbit could be missed; smooth
-//! profiles and splines of ordinary tables have none.
+//! cubic well; the memory path to 1e-5 against mpmath, free and reflected). A wall behind the well
+//! at the barrier energy reflects the orbit: ṙ flips, and g jumps by the same amount (the impulse
+//! in r̈). The turning point is searched on 4000 points and ω_max on 400, so a feature of W
+//! narrower than 1/4000 of the orbit could be missed; smooth profiles and splines of ordinary
+//! tables have none.
 
 use super::kramers;
 use crate::potential::Potential;
@@ -75,7 +77,7 @@ const MAX_STEPS: usize = 2_000_000;
 pub enum PghError {
     /// The unstable mode's potential W does not fall below the barrier energy next to the barrier.
     #[error(
-        "the PGH orbit does not start: the potential of mean force is not below the barrier next to it"
+        "the PGH orbit does not start: the unstable mode's potential is not below the barrier next to it"
     )]
     NoOrbit,
     /// W rises to the barrier energy again on the way back (a feature the search stepped over).
@@ -388,17 +390,17 @@ const FREQ_RATIO: f64 = 1.2;
 /// path is used (as the simulation treats memory below 1e-9 dt).
 const MEMORY_NEGLIGIBLE: f64 = 1e-9;
 
-/// The frequency-domain form for the exponential memory kernel K̂(s) = γ/(1 + sτ):
-/// ∫₀^∞ ω²|r̃(ω)|² (ω² + λ‡²)/[(ω_b²/λ‡ − τω²)² + (1 + τλ‡)²ω²] dω / π, the module doc's weight
-/// multiplied through by τ² (τβ = ω_b²/λ‡, τα = 1 + τλ‡), so no τ overflows; γ M²/m times it is Δ.
-/// r̃ is the cosine transform of the even orbit by the trapezoidal rule on the orbit's grid, carried
-/// on to infinity along the analytic tail r_end e^{−λ‡t} as a geometric series (so the sum is
-/// spectrally accurate for a smooth orbit), less the aliases of the kink at a wall, whose transform
-/// falls like −2ṙ(0⁺)/ω² (summed in closed form). The frequency integral runs over geometric panels from 1e-4 min(λ‡, √β) (below which the
-/// integrand ∝ ω² is negligible) to π/(4h), a quarter of the grid's Nyquist frequency, with
-/// breakpoints α/2, α, 2α, … either side of a sharp resonance at √β (α < √β). Beyond π/(4h) a
-/// smooth orbit contributes nothing, and a reflected one the jump of ṙ at the wall,
-/// |ṙ̃|² → 4v0²/ω², integrated with the same weight.
+/// The frequency-domain form for the exponential memory kernel K̂(s) = γ/(1 + sτ): ∫₀^∞ ω²|r̃(ω)|²
+/// (ω² + λ‡²)/[(ω_b²/λ‡ − τω²)² + (1 + τλ‡)²ω²] dω / π, the module doc's weight multiplied through
+/// by τ² (τβ = ω_b²/λ‡, τα = 1 + τλ‡), so no τ overflows; γ M²/m times it is Δ. r̃ is the cosine
+/// transform of the even orbit by the trapezoidal rule on the orbit's grid, carried on to infinity
+/// along the analytic tail r_end e^{−λ‡t} as a geometric series (so the sum is spectrally accurate
+/// for a smooth orbit), less the aliases of the kink at a wall, whose transform falls like
+/// −2ṙ(0⁺)/ω² (summed in closed form). The frequency integral runs over geometric panels from 1e-4
+/// min(λ‡, √β) (below which the integrand ∝ ω² is negligible) to π/(4h), a quarter of the grid's
+/// Nyquist frequency, with breakpoints α/2, α, 2α, … either side of a sharp resonance at √β (α <
+/// √β). Beyond π/(4h) a smooth orbit contributes nothing, and a reflected one the jump of ṙ at the
+/// wall, |ṙ̃|² → 4v0²/ω², integrated with the same weight.
 fn memory_integral(
     path: &[Point],
     h: f64,
