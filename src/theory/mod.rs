@@ -327,7 +327,7 @@ fn apply_memory(t: &mut TheoryReport, tau: f64) {
 }
 
 /// Computes the rates for an analysed landscape; with a `memory_time` the friction has the
-/// exponential kernel, which brings in Grote–Hynes and PGH for that kernel (see [`apply_memory`]).
+/// exponential kernel, which brings in Grote–Hynes and PGH for that kernel.
 pub fn rates_for(
     pot: &dyn Potential,
     diffusion: &Diffusion,

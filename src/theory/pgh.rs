@@ -88,7 +88,7 @@ pub enum PghError {
     /// The orbit's turning point is a stationary point of W (it would take forever to reach).
     #[error("the PGH orbit turns at a stationary point of the potential of mean force")]
     StationaryTurningPoint,
-    /// The orbit needs more steps than [`MAX_STEPS`].
+    /// The orbit needs more than 2 000 000 time steps.
     #[error("the PGH orbit needs more than {MAX_STEPS} time steps (time scales too far apart)")]
     TooManySteps,
     /// Non-finite values along the orbit.
@@ -192,8 +192,9 @@ pub fn u00_squared(gamma: f64, tau: f64, lambda: f64) -> f64 {
 ///
 /// `barrier` and `kappa_b` = |U''(x_b)| describe the barrier top; `turning` is the far turning point
 /// of the bare orbit at the barrier energy (the landscape's, which is `wall` when U stays below
-/// U_b up to the reflecting end behind the well); `mass` m and Ohmic `gamma` in the scenario's
-/// internal units (kT = 1). W ≥ U − U_b, so the orbit turns between the barrier and `turning`.
+/// U_b up to the reflecting end behind the well); `mass` m and `gamma` in the scenario's internal
+/// units (kT = 1), with `memory_time` τ for the kernel γ/(1 + sτ) (`None`: Ohmic). W ≥ U − U_b, so
+/// the orbit turns between the barrier and `turning`.
 ///
 /// # Errors
 /// See [`PghError`].
