@@ -170,6 +170,10 @@ pub struct Landscape {
     pub action_product: Option<f64>,
     /// far turning point of the reactant orbit (the wall if U stays below U(x_b))
     pub turning_point: f64,
+    /// stationary points taken for noise (prominence below the threshold), by position
+    pub ignored: Vec<Stationary>,
+    /// the fit of a table (which spline, χ², effective degrees of freedom)
+    pub fit: Option<crate::potential::FitSummary>,
     /// warnings about the profile
     pub warnings: Vec<String>,
 }
@@ -183,11 +187,78 @@ fn brent(f: impl Fn(f64) -> f64, a: f64, b: f64) -> f64 {
     find_root_brent(a, b, f, &mut conv).unwrap_or(0.5 * (a + b))
 }
 
-/// Finds and classifies the stationary points of `pot` inside its domain.
+/// Finds and classifies the stationary points of `pot` inside its domain, without those that
+/// [`significant`] drops as noise.
 ///
 /// # Errors
 /// U or U' not finite at a scan point.
 pub fn stationary_points(pot: &dyn Potential) -> Result<Vec<Stationary>, LandscapeError> {
+    Ok(significant(pot, all_stationary_points(pot)?).0)
+}
+
+/// Splits stationary points (sorted by x) into the significant ones and those taken for noise.
+///
+/// A minimum–maximum pair whose energy difference is below the potential's
+/// [`Potential::prominence_threshold`] (the larger of its values at the two points) is cancelled,
+/// smallest difference first. This is the persistence simplification of a 1-D function
+/// (Edelsbrunner, Letscher & Zomorodian, Discrete Comput. Geom. 28, 511 (2002)): removing the
+/// closest pair first guarantees that the neighbours left behind are the deeper minimum and the
+/// higher maximum, so what survives does not depend on the order of the noise. A domain end acts
+/// as a fixed neighbour: a maximum (minimum) next to an end that lies less than the threshold
+/// below (above) it is a bump (dip) at the wall, not a barrier (well), and is dropped alone. The
+/// last minimum is never dropped.
+pub fn significant(
+    pot: &dyn Potential,
+    mut pts: Vec<Stationary>,
+) -> (Vec<Stationary>, Vec<Stationary>) {
+    let mut dropped = Vec::new();
+    let (lo, hi) = pot.domain();
+    let (u_lo, u_hi) = (pot.u(lo), pot.u(hi));
+    let thr = |p: &Stationary| pot.prominence_threshold(p.x);
+    loop {
+        // (difference, first index, how many points go)
+        let mut best: Option<(f64, usize, usize)> = None;
+        let mut offer = |d: f64, i: usize, k: usize, limit: f64| {
+            if d < limit && best.is_none_or(|b| d < b.0) {
+                best = Some((d, i, k));
+            }
+        };
+        for i in 0..pts.len().saturating_sub(1) {
+            let (a, b) = (&pts[i], &pts[i + 1]);
+            if a.kind != b.kind {
+                offer((a.u - b.u).abs(), i, 2, thr(a).max(thr(b)));
+            }
+        }
+        let sign = |p: &Stationary| if p.kind == Kind::Maximum { 1.0 } else { -1.0 };
+        if let Some(p) = pts.first() {
+            let d = sign(p) * (p.u - u_lo);
+            if d >= 0.0 {
+                offer(d, 0, 1, thr(p));
+            }
+        }
+        if let Some(p) = pts.last() {
+            let d = sign(p) * (p.u - u_hi);
+            if d >= 0.0 {
+                offer(d, pts.len() - 1, 1, thr(p));
+            }
+        }
+        let Some((_, i, k)) = best else { break };
+        let minima_left = pts.iter().filter(|p| p.kind == Kind::Minimum).count()
+            - pts[i..i + k]
+                .iter()
+                .filter(|p| p.kind == Kind::Minimum)
+                .count();
+        if minima_left == 0 {
+            break;
+        }
+        dropped.extend(pts.drain(i..i + k));
+    }
+    dropped.sort_by(|a, b| a.x.total_cmp(&b.x));
+    (pts, dropped)
+}
+
+/// Every stationary point of `pot` inside its domain, noise or not.
+fn all_stationary_points(pot: &dyn Potential) -> Result<Vec<Stationary>, LandscapeError> {
     let (lo, hi) = pot.domain();
     let xs = match pot.stationary_points() {
         Some(xs) => xs,
@@ -336,7 +407,7 @@ impl Landscape {
         mass: Option<f64>,
     ) -> Result<Self, LandscapeError> {
         let (lo, hi) = pot.domain();
-        let points = stationary_points(pot)?;
+        let (points, ignored) = significant(pot, all_stationary_points(pot)?);
         let minima: Vec<&Stationary> = points.iter().filter(|p| p.kind == Kind::Minimum).collect();
         let react = match start {
             Some(s) => minima
@@ -450,6 +521,16 @@ impl Landscape {
             };
         let u_target = pot.u(target_x);
         let mut warnings = Vec::new();
+        if !ignored.is_empty() {
+            let most = ignored
+                .iter()
+                .map(|p| pot.prominence_threshold(p.x))
+                .fold(0.0, f64::max);
+            warnings.push(format!(
+                "{} stationary point(s) of the fitted profile differ from a neighbour by less than the significance threshold ({most:.2} kT; potential.prominence) and were taken for noise",
+                ignored.len()
+            ));
+        }
         if eb < LOW_BARRIER_KT {
             warnings.push(format!(
                 "barrier {eb:.3} kT is below {LOW_BARRIER_KT} kT: no separation of time scales, the asymptotic rate formulas are unreliable; use the exact MFPT or simulation"
@@ -508,6 +589,8 @@ impl Landscape {
             action,
             action_product,
             turning_point: turning,
+            ignored,
+            fit: pot.fit().cloned(),
             warnings,
         })
     }

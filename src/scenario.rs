@@ -6,7 +6,8 @@
 //! parsed document before validation, so they are checked exactly like values in the file.
 
 use crate::potential::{
-    Diffusion, Family, Formula, FormulaPotential, Potential, Table, table::read_columns,
+    Diffusion, Family, FitChoice, Formula, FormulaPotential, Potential, Table, TableOptions,
+    smooth::Rule as SmoothRule, table::read_columns,
 };
 use crate::units::{UnitNames, UnitSystem};
 use serde::Deserialize;
@@ -145,6 +146,12 @@ pub struct PotentialSection {
     pub tilt: Option<f64>,
     /// expr or table: the period L of a periodic (possibly tilted) profile, U(x + L) = U(x) − F L
     pub periodic: Option<f64>,
+    /// table: a uniform standard error of U (energy unit) for a table without a sigma_U column
+    pub noise: Option<f64>,
+    /// table: "chi-square" | "cross-validation" (smoothing spline) | "interpolate"
+    pub fit: Option<String>,
+    /// table: the energy difference below which a minimum–maximum pair is taken for noise
+    pub prominence: Option<f64>,
 }
 
 /// Most perturbed profiles accepted (each is a full re-analysis; a million already takes hours).
@@ -326,6 +333,12 @@ impl Potential for AnyPotential {
     }
     fn is_interpolated(&self) -> bool {
         dispatch!(self, p => p.is_interpolated())
+    }
+    fn prominence_threshold(&self, x: f64) -> f64 {
+        dispatch!(self, p => p.prominence_threshold(x))
+    }
+    fn fit(&self) -> Option<&crate::potential::FitSummary> {
+        dispatch!(self, p => p.fit())
     }
 }
 
@@ -616,7 +629,14 @@ impl Validator<'_> {
                 return Err(self.err(&format!("potential.constants.{k}"), "must be finite"));
             }
         }
-        let (potential, label, table_d) = self.potential(&pot, &units, &constants)?;
+        // the noise model of a table's rows (its correlation length) shapes its fit too
+        let correlation_length = sf
+            .uncertainty
+            .as_ref()
+            .and_then(|u| u.correlation_length)
+            .filter(|c| c.is_finite() && *c >= 0.0);
+        let (potential, label, table_d) =
+            self.potential(&pot, &units, &constants, correlation_length)?;
         let (lo, hi) = potential.domain();
         let period = match (
             &potential,
@@ -877,12 +897,79 @@ impl Validator<'_> {
         }
     }
 
+    /// The fit and significance options of a table potential (energies scaled to kT).
+    fn table_options(
+        &self,
+        pot: &PotentialSection,
+        cols: &crate::potential::table::Columns,
+        scale: f64,
+        correlation_length: Option<f64>,
+    ) -> Result<TableOptions, ScenarioError> {
+        let noise = self.positive("potential.noise", pot.noise)?;
+        if noise.is_some() && cols.sigma_u.is_some() {
+            return Err(self.err(
+                "potential.noise",
+                "the table has a sigma_U column: drop potential.noise",
+            ));
+        }
+        let noisy = noise.is_some()
+            || cols
+                .sigma_u
+                .as_ref()
+                .is_some_and(|s| s.iter().any(|&v| v > 0.0));
+        let fit = match pot.fit.as_deref() {
+            None => None,
+            Some("interpolate") => Some(FitChoice::Interpolate),
+            Some(rule @ ("unbiased-risk" | "chi-square" | "cross-validation")) => {
+                if !noisy {
+                    return Err(self.err(
+                        "potential.fit",
+                        "smoothing needs the rows' standard errors: a sigma_U column or potential.noise",
+                    ));
+                }
+                Some(FitChoice::Smooth(match rule {
+                    "chi-square" => SmoothRule::ChiSquare,
+                    "cross-validation" => SmoothRule::CrossValidation,
+                    _ => SmoothRule::Risk {
+                        correlation_length: correlation_length
+                            .unwrap_or_else(|| crate::potential::table::median_spacing(&cols.x)),
+                    },
+                }))
+            }
+            Some(other) => {
+                return Err(self.err(
+                    "potential.fit",
+                    format!(
+                        "unknown fit {other:?} (unbiased-risk, chi-square, cross-validation, interpolate)"
+                    ),
+                ));
+            }
+        };
+        let prominence = match pot.prominence {
+            Some(p) if p.is_finite() && p >= 0.0 => Some(p * scale),
+            Some(p) => {
+                return Err(self.err(
+                    "potential.prominence",
+                    format!("must be a finite energy >= 0, got {p}"),
+                ));
+            }
+            None => None,
+        };
+        Ok(TableOptions {
+            noise: noise.map(|n| n * scale),
+            fit,
+            correlation_length,
+            prominence,
+        })
+    }
+
     #[allow(clippy::type_complexity)] // (potential, label, optional D column) is used once
     fn potential(
         &self,
         pot: &PotentialSection,
         units: &UnitSystem,
         constants: &BTreeMap<String, f64>,
+        correlation_length: Option<f64>,
     ) -> Result<(AnyPotential, String, Option<crate::potential::Spline>), ScenarioError> {
         let given = [
             pot.expr.is_some(),
@@ -919,6 +1006,20 @@ impl Validator<'_> {
             Ok(())
         };
         let domain = self.domain(pot)?;
+        if pot.table.is_none() {
+            for (key, given) in [
+                ("noise", pot.noise.is_some()),
+                ("fit", pot.fit.is_some()),
+                ("prominence", pot.prominence.is_some()),
+            ] {
+                if given {
+                    return Err(self.err(
+                        &format!("potential.{key}"),
+                        "applies to table potentials only (a formula or family is exact)",
+                    ));
+                }
+            }
+        }
         if let Some(src) = &pot.expr {
             only(&[], "a formula potential (use potential.constants)")?;
             let f = Formula::parse(src, constants)
@@ -948,7 +1049,8 @@ impl Validator<'_> {
                 key: "potential.table".into(),
                 message: e.to_string(),
             })?;
-            let table = Table::new(&cols, scale);
+            let opts = self.table_options(pot, &cols, scale, correlation_length)?;
+            let table = Table::with_options(&cols, scale, opts);
             let d = table.diffusion().cloned();
             return Ok((
                 AnyPotential::Table(table),

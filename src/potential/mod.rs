@@ -9,11 +9,12 @@
 
 pub mod family;
 pub mod formula;
+pub mod smooth;
 pub mod table;
 
 pub use family::Family;
 pub use formula::{Formula, FormulaError};
-pub use table::{Spline, Table, TableError};
+pub use table::{FitChoice, FitSummary, Spline, Table, TableError, TableOptions};
 
 /// A one-dimensional potential on a finite domain `[lo, hi]` with reflecting ends.
 pub trait Potential: Send + Sync + std::fmt::Debug {
@@ -47,6 +48,16 @@ pub trait Potential: Send + Sync + std::fmt::Debug {
     /// True if the curvatures come from interpolated data (and so are sensitive to noise).
     fn is_interpolated(&self) -> bool {
         false
+    }
+    /// The energy difference (kT) below which a neighbouring minimum–maximum pair near x is taken
+    /// for noise and dropped from the landscape; zero (keep every stationary point) for exact
+    /// potentials.
+    fn prominence_threshold(&self, _x: f64) -> f64 {
+        0.0
+    }
+    /// How a table's rows became the curve; None for closed forms and formulas.
+    fn fit(&self) -> Option<&FitSummary> {
+        None
     }
 }
 

@@ -1,5 +1,18 @@
-//! Profile tables: reading a file of x, U (and optionally σ_U and D) rows, and the not-a-knot cubic
-//! spline that makes U' and U'' exist.
+//! Profile tables: reading a file of x, U (and optionally σ_U and D) rows, and the cubic spline
+//! that makes U' and U'' exist: the interpolating not-a-knot spline for exact tables, the weighted
+//! smoothing spline ([`super::smooth`]) for noisy ones.
+//!
+//! Which curve. A table whose rows carry standard errors (a sigma_U column, or a uniform noise level
+//! set in the scenario) is fitted, not interpolated: interpolation would pass through every noise
+//! wiggle and hand its curvature to the harmonic rates and its bumps to the landscape as spurious
+//! minima and maxima. An exact table (no σ) is interpolated as before. The fit keeps the raw rows
+//! ([`Table::knot_u`]) so that profile-uncertainty draws perturb the data, not the fit, and refit
+//! them with the central fit's smoothing parameter ([`Table::with_knot_u`]).
+//!
+//! Significance of stationary points ([`Potential::prominence_threshold`]): on a noisy table a
+//! minimum–maximum pair whose energy difference is below max([`PROMINENCE_SIGMAS`] σ_U,
+//! [`PROMINENCE_FLOOR_KT`] kT) is not told apart from noise and is dropped by the landscape
+//! analysis; `potential.prominence` sets the threshold for any table.
 //!
 //! Spline: C² piecewise cubic through every row with the not-a-knot end conditions (the third
 //! derivative is continuous across the second and the second-to-last knots; de Boor, A Practical
@@ -11,6 +24,8 @@
 //! exact reflecting boundaries.
 
 use super::Potential;
+use super::smooth::{self, Rule};
+use serde::Serialize;
 use thiserror::Error;
 
 /// Wall height (kT) reached at a distance [`WALL_WIDTH_FRACTION`]·span outside the table.
@@ -19,6 +34,57 @@ pub const WALL_RISE_KT: f64 = 20.0;
 pub const WALL_WIDTH_FRACTION: f64 = 0.01;
 /// Fewest rows a table may have: a not-a-knot spline needs four points.
 pub const MIN_ROWS: usize = 4;
+/// Default significance threshold of a stationary point on a noisy table, in units of the σ_U of
+/// its rows: the difference of two fitted values inherits at most about sqrt(2) σ (less after
+/// smoothing), so 3σ leaves noise pairs a chance below 2% even before smoothing.
+pub const PROMINENCE_SIGMAS: f64 = 3.0;
+/// The threshold never drops below half a kT on a noisy table: a well or barrier shallower than
+/// that holds no population and delays nothing, kinetically it is not a state.
+pub const PROMINENCE_FLOOR_KT: f64 = 0.5;
+/// Rows with σ_U = 0 in a noisy table count as very precise (σ floored at this fraction of the
+/// largest σ), so the weighted fit stays defined.
+const SIGMA_FLOOR_FRACTION: f64 = 1e-3;
+
+/// How a table's rows become the curve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum FitChoice {
+    /// the interpolating not-a-knot spline (exact tables)
+    Interpolate,
+    /// the weighted smoothing spline with the given rule for its smoothing
+    Smooth(Rule),
+}
+
+/// Options of a table potential beyond its columns (all energies in kT).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct TableOptions {
+    /// a uniform σ_U for a table without that column
+    pub noise: Option<f64>,
+    /// the fit; default: smoothing by the unbiased risk when σ_U is known, interpolation otherwise
+    pub fit: Option<FitChoice>,
+    /// correlation length of the rows' noise (length unit); default: the median row spacing
+    pub correlation_length: Option<f64>,
+    /// the significance threshold of stationary points (kT); default as in the module doc
+    pub prominence: Option<f64>,
+}
+
+/// What the fit did, for the report.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FitSummary {
+    /// "interpolating spline" | "smoothing spline"
+    pub method: &'static str,
+    /// how the smoothing was chosen ("chi-square" | "cross-validation"), for a smoothing spline
+    pub rule: Option<&'static str>,
+    /// rows of the table
+    pub rows: usize,
+    /// Σ (U_i − fit_i)²/σ_i² (a smoothing spline)
+    pub chi2: Option<f64>,
+    /// effective degrees of freedom of the fit (rows for interpolation, 2 for a straight line)
+    pub effective_dof: f64,
+    /// where σ_U came from: "column" | "potential.noise"
+    pub noise_source: Option<&'static str>,
+    /// the smoothing parameter α (energy⁻²·length³ in kT units; null for interpolation or a line)
+    pub smoothing: Option<f64>,
+}
 
 /// A problem in a table file, with the 1-based line number where it applies.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -276,6 +342,15 @@ impl Spline {
         }
         mm[0] = ((h0 + h1) * mm[1] - h0 * mm[2]) / h1;
         mm[n - 1] = ((ha + hb) * mm[n - 2] - hb * mm[n - 3]) / ha;
+        Self::from_curvatures(x, y, &mm)
+    }
+
+    /// The C² cubic spline with values `y` and second derivatives `mm` at the knots `x` (used for
+    /// the smoothing spline, whose second derivatives come from its own system).
+    pub fn from_curvatures(x: &[f64], y: &[f64], mm: &[f64]) -> Self {
+        let n = x.len();
+        let h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();
+        let s: Vec<f64> = (0..n - 1).map(|i| (y[i + 1] - y[i]) / h[i]).collect();
         let c = (0..n - 1)
             .map(|i| {
                 let hi = h[i];
@@ -391,74 +466,168 @@ impl Spline {
     }
 }
 
+/// The median row spacing (the default correlation length of a profile's noise).
+pub fn median_spacing(x: &[f64]) -> f64 {
+    let mut h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();
+    h.sort_by(f64::total_cmp);
+    h[h.len() / 2]
+}
+
 /// A tabulated potential (U in kT) with an optional σ_U column (kT) and D column.
 #[derive(Debug, Clone)]
 pub struct Table {
     spline: Spline,
-    /// U at the knots (kT), as given to the spline
+    /// U at the rows (kT) as read: the data the spline fits or interpolates
     u: Vec<f64>,
     sigma_u: Option<Vec<f64>>,
     diffusion: Option<Spline>,
     wall_k: f64,
     lo: f64,
     hi: f64,
+    fit: Box<FitSummary>,
+    /// σ used by the fit (floored), when smoothing
+    fit_sigma: Option<Vec<f64>>,
+    /// the significance threshold: absolute (kT), or from σ_U
+    prominence: Option<f64>,
 }
 
 impl Table {
     /// Builds the table potential from columns read in the scenario's units; `energy_scale` takes
-    /// the file's energy unit to kT.
+    /// the file's energy unit to kT. Default options: a table with a sigma_U column is smoothed.
     pub fn new(cols: &Columns, energy_scale: f64) -> Self {
+        Self::with_options(cols, energy_scale, TableOptions::default())
+    }
+
+    /// As [`Table::new`] with explicit options (energies in `opts` already in kT).
+    ///
+    /// # Panics
+    /// If `opts.noise` is given although the columns carry σ_U (the scenario refuses that), or
+    /// is not positive.
+    pub fn with_options(cols: &Columns, energy_scale: f64, opts: TableOptions) -> Self {
         let u: Vec<f64> = cols.u.iter().map(|v| v * energy_scale).collect();
-        let spline = Spline::new(&cols.x, &u);
+        let (sigma_u, noise_source) = match (&cols.sigma_u, opts.noise) {
+            (Some(s), None) => (
+                Some(s.iter().map(|v| v * energy_scale).collect::<Vec<_>>()),
+                Some("column"),
+            ),
+            (None, Some(n)) => {
+                assert!(n > 0.0, "noise level must be positive");
+                (Some(vec![n; u.len()]), Some("potential.noise"))
+            }
+            (None, None) => (None, None),
+            (Some(_), Some(_)) => panic!("noise level given beside a sigma_U column"),
+        };
+        let noisy = sigma_u.as_ref().is_some_and(|s| s.iter().any(|&v| v > 0.0));
+        let choice = opts.fit.unwrap_or(if noisy {
+            FitChoice::Smooth(Rule::Risk {
+                correlation_length: opts
+                    .correlation_length
+                    .unwrap_or_else(|| median_spacing(&cols.x)),
+            })
+        } else {
+            FitChoice::Interpolate
+        });
         let lo = cols.x[0];
         let hi = *cols.x.last().expect("non-empty");
         let width = WALL_WIDTH_FRACTION * (hi - lo);
         let wall_k = 2.0 * WALL_RISE_KT / (width * width);
-        Self {
-            spline,
+        let mut table = Self {
+            spline: Spline::new(&cols.x, &u),
             u,
-            sigma_u: cols
-                .sigma_u
-                .as_ref()
-                .map(|s| s.iter().map(|v| v * energy_scale).collect()),
+            sigma_u,
             diffusion: cols.d.as_ref().map(|d| Spline::new(&cols.x, d)),
             wall_k,
             lo,
             hi,
+            fit: Box::new(FitSummary {
+                method: "interpolating spline",
+                rule: None,
+                rows: cols.x.len(),
+                chi2: None,
+                effective_dof: cols.x.len() as f64,
+                noise_source,
+                smoothing: None,
+            }),
+            fit_sigma: None,
+            prominence: opts.prominence,
+        };
+        if let (FitChoice::Smooth(rule), true) = (choice, noisy) {
+            let sig = table.sigma_u.as_ref().expect("noisy implies σ");
+            let top = sig.iter().copied().fold(0.0, f64::max);
+            let fs: Vec<f64> = sig
+                .iter()
+                .map(|&v| v.max(SIGMA_FLOOR_FRACTION * top))
+                .collect();
+            let sm = smooth::fit(&cols.x, &table.u, &fs, rule);
+            table.spline = Spline::from_curvatures(&cols.x, &sm.values, &sm.curvatures);
+            table.fit.method = "smoothing spline";
+            table.fit.rule = Some(rule.name());
+            table.fit.chi2 = Some(sm.chi2);
+            table.fit.effective_dof = sm.edf;
+            table.fit.smoothing = Some(sm.alpha).filter(|a| a.is_finite());
+            table.fit_sigma = Some(fs);
         }
+        table
     }
-    /// The same table with U at the knots replaced by `u` (kT): same x, σ_U, D column and walls.
-    /// Used to re-analyse a profile perturbed within its standard errors.
+
+    /// The same table with U at the rows replaced by `u` (kT): same x, σ_U, D column, walls and
+    /// fit; a smoothing spline is refitted with the central fit's smoothing parameter, so a draw
+    /// differs from the central curve by its data only. Used to re-analyse a profile perturbed
+    /// within its standard errors.
     ///
     /// # Panics
     /// If `u` does not have one value per knot (a programming error, not user input).
     pub fn with_knot_u(&self, u: &[f64]) -> Self {
         assert_eq!(u.len(), self.u.len(), "one U value per knot");
+        let x = self.spline.knots();
+        let (spline, fit) = match &self.fit_sigma {
+            Some(fs) => {
+                let alpha = self.fit.smoothing.unwrap_or(f64::INFINITY);
+                let sm = smooth::fit_at(x, u, fs, alpha);
+                let mut fit = self.fit.clone();
+                fit.chi2 = Some(sm.chi2);
+                fit.effective_dof = sm.edf;
+                (Spline::from_curvatures(x, &sm.values, &sm.curvatures), fit)
+            }
+            None => (Spline::new(x, u), self.fit.clone()),
+        };
         Self {
-            spline: Spline::new(self.spline.knots(), u),
+            spline,
             u: u.to_vec(),
             sigma_u: self.sigma_u.clone(),
             diffusion: self.diffusion.clone(),
             wall_k: self.wall_k,
             lo: self.lo,
             hi: self.hi,
+            fit,
+            fit_sigma: self.fit_sigma.clone(),
+            prominence: self.prominence,
         }
     }
-    /// U at the knots (kT).
+    /// U at the rows as read (kT): the data, not the fit.
     pub fn knot_u(&self) -> &[f64] {
         &self.u
     }
-    /// The spline of U.
+    /// The spline of U (the fit for a noisy table).
     pub fn spline(&self) -> &Spline {
         &self.spline
     }
-    /// σ_U per row (kT), if given.
+    /// σ_U per row (kT), if given (a column, or the uniform noise level).
     pub fn sigma_u(&self) -> Option<&[f64]> {
         self.sigma_u.as_deref()
     }
     /// The spline of the D column, if given.
     pub fn diffusion(&self) -> Option<&Spline> {
         self.diffusion.as_ref()
+    }
+
+    /// σ_U at x, linear between rows (kT); None for an exact table.
+    fn sigma_at(&self, x: f64) -> Option<f64> {
+        let s = self.sigma_u.as_ref()?;
+        let xs = self.spline.knots();
+        let i = self.spline.interval(x);
+        let t = ((x - xs[i]) / (xs[i + 1] - xs[i])).clamp(0.0, 1.0);
+        Some(s[i] + t * (s[i + 1] - s[i]))
     }
 
     #[inline]
@@ -508,6 +677,18 @@ impl Potential for Table {
     }
     fn is_interpolated(&self) -> bool {
         true
+    }
+    fn fit(&self) -> Option<&FitSummary> {
+        Some(&self.fit)
+    }
+    fn prominence_threshold(&self, x: f64) -> f64 {
+        if let Some(p) = self.prominence {
+            return p;
+        }
+        match (self.fit.method, self.sigma_at(x)) {
+            ("smoothing spline", Some(s)) => (PROMINENCE_SIGMAS * s).max(PROMINENCE_FLOOR_KT),
+            _ => 0.0,
+        }
     }
 }
 

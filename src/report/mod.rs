@@ -30,6 +30,19 @@ pub struct PointOut {
     pub curvature: f64,
 }
 
+impl PointOut {
+    /// Converts from internal units.
+    pub fn new(p: &crate::landscape::Stationary, u: &UnitSystem) -> Self {
+        Self {
+            kind: p.kind,
+            x: p.x,
+            u: u.energy_from_kt(p.u),
+            u_kt: p.u,
+            curvature: u.energy_from_kt(p.curvature),
+        }
+    }
+}
+
 /// The landscape in scenario units (JSON key "landscape").
 #[derive(Debug, Clone, Serialize)]
 pub struct LandscapeOut {
@@ -66,6 +79,10 @@ pub struct LandscapeOut {
     pub action_product: Option<f64>,
     /// all interior stationary points
     pub stationary_points: Vec<PointOut>,
+    /// stationary points of a noisy table's fit taken for noise (below the significance threshold)
+    pub ignored_points: Vec<PointOut>,
+    /// a table's fit: which spline, χ², effective degrees of freedom (null for formulas)
+    pub fit: Option<crate::potential::FitSummary>,
 }
 
 impl LandscapeOut {
@@ -88,17 +105,9 @@ impl LandscapeOut {
             curvature_barrier: e(l.curvature_barrier),
             action: l.action.map(|a| u.action_from_internal(a)),
             action_product: l.action_product.map(|a| u.action_from_internal(a)),
-            stationary_points: l
-                .points
-                .iter()
-                .map(|p| PointOut {
-                    kind: p.kind,
-                    x: p.x,
-                    u: e(p.u),
-                    u_kt: p.u,
-                    curvature: e(p.curvature),
-                })
-                .collect(),
+            stationary_points: l.points.iter().map(|p| PointOut::new(p, u)).collect(),
+            ignored_points: l.ignored.iter().map(|p| PointOut::new(p, u)).collect(),
+            fit: l.fit.clone(),
         }
     }
 }
@@ -517,22 +526,7 @@ pub struct ComparisonRow {
     pub consistent: bool,
 }
 
-/// The documented accuracy of each rate against a simulated escape rate, as the allowed range of
-/// theory/simulation: asymptotic formulas neglect finite-barrier corrections of order kT/E_b, by
-/// which they overestimate the escape rate (PHYSICS.md §2, §4: 10–15% at 7 kT); TST is an upper
-/// bound; the exact MFPT is exact for overdamped dynamics up to the time-step bias (1% at the
-/// default dt). A 3% margin on the other side covers the simulation's time-step bias. PGH can also
-/// fall short: at strong friction its energy loss stays near 0.8 E_b, so Υ = A(Δ/kT) < 1 by about
-/// 2e^{−Δ/4}/sqrt(πΔ), which is of order kT/E_b for moderate barriers (0.16 at 6 kT).
-pub fn accuracy_band(key: &str, barrier_kt: f64) -> (f64, Option<f64>) {
-    let finite = (1.0 / barrier_kt.max(1.0)).min(0.5);
-    match key {
-        "mfpt" => (1.0 / 1.01, Some(1.0 / 0.99)),
-        "tst" | "tst_exact" => (1.0 / 1.03, None),
-        "pgh" => (1.0 / (1.03 + finite), Some(1.0 / (1.0 - finite))),
-        _ => (1.0 / 1.03, Some(1.0 / (1.0 - finite))),
-    }
-}
+pub use crate::theory::accuracy_band;
 
 /// The comparison rows and a one-line verdict.
 pub fn compare_rows(

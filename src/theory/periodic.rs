@@ -313,6 +313,13 @@ impl<P: Potential> Potential for Periodic<P> {
     fn is_interpolated(&self) -> bool {
         self.inner.is_interpolated()
     }
+    fn prominence_threshold(&self, x: f64) -> f64 {
+        let (_, r) = self.reduce(x);
+        self.inner.prominence_threshold(self.x0 + r)
+    }
+    fn fit(&self) -> Option<&crate::potential::FitSummary> {
+        self.inner.fit()
+    }
 }
 
 /// A borrowed potential, so [`analyse`] can wrap a `&dyn Potential`.
@@ -334,6 +341,12 @@ impl Potential for ByRef<'_> {
     }
     fn is_interpolated(&self) -> bool {
         self.0.is_interpolated()
+    }
+    fn prominence_threshold(&self, x: f64) -> f64 {
+        self.0.prominence_threshold(x)
+    }
+    fn fit(&self) -> Option<&crate::potential::FitSummary> {
+        self.0.fit()
     }
 }
 
