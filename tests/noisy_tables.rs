@@ -25,6 +25,9 @@ fn scratch(name: &str) -> PathBuf {
 fn noise(n: usize, ell_rows: f64, seed: u64) -> Vec<f64> {
     let mut rng = rand_pcg::Pcg64::seed_from_u64(seed);
     let xi: Vec<f64> = (0..n).map(|_| rng.sample(StandardNormal)).collect();
+    if ell_rows < 0.01 {
+        return xi;
+    }
     (0..n)
         .map(|i| {
             let (mut s, mut w2) = (0.0, 0.0);
@@ -57,35 +60,63 @@ fn example_rows() -> (Vec<f64>, Vec<f64>) {
     (x, u)
 }
 
-/// The example scenario on a noisy copy of its profile (σ_U = `sigma_kt` kT in the column).
-fn noisy_example(
-    dir: &Path,
-    tag: &str,
-    sigma_kt: f64,
+/// How a noisy copy of the example is made.
+struct Noise {
+    /// noise amplitude (kT)
+    kt: f64,
+    /// its correlation length in rows (below 0.01: independent rows)
     ell_rows: f64,
-    seed: u64,
-    fit: &str,
-) -> Model {
+    /// the sigma_U column written (kT); None keeps the example's own column
+    column_kt: Option<f64>,
+    /// set [uncertainty] correlation_length to the true ℓ (else the example's stated 0.2 Å)
+    state_ell: bool,
+}
+
+/// The example scenario on a noisy copy of its profile.
+fn noisy_example(dir: &Path, tag: &str, nz: &Noise, seed: u64, fit: &str) -> Model {
     let (x, u) = example_rows();
-    let e = noise(x.len(), ell_rows, seed);
+    let text = std::fs::read_to_string("examples/pmf_profile.csv").unwrap();
+    let own_sigma: Vec<f64> = text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with('x'))
+        .map(|l| l.split(',').nth(2).unwrap().parse().unwrap())
+        .collect();
+    let e = noise(x.len(), nz.ell_rows, seed);
     let h = x[1] - x[0];
     let mut csv = String::from("x,U,sigma_U\n");
     for i in 0..x.len() {
-        let s = sigma_kt * KT_KCAL;
-        csv.push_str(&format!("{},{},{}\n", x[i], u[i] + s * e[i], s));
+        let col = nz.column_kt.map_or(own_sigma[i], |c| c * KT_KCAL);
+        csv.push_str(&format!(
+            "{},{},{}\n",
+            x[i],
+            u[i] + nz.kt * KT_KCAL * e[i],
+            col
+        ));
     }
     let file = format!("noisy_{tag}.csv");
     std::fs::write(dir.join(&file), csv).unwrap();
-    let text = std::fs::read_to_string("examples/pmf_table.toml")
+    let mut text = std::fs::read_to_string("examples/pmf_table.toml")
         .unwrap()
         .replace("pmf_profile.csv", &file)
-        .replace(
-            "correlation_length = 0.2",
-            &format!("correlation_length = {}", ell_rows * h),
-        )
+        // fit goes into [potential], which ends right before [states]
         .replace("[states]", &format!("fit = \"{fit}\"\n\n[states]"));
-    // fit goes into [potential], which ends right before [states]
+    if nz.state_ell {
+        text = text.replace(
+            "correlation_length = 0.2",
+            &format!("correlation_length = {}", nz.ell_rows * h),
+        );
+    }
     Model::from_text(&text, "noisy", dir, &[]).unwrap()
+}
+
+/// Noise of 0.3 kT correlated over `ell_rows` rows, stated in the column and the scenario.
+fn strong(ell_rows: f64) -> Noise {
+    Noise {
+        kt: 0.3,
+        ell_rows,
+        column_kt: Some(0.3),
+        state_ell: true,
+    }
 }
 
 fn ratio_smol_mfpt(t: &TheoryReport) -> f64 {
@@ -107,7 +138,7 @@ fn noisy_example_finds_the_true_landscape() {
     let mut ratios = Vec::new();
     for (ell, seeds) in [(1.0, 0..8u64), (5.0, 100..108u64)] {
         for seed in seeds {
-            let m = noisy_example(&dir, "a", 0.3, ell, seed, "unbiased-risk");
+            let m = noisy_example(&dir, "a", &strong(ell), seed, "unbiased-risk");
             let t = theory::analyse(&m).unwrap();
             let l = &t.landscape;
             let got: Vec<(Kind, f64)> = l.points.iter().map(|p| (p.kind, p.x)).collect();
@@ -149,7 +180,7 @@ fn interpolating_a_noisy_table_finds_noise() {
     let dir = scratch("interp");
     let spurious = (0..8u64)
         .filter(|&seed| {
-            let m = noisy_example(&dir, "b", 0.3, 1.0, seed, "interpolate");
+            let m = noisy_example(&dir, "b", &strong(1.0), seed, "interpolate");
             theory::analyse(&m).map_or(true, |t| t.landscape.points.len() != 3)
         })
         .count();
@@ -159,9 +190,51 @@ fn interpolating_a_noisy_table_finds_noise() {
     );
 }
 
-/// An exact table is reproduced: the unbiased-risk rule leaves exact data (χ² far below its
-/// expectation) essentially interpolated, so the barrier of the example with its sigma_U column
-/// agrees with the interpolating spline's to 1e-3 kT (the fit's residuals are below 1e-3 σ).
+/// An umbrella-sampling-like table: independent noise of 0.06 kT, well inside the table's own
+/// σ_U column (0.093 kT), while the scenario states a correlation length of eight rows (wrong for
+/// this noise). Interpolated, such a table made Smoluchowski 6× 1/MFPT and put the product on a
+/// wiggle even with a target given. Now every table keeps the true three stationary points, the
+/// given target's product is the physical one, and Smoluchowski/1/MFPT stays within
+/// Smoluchowski's documented accuracy around the exact profile's own ratio (as above).
+#[test]
+fn umbrella_like_noise_under_a_misstated_correlation() {
+    let clean_model = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
+    let clean = theory::analyse(&clean_model).unwrap();
+    let (lo, hi) = theory::accuracy_band("smoluchowski", clean.landscape.barrier_height);
+    let dir = scratch("umbrella");
+    let nz = Noise {
+        kt: 0.06,
+        ell_rows: 0.0,
+        column_kt: None,
+        state_ell: false,
+    };
+    let mut ratios = Vec::new();
+    for seed in 0..6u64 {
+        let m = noisy_example(&dir, "c", &nz, seed, "unbiased-risk");
+        let t = theory::analyse(&m).unwrap();
+        assert_eq!(t.landscape.points.len(), 3, "seed {seed}");
+        ratios.push(ratio_smol_mfpt(&t) / ratio_smol_mfpt(&clean));
+        let mut given = m.clone();
+        given.target = Some(5.9);
+        let tt = theory::analyse(&given).unwrap();
+        let p = tt.landscape.product.unwrap();
+        // the product well's thermal width sqrt(kT/U'') is 0.34 angstrom
+        assert!((p - 5.9).abs() < 0.34, "seed {seed}: product at {p}");
+    }
+    // each table within 1.5× (it was 6× interpolated), the median within the band
+    ratios.sort_by(f64::total_cmp);
+    assert!(ratios[0] > 1.0 / 1.5 && ratios[5] < 1.5, "{ratios:?}");
+    let median = 0.5 * (ratios[2] + ratios[3]);
+    assert!(
+        median >= lo && median <= hi.unwrap(),
+        "{median}: {ratios:?}"
+    );
+}
+
+/// An exact table is barely touched: fitted under its own σ_U column (0.093 kT) the exact example
+/// profile keeps χ² far below the N rows a noisy table would have, and its barrier within 0.01 kT
+/// of the interpolating spline's (1% in the rate; measured 0.003 kT: smoothing removes only what
+/// is below the noise and the profile has nothing there).
 #[test]
 fn exact_table_keeps_its_values() {
     let m = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
@@ -169,10 +242,12 @@ fn exact_table_keeps_its_values() {
     let o = escapade::scenario::Override::parse("potential.fit=\"interpolate\"").unwrap();
     let mi = Model::load(Path::new("examples/pmf_table.toml"), &[o]).unwrap();
     let ti = theory::analyse(&mi).unwrap();
-    assert!((t.landscape.barrier_height - ti.landscape.barrier_height).abs() < 1e-3);
+    assert!((t.landscape.barrier_height - ti.landscape.barrier_height).abs() < 0.01);
+    let k = t.rates.mfpt.unwrap() / ti.rates.mfpt.unwrap();
+    assert!((k - 1.0).abs() < 0.01, "{k}");
     let fit = t.landscape.fit.as_ref().unwrap();
     assert_eq!(fit.method, "smoothing spline");
-    assert!(fit.chi2.unwrap() < 1.0, "{fit:?}");
+    assert!(fit.chi2.unwrap() < 0.25 * fit.rows as f64, "{fit:?}");
 }
 
 /// Consistency between trusted rates: on the example profile Smoluchowski exceeds the exact
