@@ -784,6 +784,7 @@ impl Validator<'_> {
                 "give particle.friction or particle.diffusion, not both (D = kT/(m gamma))",
             ));
         }
+        let stokes = self.stokes(&particle)?;
         if friction.is_some() && particle.diffusion_expr.is_some() {
             return Err(self.err(
                 "particle.diffusion_expr",
@@ -796,7 +797,6 @@ impl Validator<'_> {
                 "is required with particle.friction (D = kT/(m gamma))",
             ));
         }
-        let stokes = self.stokes(&particle)?;
         let units = UnitSystem::new(sf.units.names(), sf.units.temperature, mass.is_some())
             .map_err(|e| self.unit_err(&e))?;
         // Stokes' law with the Einstein relation (Stokes 1851, Einstein 1905): D = kT/(6πηr), with

@@ -1082,4 +1082,215 @@ mod tests {
             Err(UnitError::Unknown { .. })
         ));
     }
+
+    fn scale(energy: &str, length: &str, time: &str, mass: &str, t: Option<f64>) -> UnitScale {
+        let names = UnitNames {
+            energy: energy.into(),
+            length: length.into(),
+            time: time.into(),
+            mass: mass.into(),
+        };
+        UnitScale::new(&names, t).unwrap()
+    }
+
+    fn molecular() -> UnitScale {
+        scale("kJ/mol", "nm", "ps", "amu", Some(300.0))
+    }
+
+    // The decimal constants are the f64 constants' own decimals (CODATA 2018).
+    #[test]
+    fn exact_constants_are_the_codata_decimals() {
+        assert_eq!(K_B_EXACT.to_f64(), Some(K_B));
+        assert_eq!(N_A_EXACT.to_f64(), Some(N_A));
+        assert_eq!(E_CHARGE_EXACT.to_f64(), Some(E_CHARGE));
+        assert_eq!(AMU_EXACT.to_f64(), Some(AMU));
+        assert_eq!(CALORIE_EXACT.to_f64(), Some(CALORIE));
+        // 1/3 and 2/3 round to the nearest double (the literals below are those doubles)
+        let third = Exact {
+            num: 1,
+            den: 3,
+            exp: 0,
+        };
+        assert_eq!(third.to_f64(), Some(0.333_333_333_333_333_3));
+        assert_eq!(
+            third.mul(Exact::dec(2, 0)).unwrap().to_f64(),
+            Some(0.666_666_666_666_666_6)
+        );
+    }
+
+    // SI prefixes are exact decimal factors; the results are the doubles of the decimals written
+    // (bitwise), where a product of doubles would not be: 0.3e-6/1e-9 = 299.99999999999994 and
+    // 1.5e-9/1e-10 = 15.000000000000002 in floating point.
+    #[test]
+    fn decimal_factors_are_exact() {
+        let s = molecular();
+        let read = |t: &str, k: Kind| read_quantity(t, k, &s).unwrap();
+        assert_eq!(read("0.3 um", Kind::Length), 300.0);
+        assert_eq!(read("0.3 \u{b5}m", Kind::Length), 300.0);
+        assert_eq!(read("0.3 \u{3bc}m", Kind::Length), 300.0);
+        assert_eq!(read("-5 angstrom", Kind::Length), -0.5);
+        assert_eq!(read("-5 \u{c5}", Kind::Length), -0.5);
+        assert_eq!(read("-5 \u{212b}", Kind::Length), -0.5);
+        assert_eq!(read("50 pm", Kind::Length), 0.05);
+        assert_eq!(read("2 fs", Kind::Time), 0.002);
+        assert_eq!(read("1e-3 us", Kind::Time), 1000.0);
+        // (1e-6 m)^2/s = 1e-12 m^2/s = 1e-12 * 1e18 nm^2 / (1e12 ps) = 1e-6 nm^2/ps
+        assert_eq!(read("0.2 um^2/s", Kind::Diffusion), 2e-7);
+        assert_eq!(read("0.2 \u{b5}m\u{b2}/s", Kind::Diffusion), 2e-7);
+        for t in [
+            "5 /ps",
+            "5/ps",
+            "5 ps^-1",
+            "5 ps**-1",
+            "5 ps\u{207b}\u{b9}",
+            "5e12 /s",
+            "5e12 s^-1",
+        ] {
+            assert_eq!(read_quantity(t, Kind::Rate, &s), Ok(5.0), "{t}");
+        }
+        let s_ns = scale("kT", "nm", "ns", "1", None);
+        assert_eq!(read_quantity("5 /ps", Kind::Rate, &s_ns), Ok(5000.0));
+        // a string without a unit is a number in the scenario's units
+        assert_eq!(read("7.25", Kind::Rate), 7.25);
+    }
+
+    // Energies: 1 kcal = 4.184 kJ (thermochemical calorie, exact); 1 eV = 1.602176634e-19 J and
+    // N_A = 6.02214076e23 /mol (SI 2019, exact), so 1 eV per particle = N_A e J/mol = F J/mol with
+    // F = 96485.3321233100184 C/mol (exact); 1 pN = 1e-12 J/m = 1 zJ/nm.
+    #[test]
+    #[allow(clippy::excessive_precision)] // the exact decimal, which the parser rounds
+    fn energy_and_force_factors() {
+        let s = molecular();
+        let read = |t: &str, k: Kind| read_quantity(t, k, &s).unwrap();
+        assert_eq!(read("1 kcal/mol", Kind::Energy), 4.184);
+        assert_eq!(read("4184 J/mol", Kind::Energy), 4.184);
+        assert_eq!(read("1 eV", Kind::Energy), 96.485_332_123_310_018_4);
+        assert_eq!(read("1000 meV", Kind::Energy), 96.485_332_123_310_018_4);
+        assert_eq!(read("1 kcal/mol/angstrom", Kind::Force), 41.84);
+        let kcal = scale("kcal/mol", "nm", "ps", "amu", None);
+        assert_eq!(read_quantity("8.368 kJ/mol", Kind::Energy, &kcal), Ok(2.0));
+        let zj = scale("zJ", "nm", "ps", "amu", None);
+        assert_eq!(read_quantity("2 pN", Kind::Force, &zj), Ok(2.0));
+        assert_eq!(read_quantity("1 eV", Kind::Energy, &zj), Ok(160.217_663_4));
+    }
+
+    // kT = k_B T: R = N_A k_B = 8.31446261815324 J/(mol K) exactly (SI 2019), so 3 kT at 300 K is
+    // 3 * 8.31446261815324 * 300 / 1000 = 7.483016356337916 kJ/mol exactly.
+    #[test]
+    fn thermal_energy_needs_the_temperature() {
+        let s = molecular();
+        assert_eq!(
+            read_quantity("3 kT", Kind::Energy, &s),
+            Ok(7.483_016_356_337_916)
+        );
+        assert_eq!(
+            read_quantity("3 k_BT", Kind::Energy, &s),
+            Ok(7.483_016_356_337_916)
+        );
+        // into kT: 35 kJ/mol / (R * 300 K); the f64 chain below rounds 3 times, so 2 ulp
+        let kt = scale("kT", "nm", "ps", "1", Some(300.0));
+        let x = read_quantity("35 kJ/mol", Kind::Energy, &kt).unwrap();
+        let chain = 35e3 / N_A / (K_B * 300.0);
+        assert!(
+            (x - chain).abs() <= 2.0 * f64::EPSILON * chain,
+            "{x} {chain}"
+        );
+        // kT into kT needs no temperature; kT against a molar unit does, and says so
+        let no_t = scale("kT", "nm", "ps", "1", None);
+        assert_eq!(read_quantity("3 kT", Kind::Energy, &no_t), Ok(3.0));
+        assert_eq!(read_quantity("2 kT/nm", Kind::Force, &no_t), Ok(2.0));
+        let e = read_quantity("35 kJ/mol", Kind::Energy, &no_t).unwrap_err();
+        assert!(matches!(e, UnitError::KtWithoutTemperature { .. }));
+        assert!(e.to_string().contains("units.temperature"), "{e}");
+        let e = read_quantity("3 kT", Kind::Energy, &scale("eV", "1", "1", "1", None));
+        assert!(e.is_err());
+    }
+
+    // 1 Da = 1 u = 1.66053906660e-27 kg (CODATA 2018); g/mol is taken as Da (see `atom`).
+    #[test]
+    fn mass_factors() {
+        let s = molecular();
+        let read = |t: &str| read_quantity(t, Kind::Mass, &s).unwrap();
+        assert_eq!(read("12 Da"), 12.0);
+        assert_eq!(read("12 g/mol"), 12.0);
+        assert_eq!(read("12 u"), 12.0);
+        assert_eq!(read("2 kDa"), 2000.0);
+        assert_eq!(read("2 kg/mol"), 2000.0);
+        let kg = scale("kJ/mol", "nm", "ps", "kg", Some(300.0));
+        assert_eq!(
+            read_quantity("12 Da", Kind::Mass, &kg),
+            Ok(1.992_646_879_92e-26)
+        );
+    }
+
+    // 1 cP = 1 mPa s = 1e-3 J s/m^3; in kJ/mol ps/nm^3: 1e-3 * (N_A/1e3) * 1e12 / 1e27, so
+    // 0.89 cP = 0.89 * 602.214076 = 535.97052764 exactly (a product of doubles gives ...99).
+    #[test]
+    fn viscosity_and_temperature() {
+        let s = molecular();
+        for t in [
+            "0.89 mPa s",
+            "0.89 mPa*s",
+            "0.89 mPa\u{b7}s",
+            "0.89 cP",
+            "8.9e-4 Pa s",
+        ] {
+            assert_eq!(
+                read_quantity(t, Kind::Viscosity, &s),
+                Ok(535.970_527_64),
+                "{t}"
+            );
+        }
+        assert_eq!(read_quantity("300 K", Kind::Temperature, &s), Ok(300.0));
+        assert_eq!(
+            read_quantity("298.15 K", Kind::Temperature, &UnitScale::reduced()),
+            Ok(298.15)
+        );
+    }
+
+    #[test]
+    fn mistakes_are_named() {
+        let s = molecular();
+        let err = |t: &str, k: Kind| read_quantity(t, k, &s).unwrap_err();
+        let e = err("1.5 nm", Kind::Rate);
+        assert!(matches!(e, UnitError::Dimension { .. }));
+        assert!(
+            e.to_string().contains("expected a rate") && e.to_string().contains("found a length"),
+            "{e}"
+        );
+        assert!(
+            err("1 kg", Kind::Energy)
+                .to_string()
+                .contains("found a mass")
+        );
+        assert!(
+            err("1 Pa", Kind::Viscosity)
+                .to_string()
+                .contains("found a pressure")
+        );
+        assert!(err("3 A", Kind::Length).to_string().contains("ampere"));
+        assert!(
+            err("3 kJ mol^-1", Kind::Energy)
+                .to_string()
+                .contains("kJ/mol")
+        );
+        assert!(err("3 Hz", Kind::Rate).to_string().contains("/s"));
+        assert!(err("3 parsec", Kind::Length).to_string().contains("parsec"));
+        for t in [
+            "nm", "", "5 / / ps", "5 ps^", "5 *nm", "5 nm/", "5 ps^12", "5 (nm)",
+        ] {
+            assert!(
+                matches!(err(t, Kind::Length), UnitError::Syntax { .. }),
+                "{t}: {}",
+                err(t, Kind::Length)
+            );
+        }
+        let reduced = UnitScale::reduced();
+        let e = read_quantity("1.5 nm", Kind::Length, &reduced).unwrap_err();
+        assert!(e.to_string().contains("units.length is \"1\""), "{e}");
+        assert!(matches!(
+            read_quantity("1e400 nm", Kind::Length, &s),
+            Err(UnitError::NotFinite { .. })
+        ));
+    }
 }
