@@ -10,6 +10,8 @@ mod common;
 use escapade::potential::Diffusion;
 use escapade::scenario::Model;
 use escapade::theory;
+use escapade::units::{Kind, UnitNames, UnitScale, read_quantity};
+use proptest::prelude::*;
 use std::path::{Path, PathBuf};
 
 /// A fresh folder for this test's files.
@@ -311,4 +313,42 @@ fn a_table_with_d_needs_no_particle_section() {
         .to_string();
     says(&e, &["[particle] section is required"]);
     std::fs::remove_dir_all(&dir).ok();
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 2000, ..ProptestConfig::default() })]
+
+    // Any text, and text shaped like a quantity, is a value or an error: never a panic, never a
+    // non-finite value (common practice, no source).
+    #[test]
+    fn quantity_strings_never_panic(
+        any in ".{0,40}",
+        shaped in "[-+]?[0-9]{0,4}[.]?[0-9]{0,3}(e[-+]?[0-9]{1,3})? ?(k|m|u|µ|n|p|f|/|\\*| |\\^|-|[0-9]|²|⁻|¹|J|s|g|Da|mol|eV|kT|Pa|cP|K|N|Å|angstrom){0,8}",
+    ) {
+        let scale = UnitScale::new(
+            &UnitNames { energy: "kJ/mol".into(), length: "nm".into(), time: "ps".into(), mass: "amu".into() },
+            Some(300.0),
+        ).unwrap();
+        for t in [&any, &shaped] {
+            for kind in [Kind::Energy, Kind::Length, Kind::Rate, Kind::Diffusion, Kind::Viscosity, Kind::Force] {
+                if let Ok(x) = read_quantity(t, kind, &scale) {
+                    prop_assert!(x.is_finite(), "{t:?} -> {x}");
+                }
+            }
+        }
+    }
+
+    // A power-of-ten factor only moves the decimal exponent, so "m·10^e um" in nm must be the
+    // double of "m·10^(e+3)" (SI prefixes): the conversion is rounded once, like the parser.
+    #[test]
+    fn prefix_conversions_are_the_shifted_decimal(m in 1u64..100_000_000_000_000_000, e in -40i32..40) {
+        let scale = UnitScale::new(
+            &UnitNames { length: "nm".into(), time: "fs".into(), ..UnitNames::default() },
+            None,
+        ).unwrap();
+        let x = read_quantity(&format!("{m}e{e} um"), Kind::Length, &scale).unwrap();
+        prop_assert_eq!(x, format!("{m}e{}", e + 3).parse::<f64>().unwrap());
+        let r = read_quantity(&format!("{m}e{e} /ps"), Kind::Rate, &scale).unwrap();
+        prop_assert_eq!(r, format!("{m}e{}", e - 3).parse::<f64>().unwrap());
+    }
 }
