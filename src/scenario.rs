@@ -4,6 +4,8 @@
 //! Every error names the file and the line (syntax and type errors) or the key (missing,
 //! inconsistent or non-physical values). Overrides given as `section.key=value` are applied to the
 //! parsed document before validation, so they are checked exactly like values in the file.
+//! Dimensioned values may be strings with a unit ("5 /ps"), converted into the scenario's units
+//! while the file is read ([`crate::units::read_quantity`]; the `[units]` section is read first).
 
 use crate::potential::{
     Diffusion, Family, Formula, FormulaPotential, Potential, Table, table::read_columns,
