@@ -4,13 +4,16 @@
 //! Every error names the file and the line (syntax and type errors) or the key (missing,
 //! inconsistent or non-physical values). Overrides given as `section.key=value` are applied to the
 //! parsed document before validation, so they are checked exactly like values in the file.
+//! Dimensioned values may be strings with a unit ("5 /ps"), converted into the scenario's units
+//! while the file is read ([`crate::units::read_quantity`]; the `[units]` section is read first).
 
 use crate::potential::{
     Diffusion, Family, FitChoice, Formula, FormulaPotential, Potential, Table, TableOptions,
     smooth::Rule as SmoothRule, table::read_columns,
 };
-use crate::units::{UnitNames, UnitSystem};
+use crate::units::{UnitError, UnitNames, UnitScale, UnitSystem};
 use serde::Deserialize;
+use std::cell::RefCell;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use thiserror::Error;
@@ -59,6 +62,117 @@ pub enum ScenarioError {
     },
 }
 
+thread_local! {
+    /// The scale of the scenario being read: dimensioned keys convert unit strings on reading.
+    static SCALE: RefCell<Option<UnitScale>> = const { RefCell::new(None) };
+}
+
+/// Runs `f` (a deserialisation) with `scale` as the scale for unit strings.
+fn with_scale<T>(scale: UnitScale, f: impl FnOnce() -> T) -> T {
+    let before = SCALE.replace(Some(scale));
+    let out = f();
+    SCALE.set(before);
+    out
+}
+
+/// Deserialisers of dimensioned keys: a number in the scenario's units, or a string with a unit
+/// ("5 /ps") converted into them by [`crate::units::read_quantity`].
+mod quantity {
+    use super::SCALE;
+    use crate::units::{Kind, UnitError, UnitScale, read_quantity};
+    use serde::de::{self, Deserialize, Deserializer, Visitor};
+    use std::fmt;
+
+    /// A value as written.
+    enum Raw {
+        Number(f64),
+        Text(String),
+    }
+
+    impl<'de> Deserialize<'de> for Raw {
+        fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+            struct V;
+            impl Visitor<'_> for V {
+                type Value = Raw;
+                fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                    f.write_str("a number or a string with a unit (e.g. \"1.5 nm\")")
+                }
+                fn visit_f64<E>(self, v: f64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v))
+                }
+                fn visit_i64<E>(self, v: i64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v as f64))
+                }
+                fn visit_u64<E>(self, v: u64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v as f64))
+                }
+                fn visit_str<E>(self, v: &str) -> Result<Raw, E> {
+                    Ok(Raw::Text(v.to_string()))
+                }
+            }
+            d.deserialize_any(V)
+        }
+    }
+
+    impl Raw {
+        fn value(self, kind: Kind) -> Result<f64, UnitError> {
+            match self {
+                Raw::Number(x) => Ok(x),
+                Raw::Text(t) => SCALE.with_borrow(|s| match s {
+                    Some(s) => read_quantity(&t, kind, s),
+                    None => read_quantity(&t, kind, &UnitScale::reduced()),
+                }),
+            }
+        }
+    }
+
+    fn one<'de, D: Deserializer<'de>>(d: D, kind: Kind) -> Result<Option<f64>, D::Error> {
+        Option::<Raw>::deserialize(d)?
+            .map(|r| r.value(kind).map_err(de::Error::custom))
+            .transpose()
+    }
+
+    macro_rules! kinds {
+        ($($name:ident => $kind:ident),* $(,)?) => {$(
+            pub fn $name<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
+                one(d, Kind::$kind)
+            }
+        )*};
+    }
+    kinds!(
+        energy => Energy,
+        length => Length,
+        time => Time,
+        rate => Rate,
+        diffusion => Diffusion,
+        mass => Mass,
+        force => Force,
+        viscosity => Viscosity,
+        temperature => Temperature,
+    );
+
+    /// Each entry of a list of lengths ("entry 2: ..." in errors).
+    fn lengths<E: de::Error>(raw: Vec<Raw>) -> Result<Vec<f64>, E> {
+        raw.into_iter()
+            .enumerate()
+            .map(|(i, r)| {
+                r.value(Kind::Length)
+                    .map_err(|e| E::custom(format!("entry {}: {e}", i + 1)))
+            })
+            .collect()
+    }
+
+    pub fn length_pair<'de, D: Deserializer<'de>>(d: D) -> Result<Option<[f64; 2]>, D::Error> {
+        Option::<[Raw; 2]>::deserialize(d)?
+            .map(|p| lengths(Vec::from(p)).map(|v| [v[0], v[1]]))
+            .transpose()
+    }
+
+    pub fn length_list<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
+        Option::<Vec<Raw>>::deserialize(d)?.map(lengths).transpose()
+    }
+}
+
 /// Internal masses, frictions and diffusion coefficients must lie in this range: beyond it actions
 /// and Boltzmann factors overflow double precision in intermediate steps.
 pub const INTERNAL_RANGE: (f64, f64) = (1e-150, 1e150);
@@ -80,6 +194,7 @@ pub struct UnitsSection {
     #[serde(default = "one")]
     pub mass: String,
     /// temperature in K
+    #[serde(default, deserialize_with = "quantity::temperature")]
     pub temperature: Option<f64>,
 }
 
@@ -88,6 +203,18 @@ fn kt() -> String {
 }
 fn one() -> String {
     "1".into()
+}
+
+impl UnitsSection {
+    /// The unit names as given.
+    pub fn names(&self) -> UnitNames {
+        UnitNames {
+            energy: self.energy.clone(),
+            length: self.length.clone(),
+            time: self.time.clone(),
+            mass: self.mass.clone(),
+        }
+    }
 }
 
 impl Default for UnitsSection {
@@ -107,15 +234,25 @@ impl Default for UnitsSection {
 #[serde(deny_unknown_fields)]
 pub struct ParticleSection {
     /// mass in units.mass
+    #[serde(default, deserialize_with = "quantity::mass")]
     pub mass: Option<f64>,
     /// friction rate gamma per units.time
+    #[serde(default, deserialize_with = "quantity::rate")]
     pub friction: Option<f64>,
     /// diffusion coefficient in length²/time
+    #[serde(default, deserialize_with = "quantity::diffusion")]
     pub diffusion: Option<f64>,
     /// position-dependent D(x)
     pub diffusion_expr: Option<String>,
     /// memory time τ of an exponential friction kernel K(t) = (γ/τ) e^{−t/τ}, units.time
+    #[serde(default, deserialize_with = "quantity::time")]
     pub memory_time: Option<f64>,
+    /// solvent viscosity η for Stokes' law D = kT/(6πηr), in units.energy·units.time/units.length³
+    #[serde(default, deserialize_with = "quantity::viscosity")]
+    pub viscosity: Option<f64>,
+    /// particle radius r for Stokes' law, units.length
+    #[serde(default, deserialize_with = "quantity::length")]
+    pub radius: Option<f64>,
 }
 
 /// `[potential]`
@@ -129,22 +266,30 @@ pub struct PotentialSection {
     /// family name
     pub family: Option<String>,
     /// domain for expr and family
+    #[serde(default, deserialize_with = "quantity::length_pair")]
     pub domain: Option<[f64; 2]>,
     /// named constants usable in expr and diffusion_expr
     pub constants: Option<BTreeMap<String, f64>>,
     /// family: barrier height (double-well, cubic)
+    #[serde(default, deserialize_with = "quantity::energy")]
     pub barrier: Option<f64>,
     /// double-well: half the distance between the minima
+    #[serde(default, deserialize_with = "quantity::length")]
     pub half_width: Option<f64>,
     /// cubic: position of the barrier top
+    #[serde(default, deserialize_with = "quantity::length")]
     pub width: Option<f64>,
     /// washboard: amplitude (the untilted barrier is twice this)
+    #[serde(default, deserialize_with = "quantity::energy")]
     pub amplitude: Option<f64>,
     /// washboard: period
+    #[serde(default, deserialize_with = "quantity::length")]
     pub period: Option<f64>,
     /// washboard: tilt force (energy per length)
+    #[serde(default, deserialize_with = "quantity::force")]
     pub tilt: Option<f64>,
     /// expr or table: the period L of a periodic (possibly tilted) profile, U(x + L) = U(x) − F L
+    #[serde(default, deserialize_with = "quantity::length")]
     pub periodic: Option<f64>,
     /// table: a uniform standard error of U (energy unit) for a table without a sigma_U column
     pub noise: Option<f64>,
@@ -162,6 +307,7 @@ const MAX_DRAWS: u64 = 1_000_000;
 #[serde(deny_unknown_fields)]
 pub struct UncertaintySection {
     /// correlation length of the profile noise (units.length; default: the table spacing)
+    #[serde(default, deserialize_with = "quantity::length")]
     pub correlation_length: Option<f64>,
     /// number of perturbed profiles
     pub draws: Option<u64>,
@@ -174,8 +320,10 @@ pub struct UncertaintySection {
 #[serde(deny_unknown_fields)]
 pub struct StatesSection {
     /// the reactant minimum is the one nearest this point
+    #[serde(default, deserialize_with = "quantity::length")]
     pub start: Option<f64>,
     /// the absorbing point
+    #[serde(default, deserialize_with = "quantity::length")]
     pub target: Option<f64>,
 }
 
@@ -190,8 +338,10 @@ pub struct SimulationSection {
     /// number of trajectories
     pub trajectories: Option<u64>,
     /// time step in units.time
+    #[serde(default, deserialize_with = "quantity::time")]
     pub dt: Option<f64>,
     /// censoring horizon in units.time
+    #[serde(default, deserialize_with = "quantity::time")]
     pub max_time: Option<f64>,
     /// master seed
     pub seed: Option<u64>,
@@ -202,12 +352,14 @@ pub struct SimulationSection {
     /// step budget for method = "auto"
     pub budget_steps: Option<f64>,
     /// forward flux sampling: interface positions (units.length), the target last
+    #[serde(default, deserialize_with = "quantity::length_list")]
     pub interfaces: Option<Vec<f64>>,
     /// forward flux sampling: trials per stage and replica
     pub trials: Option<u64>,
     /// forward flux sampling: independent replicas (for the interval)
     pub replicas: Option<u64>,
     /// reactive flux: the window for κ(t), in units.time
+    #[serde(default, deserialize_with = "quantity::time")]
     pub flux_time: Option<f64>,
     /// also count well-to-well transitions (double wells)
     pub well_to_well: Option<bool>,
@@ -416,10 +568,19 @@ impl Model {
         base: &Path,
         overrides: &[Override],
     ) -> Result<Self, ScenarioError> {
-        let sf: ScenarioFile = toml::from_str(text).map_err(|e| toml_error(text, file, &e))?;
-        let sf = if overrides.is_empty() {
-            sf
-        } else {
+        let overridden = overrides.iter().map(|o| o.path.join(".")).collect();
+        let validator = Validator {
+            file,
+            base,
+            overridden,
+        };
+        // unit strings are converted while reading, so the units (after every override) come first
+        let scale = validator.scale(text, overrides)?;
+        let sf = with_scale(scale, || -> Result<ScenarioFile, ScenarioError> {
+            let sf: ScenarioFile = toml::from_str(text).map_err(|e| toml_error(text, file, &e))?;
+            if overrides.is_empty() {
+                return Ok(sf);
+            }
             let mut doc: toml::Table = text.parse().map_err(|e| toml_error(text, file, &e))?;
             // check after each override, so an error names the one that caused it
             let mut last = None;
@@ -434,15 +595,9 @@ impl Model {
                     })?;
                 last = Some(checked);
             }
-            last.expect("at least one override")
-        };
-        let overridden = overrides.iter().map(|o| o.path.join(".")).collect();
-        Validator {
-            file,
-            base,
-            overridden,
-        }
-        .build(sf)
+            Ok(last.expect("at least one override"))
+        })?;
+        validator.build(sf)
     }
 }
 
@@ -533,6 +688,80 @@ impl Validator<'_> {
         }
     }
 
+    /// particle.viscosity and particle.radius (Stokes' law): both or neither, and instead of
+    /// friction or diffusion.
+    fn stokes(&self, p: &ParticleSection) -> Result<Option<(f64, f64)>, ScenarioError> {
+        let eta = self.positive("particle.viscosity", p.viscosity)?;
+        let r = self.positive("particle.radius", p.radius)?;
+        let (eta, r) = match (eta, r) {
+            (None, None) => return Ok(None),
+            (Some(eta), Some(r)) => (eta, r),
+            (Some(_), None) => {
+                return Err(self.err(
+                    "particle.radius",
+                    "is required with particle.viscosity (Stokes' law D = kT/(6π η r))",
+                ));
+            }
+            (None, Some(_)) => {
+                return Err(self.err(
+                    "particle.viscosity",
+                    "is required with particle.radius (Stokes' law D = kT/(6π η r))",
+                ));
+            }
+        };
+        for (key, given) in [
+            ("particle.friction", p.friction.is_some()),
+            ("particle.diffusion", p.diffusion.is_some()),
+            ("particle.diffusion_expr", p.diffusion_expr.is_some()),
+        ] {
+            if given {
+                return Err(self.err(
+                    "particle.viscosity",
+                    format!(
+                        "particle.viscosity and particle.radius give D by Stokes' law: give them or {key}, not both"
+                    ),
+                ));
+            }
+        }
+        Ok(Some((eta, r)))
+    }
+
+    /// A `[units]` problem, under the key it concerns.
+    fn unit_err(&self, e: &UnitError) -> ScenarioError {
+        let key = match e {
+            UnitError::Unknown { kind, .. } => format!("units.{kind}"),
+            UnitError::Mixed { .. } => "units.mass".to_string(),
+            _ => "units.temperature".to_string(),
+        };
+        self.err(&key, e.to_string())
+    }
+
+    /// The scale for unit strings: the file's `[units]` with every override applied.
+    fn scale(&self, text: &str, overrides: &[Override]) -> Result<UnitScale, ScenarioError> {
+        /// `[units]` alone, for its errors with their line
+        #[derive(Deserialize)]
+        struct UnitsOnly {
+            #[serde(default)]
+            #[allow(dead_code)] // read for its errors only
+            units: UnitsSection,
+        }
+        toml::from_str::<UnitsOnly>(text).map_err(|e| toml_error(text, self.file, &e))?;
+        let mut doc: toml::Table = text.parse().map_err(|e| toml_error(text, self.file, &e))?;
+        let units = |doc: &toml::Table| match doc.get("units") {
+            None => Ok(UnitsSection::default()),
+            Some(v) => UnitsSection::deserialize(v.clone()),
+        };
+        let mut section = units(&doc).map_err(|e| toml_error(text, self.file, &e))?;
+        for o in overrides {
+            apply_override(&mut doc, o)?;
+            section = units(&doc).map_err(|e| ScenarioError::Override {
+                arg: o.arg.clone(),
+                message: e.message().trim().replace('\n', " "),
+            })?;
+        }
+        UnitScale::new(&section.names(), section.temperature).map_err(|e| self.unit_err(&e))
+    }
+
     fn positive(&self, key: &str, v: Option<f64>) -> Result<Option<f64>, ScenarioError> {
         match v {
             Some(x) if !(x.is_finite() && x > 0.0) => {
@@ -548,10 +777,8 @@ impl Validator<'_> {
     }
 
     fn build(&self, sf: ScenarioFile) -> Result<Model, ScenarioError> {
-        let particle = sf
-            .particle
-            .clone()
-            .ok_or_else(|| self.err("particle", "the [particle] section is required"))?;
+        // optional when a table's D column gives the diffusion (checked where D is chosen)
+        let particle = sf.particle.clone().unwrap_or_default();
         let pot = sf
             .potential
             .clone()
@@ -572,6 +799,7 @@ impl Validator<'_> {
                 "give particle.friction or particle.diffusion, not both (D = kT/(m gamma))",
             ));
         }
+        let stokes = self.stokes(&particle)?;
         if friction.is_some() && particle.diffusion_expr.is_some() {
             return Err(self.err(
                 "particle.diffusion_expr",
@@ -584,32 +812,26 @@ impl Validator<'_> {
                 "is required with particle.friction (D = kT/(m gamma))",
             ));
         }
-        let u = &sf.units;
-        let units = UnitSystem::new(
-            UnitNames {
-                energy: u.energy.clone(),
-                length: u.length.clone(),
-                time: u.time.clone(),
-                mass: u.mass.clone(),
-            },
-            u.temperature,
-            mass.is_some(),
-        )
-        .map_err(|e| {
-            let key = match &e {
-                crate::units::UnitError::Unknown { kind, .. } => format!("units.{kind}"),
-                crate::units::UnitError::Mixed { .. } => "units.mass".to_string(),
-                _ => "units.temperature".to_string(),
-            };
-            self.err(&key, e.to_string())
-        })?;
+        let units = UnitSystem::new(sf.units.names(), sf.units.temperature, mass.is_some())
+            .map_err(|e| self.unit_err(&e))?;
+        // Stokes' law with the Einstein relation (Stokes 1851, Einstein 1905): D = kT/(6πηr), with
+        // kT in units.energy and η in units.energy·units.time/units.length³, so D is in
+        // units.length²/units.time
+        let (diffusion, d_key, d_keys) = match stokes {
+            Some((eta, r)) => (
+                Some(units.kt_in_energy_unit / (6.0 * std::f64::consts::PI * eta * r)),
+                "particle.viscosity",
+                "particle.viscosity and particle.radius",
+            ),
+            None => (diffusion, "particle.diffusion", "particle.diffusion"),
+        };
         let mass_int = mass.and_then(|m| units.mass_to_internal(m));
         // Internal values far from 1 overflow the actions and exponents (sqrt(2 m E) for m ~ 1e308):
         // refuse them with a hint instead of reporting infinities.
         for (key, v) in [
             ("particle.mass", mass_int),
             ("particle.friction", friction),
-            ("particle.diffusion", diffusion),
+            (d_key, diffusion),
         ] {
             if let Some(v) = v
                 && !(INTERNAL_RANGE.0..=INTERNAL_RANGE.1).contains(&v)
@@ -730,10 +952,7 @@ impl Validator<'_> {
             Diffusion::Formula(f)
         } else if let Some(d) = diffusion {
             if table_d.is_some() {
-                return Err(self.err(
-                    "particle.diffusion",
-                    "the table has a D column: drop particle.diffusion",
-                ));
+                return Err(self.err(d_key, format!("the table has a D column: drop {d_keys}")));
             }
             Diffusion::Constant(d)
         } else if let Some(spline) = table_d {
@@ -741,10 +960,15 @@ impl Validator<'_> {
         } else if let (Some(g), Some(m)) = (friction, mass_int) {
             // Einstein relation, internal units (kT = 1)
             Diffusion::Constant(1.0 / (m * g))
+        } else if sf.particle.is_none() {
+            return Err(self.err(
+                "particle",
+                "the [particle] section is required (unless the table has a D column)",
+            ));
         } else {
             return Err(self.err(
                 "particle.friction",
-                "give particle.friction (with mass) or particle.diffusion",
+                "give particle.friction (with mass), particle.diffusion, or particle.viscosity and particle.radius",
             ));
         };
         // a periodic profile's D(x) is read on its base period and repeated, like U'

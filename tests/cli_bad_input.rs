@@ -471,7 +471,7 @@ const CASES: &[Case] = &[
         "good.toml",
         &["--set", "particle.mass=heavy"],
         "--set particle.mass=heavy",
-        "expected f64",
+        "cannot read \"heavy\" as a quantity",
         "",
     ),
     // with several --set, the message must name the one that is wrong (and only that one)
@@ -485,7 +485,7 @@ const CASES: &[Case] = &[
             "particle.mass=heavy",
         ],
         "--set particle.mass=heavy:",
-        "expected f64",
+        "cannot read \"heavy\" as a quantity",
         "",
     ),
     with_args(
