@@ -292,10 +292,12 @@ pub struct PotentialSection {
     #[serde(default, deserialize_with = "quantity::length")]
     pub periodic: Option<f64>,
     /// table: a uniform standard error of U (energy unit) for a table without a sigma_U column
+    #[serde(default, deserialize_with = "quantity::energy")]
     pub noise: Option<f64>,
     /// table: "chi-square" | "cross-validation" (smoothing spline) | "interpolate"
     pub fit: Option<String>,
     /// table: the energy difference below which a minimum–maximum pair is taken for noise
+    #[serde(default, deserialize_with = "quantity::energy")]
     pub prominence: Option<f64>,
 }
 
