@@ -83,6 +83,9 @@ pub struct Smoothed {
     pub residual_dof: f64,
 }
 
+/// D and the two subdiagonals of the unit lower factor of B = L D Lᵀ.
+type Factors = (Vec<f64>, Vec<f64>, Vec<f64>);
+
 /// The pentadiagonal symmetric matrix B = R + α QᵀΣQ by diagonals, and Qᵀy.
 struct Reinsch {
     /// Q's three entries per column j (rows j, j+1, j+2)
@@ -135,7 +138,7 @@ impl Reinsch {
         }
     }
 
-    fn factor(&self, alpha: f64) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    fn factor(&self, alpha: f64) -> Factors {
         let m = self.r0.len();
         let a0: Vec<f64> = (0..m).map(|j| self.r0[j] + alpha * self.c0[j]).collect();
         let a1: Vec<f64> = (0..m).map(|j| self.r1[j] + alpha * self.c1[j]).collect();
@@ -162,7 +165,7 @@ impl Reinsch {
     }
 
     /// χ² at a finite α > 0 and the factors (no trace: what the probe-based risk needs).
-    fn chi2(&self, var: &[f64], alpha: f64) -> (f64, (Vec<f64>, Vec<f64>, Vec<f64>)) {
+    fn chi2(&self, var: &[f64], alpha: f64) -> (f64, Factors) {
         let fac = self.factor(alpha);
         let gamma = band_solve(&fac.0, &fac.1, &fac.2, self.qty.clone());
         let res = self.residuals(var, alpha, &gamma);
@@ -179,13 +182,7 @@ impl Reinsch {
     }
 
     /// H e for probe data e with the factors of B at α already made.
-    fn apply(
-        &self,
-        e: &[f64],
-        var: &[f64],
-        alpha: f64,
-        fac: &(Vec<f64>, Vec<f64>, Vec<f64>),
-    ) -> Vec<f64> {
+    fn apply(&self, e: &[f64], var: &[f64], alpha: f64, fac: &Factors) -> Vec<f64> {
         let m = self.r0.len();
         let qty: Vec<f64> = (0..m)
             .map(|j| self.q[j][0] * e[j] + self.q[j][1] * e[j + 1] + self.q[j][2] * e[j + 2])
