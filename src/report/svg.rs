@@ -30,6 +30,7 @@
 
 use crate::scan::{Kind, RATE_KEYS, ScanReport, rate_of};
 use plotters::coord::Shift;
+use plotters::coord::combinators::{LogCoord, WithKeyPoints};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::prelude::*;
 use std::fmt::Write;
@@ -196,10 +197,43 @@ fn frame<DB: DrawingBackend>(
     let (xa, xb, ya, yb) = (f.x.lo, f.x.hi, f.y.lo, f.y.hi);
     match (f.x.log, f.y.log) {
         (false, false) => mesh(area, f, xa..xb, ya..yb, under),
-        (true, false) => mesh(area, f, (xa..xb).log_scale(), ya..yb, under),
-        (false, true) => mesh(area, f, xa..xb, (ya..yb).log_scale(), under),
-        (true, true) => mesh(area, f, (xa..xb).log_scale(), (ya..yb).log_scale(), under),
+        (true, false) => mesh(area, f, log_axis(xa, xb), ya..yb, under),
+        (false, true) => mesh(area, f, xa..xb, log_axis(ya, yb), under),
+        (true, true) => mesh(area, f, log_axis(xa, xb), log_axis(ya, yb), under),
     }
+}
+
+/// A log axis with its ticks: 1, 2 and 5 per decade over one or two decades (every 1 to 9 when
+/// that gives fewer than three), each decade over a few, every few decades over many; the grid at
+/// 1 to 9 per decade. (plotters' own choice leaves ranges under a decade almost unlabelled.)
+fn log_axis(lo: f64, hi: f64) -> WithKeyPoints<LogCoord<f64>> {
+    let (a, b) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
+    let decades = b - a;
+    let within = |mults: &[f64], every: i32| -> Vec<f64> {
+        (a..=b)
+            .filter(|k| (k - a) % every == 0)
+            .flat_map(|k| mults.iter().map(move |m| m * 10f64.powi(k)))
+            .filter(|v| *v >= lo * (1.0 - 1e-12) && *v <= hi * (1.0 + 1e-12))
+            .collect()
+    };
+    let all: [f64; 9] = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0];
+    let mut bold = if decades <= 2 {
+        within(&[1.0, 2.0, 5.0], 1)
+    } else {
+        within(&[1.0], (decades + 7) / 8)
+    };
+    if bold.len() < 3 {
+        bold = within(&all, 1);
+    }
+    let light = if decades <= 12 {
+        within(&all, 1)
+    } else {
+        Vec::new()
+    };
+    (lo..hi)
+        .log_scale()
+        .with_key_points(bold)
+        .with_light_points(light)
 }
 
 fn mesh<DB, X, Y>(
@@ -932,14 +966,23 @@ pub fn landscape(
         .collect();
     // up to twice the barrier (the walls of steep potentials would flatten the picture)
     let top = units.energy_from_kt(2.0 * l.barrier_height.max(1.0));
+    // down to the lowest marked point and a barrier below it: a potential that keeps falling
+    // beyond the target (a metastable well) would flatten the picture
+    let lowest = [Some(l.target), l.product]
+        .into_iter()
+        .flatten()
+        .map(|x| e(pot.u(x)))
+        .fold(0f64, f64::min);
     let ymin = curve
         .iter()
         .map(|p| p.1)
         .filter(|v| v.is_finite())
         .fold(f64::INFINITY, f64::min)
-        .min(0.0);
+        .max(lowest - 0.5 * top)
+        .min(lowest);
     let x = Axis::fit([lo, hi], false, 0.0);
-    let y = Axis::fit([ymin - 0.05 * top, top], false, 0.0);
+    // room below the minima for their labels
+    let y = Axis::fit([ymin - 0.12 * top, top], false, 0.0);
     let lu = if units.names.length == "1" {
         "L"
     } else {
@@ -986,7 +1029,7 @@ pub fn landscape(
         let pts: Vec<(f64, f64)> = curve
             .iter()
             .filter(|p| p.1.is_finite())
-            .map(|&(x, y)| px.at(x, y.min(y_cap(&px))))
+            .map(|&(x, y)| px.at(x, y_near(&px, y)))
             .collect();
         raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
         if let Some(d) = data {
@@ -1058,9 +1101,10 @@ pub fn landscape(
     })
 }
 
-/// Values above the axis are drawn just above it (the clip path cuts them off cleanly).
-fn y_cap(px: &Px) -> f64 {
-    px.y.hi + 0.05 * (px.y.hi - px.y.lo)
+/// Values beyond the axis are drawn just beyond it (the clip path cuts them off cleanly).
+fn y_near(px: &Px, y: f64) -> f64 {
+    let m = 0.05 * (px.y.hi - px.y.lo);
+    y.clamp(px.y.lo - m, px.y.hi + m)
 }
 
 const LABEL_FONT: f64 = 14.0;
@@ -1235,6 +1279,60 @@ mod tests {
         // rounding noise next to zero on a linear axis through zero
         assert_eq!(tick(2.2e-17, 6.0), "0");
         assert_eq!(tick(1e-300, 1e-299), "1e-300");
+    }
+
+    // common practice, no source: measured points appear as markers with ±σ bars, on the
+    // picture's energy scale (U − U(reactant))
+    #[test]
+    fn survey_draws_measured_points_with_error_bars() {
+        let m = crate::scenario::Model::from_text(
+            "[particle]\ndiffusion = 1.0\n[potential]\nexpr = \"6*(x^2 - 1)^2\"\ndomain = [-2.0, 2.0]\n[states]\nstart = -1.0\n",
+            "w.toml",
+            std::path::Path::new("."),
+            &[],
+        )
+        .unwrap();
+        let l =
+            crate::landscape::Landscape::analyse(&m.potential, m.start, m.target, m.mass).unwrap();
+        let pts = [
+            ProfilePoint {
+                x: -1.0,
+                u: 0.0,
+                sigma: 0.5,
+            },
+            ProfilePoint {
+                x: 0.0,
+                u: 6.0,
+                sigma: 1.0,
+            },
+            ProfilePoint {
+                x: 0.5,
+                u: 3.4,
+                sigma: 0.2,
+            },
+        ];
+        let svg = landscape(&m, &l, Some(&pts));
+        let doc = roxmltree::Document::parse(&svg).expect("well-formed XML");
+        let class = |c: &str| {
+            doc.descendants()
+                .filter(|n| n.attribute("class") == Some(c))
+                .collect::<Vec<_>>()
+        };
+        let marks = class("marker data");
+        assert_eq!(marks.len(), 3);
+        let bars = class("errorbar");
+        assert_eq!(bars.len(), 3);
+        // the barrier point's bar spans ±1 kT: twice the reactant's ±0.5 kT, in pixels
+        let len = |n: &roxmltree::Node| {
+            let y = |k: &str| n.attribute(k).unwrap().parse::<f64>().unwrap();
+            (y("y1") - y("y2")).abs()
+        };
+        assert!((len(&bars[1]) / len(&bars[0]) - 2.0).abs() < 0.02);
+        // no title: the file name
+        assert!(
+            doc.descendants()
+                .any(|n| n.is_text() && n.text().map(str::trim) == Some("w.toml"))
+        );
     }
 
     #[test]
