@@ -117,6 +117,9 @@ pub enum Command {
         /// worker threads for --simulate (default: all cores)
         #[arg(long, value_name = "N", default_value_t = 0)]
         threads: usize,
+        /// show every rate, the regime and E_b/kT in the table (by default: the rates that hold)
+        #[arg(long)]
+        all_columns: bool,
     },
     /// Union record files of one run (shards or pieces) and report their statistics.
     Merge {

@@ -83,10 +83,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass)
                 .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             if let Some(path) = plot {
-                write_file(
-                    &path,
-                    &escapade::report::svg::landscape(&m.potential, &l, &m.units),
-                )?;
+                write_file(&path, &escapade::report::svg::landscape(&m, &l, None))?;
             }
             let r = SurveyReport::new(&m, &l);
             ok(if common.json {
@@ -140,6 +137,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             plot,
             common,
             threads,
+            all_columns,
         } => {
             let overrides = common
                 .set
@@ -168,7 +166,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             ok(if common.json {
                 json::render(&r)
             } else {
-                table::scan(&r)
+                table::scan(&r, all_columns)
             })
         }
         Command::Merge {

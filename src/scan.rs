@@ -193,6 +193,10 @@ pub struct Point {
     pub uncertainty: Option<Vec<crate::uncertainty::Interval>>,
     /// the simulated rate, with --simulate
     pub simulation: Option<SimPoint>,
+    /// keys of the rates that hold at this point (`theory::RegimeReport::trusted`); tables and
+    /// pictures mark the others
+    #[serde(skip)]
+    pub holds: Vec<&'static str>,
 }
 
 /// A fit over the scan for one rate.
@@ -233,6 +237,9 @@ pub struct ScanReport {
     /// ω_b at the first point
     #[serde(skip)]
     pub omega_barrier_first: Option<f64>,
+    /// the values were spaced logarithmically (--log): the picture's x axis is logarithmic too
+    #[serde(skip)]
+    pub log: bool,
 }
 
 /// Rate keys in report order.
@@ -331,6 +338,7 @@ pub fn run(
                     periodic: Some(PeriodicPoint::theory(&p)),
                     uncertainty: None,
                     simulation: None,
+                    holds: Vec::new(),
                 });
                 continue;
             }
@@ -460,6 +468,7 @@ pub fn run(
                 None
             },
             simulation,
+            holds: t.regime.trusted.clone(),
         });
     }
     let units = units.expect("at least two points");
@@ -483,6 +492,7 @@ pub fn run(
         notes,
         action_first,
         omega_barrier_first: omega_first,
+        log: spec.log,
     })
 }
 

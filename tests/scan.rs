@@ -110,9 +110,13 @@ fn svg_checks(svg: &str, labels: &[&str], markers: usize) {
     for l in labels {
         assert!(text.contains(l), "label {l:?} missing");
     }
+    // simulated points and survey points (svg.rs module doc: classes "marker sim" and "point")
     let circles = doc
         .descendants()
-        .filter(|n| n.has_tag_name("circle"))
+        .filter(|n| {
+            n.attribute("class")
+                .is_some_and(|c| c == "marker sim" || c == "point")
+        })
         .count();
     assert_eq!(circles, markers, "data markers");
 }
@@ -121,7 +125,7 @@ fn svg_checks(svg: &str, labels: &[&str], markers: usize) {
 fn scan_pictures_are_well_formed_with_labels_and_markers() {
     let f = example("double_well_reduced.toml");
     let svg = tmp("fric.svg");
-    // 3 simulated points: 3 markers plus one in the legend
+    // 3 simulated points
     scan_cli(
         &f,
         "particle.friction 0.1 10 3",
@@ -144,9 +148,9 @@ fn scan_pictures_are_well_formed_with_labels_and_markers() {
             "overdamped",
             "Mel'nikov-Meshkov",
         ],
-        4,
+        3,
     );
-    // Arrhenius plot: theory only, so no markers; the fit is in the legend
+    // Arrhenius plot: theory only, so no simulated points; the fit is in the legend
     let f = example("isomerization_kjmol.toml");
     scan_cli(
         &f,

@@ -570,17 +570,23 @@ pub fn compare_rows(
             }
         })
         .collect();
-    let agree: Vec<&str> = rows.iter().filter(|r| r.agrees).map(|r| r.method).collect();
+    // only theories the table marks as holding here count: one inside the interval outside its
+    // regime (or an upper bound such as TST) agrees by chance
+    let agree: Vec<&str> = rows
+        .iter()
+        .filter(|r| r.agrees && r.valid)
+        .map(|r| r.method)
+        .collect();
     let fits: Vec<&str> = rows
         .iter()
-        .filter(|r| r.consistent && !r.agrees && !r.method.starts_with("tst"))
+        .filter(|r| r.consistent && !r.agrees && r.valid && !r.method.starts_with("tst"))
         .map(|r| r.method)
         .collect();
     let verdict = if sim.rate <= 0.0 {
         "no escapes were simulated: no verdict (raise max_time or trajectories)".to_string()
     } else {
         let inside = if agree.is_empty() {
-            "no theory lies within the simulation's 95% interval".to_string()
+            "no theory that holds here lies within the simulation's 95% interval".to_string()
         } else {
             format!("within the simulation's 95% interval: {}", agree.join(", "))
         };

@@ -1,47 +1,632 @@
-//! SVG pictures (plotters, SVG backend only: text stays SVG text, no font libraries needed).
+//! SVG pictures. plotters (SVG backend) draws the frame: caption, axes, grid and tick labels; this
+//! module writes the data, markers and legend as plain SVG elements that carry their meaning in
+//! the markup (text stays text: no fonts are needed to make the pictures):
 //!
-//! - friction scan: k/k_TST against γ/ω_b on log–log axes, each theory a line, the simulation as
-//!   points with 95% error bars, the regime bands shaded and labelled;
-//! - temperature scan: Arrhenius plot, ln k against 1/T, with the fitted apparent activation energy
-//!   and prefactor in the legend;
-//! - force scan: ln k against the tilt force, with the fitted distance to the barrier;
-//! - any other key: k against the value.
+//! - `<clipPath id="plot-area">` holds the plotting area's rectangle; the data sit in
+//!   `<g class="data" clip-path="url(#plot-area)">`;
+//! - a curve is a `<polyline class="curve holds|outside" data-series=KEY>`, a marker a
+//!   `<g class="marker holds|outside|sim" data-series=KEY transform="translate(x,y)">` around
+//!   one shape; survey points are `<g class="point" data-name=…>` with a
+//!   `<text class="point-label">`;
+//! - the legend is `<g class="legend">` with a `<rect class="legend-box">`, below the frame, so
+//!   it never covers data.
+//!
+//! Pictures:
+//! - scans: each rate a curve with a marker at every point, in its own colour and marker shape;
+//!   solid with filled markers where the formula holds at that point (the rates `rate` marks
+//!   "holds here"), dashed and faded with hollow markers where it does not; the simulation as
+//!   black points with 95% error bars. Friction scans: k/k_TST against γ/ω_b with the regime
+//!   bands; temperature scans: the Arrhenius plot, ln k against 1000/T, with the fitted apparent
+//!   activation energy and prefactor in the legend; force scans: ln k against the force with the
+//!   fitted distance to the barrier; any other key: k against the value. The x axis is
+//!   logarithmic only when the values were spaced logarithmically (`--log`, which needs positive
+//!   ends), never for 1000/T or the force; rates are on a log axis when all are positive.
+//! - survey: U(x) titled with the scenario's title (or file name), reactant, barrier, product
+//!   and target marked with labels placed so that they do not overlap, a 1 kT bar, and optional
+//!   measured points with error bars ([`ProfilePoint`]).
+//! - survival: the fraction not yet escaped (log scale) with the fitted exponential.
+//!
+//! Tick labels carry the fewest significant digits that give the tick's value ([`tick`]).
 
 use crate::scan::{Kind, RATE_KEYS, ScanReport, rate_of};
+use plotters::coord::Shift;
+use plotters::coord::combinators::{LogCoord, WithKeyPoints};
+use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::prelude::*;
+use std::fmt::Write;
 
+/// Width of every picture.
 const W: u32 = 900;
-const H: u32 = 600;
+/// Height of the frame (axes and data); the legend goes below it.
+const H: u32 = 580;
+/// Legend font size and line height (pixels).
+const LEGEND_FONT: f64 = 13.0;
+const LEGEND_ROW: f64 = 20.0;
 
-fn colour(i: usize) -> RGBColor {
-    const C: [RGBColor; 10] = [
-        RGBColor(31, 119, 180),
-        RGBColor(255, 127, 14),
-        RGBColor(44, 160, 44),
-        RGBColor(214, 39, 40),
-        RGBColor(148, 103, 189),
-        RGBColor(140, 86, 75),
-        RGBColor(227, 119, 194),
-        RGBColor(127, 127, 127),
-        RGBColor(188, 189, 34),
-        RGBColor(23, 190, 207),
-    ];
-    C[i % C.len()]
+// ---------------------------------------------------------------------------------------------
+// numbers
+
+use super::table::{round_sig, sig};
+
+/// `v` with `n` significant digits, trailing zeros dropped: decimal from 0.001 to below 1000,
+/// otherwise mantissa e exponent (5e-6, 1.5e3).
+fn sig_str(v: f64, n: usize) -> String {
+    sig(v, n, 1e3)
 }
 
-fn label(key: &str) -> &'static str {
+/// A tick label: the fewest significant digits (up to 6) that give `v` to 1e-9 relative, so
+/// 4.9999999999999996e-6 reads 5e-6; decimal from 0.001 to below 1000 (0.25, 40), otherwise
+/// mantissa e exponent (1.5e3). A value within 1e-9 of the axis length `span` of zero is
+/// rounding noise of a linear axis through zero and reads "0".
+pub fn tick(v: f64, span: f64) -> String {
+    if !v.is_finite() {
+        return String::new();
+    }
+    if v == 0.0 || v.abs() <= 1e-9 * span.abs() {
+        return "0".into();
+    }
+    let sig = (1..=6)
+        .find(|&d| (round_sig(v, d) - v).abs() <= 1e-9 * v.abs())
+        .unwrap_or(6);
+    sig_str(v, sig)
+}
+
+// ---------------------------------------------------------------------------------------------
+// axes
+
+/// One axis: its range and whether it is logarithmic.
+#[derive(Debug, Clone, Copy)]
+struct Axis {
+    lo: f64,
+    hi: f64,
+    log: bool,
+}
+
+impl Axis {
+    /// Covers the finite values (the positive ones on a log axis) with a margin of `pad` of its
+    /// length on each side. Always a finite, non-empty range (positive on a log axis), whatever
+    /// the values: plotters is never handed a range it cannot lay out.
+    fn fit(vals: impl IntoIterator<Item = f64>, log: bool, pad: f64) -> Self {
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for v in vals {
+            if !v.is_finite() || (log && v <= 0.0) {
+                continue;
+            }
+            let t = if log { v.ln() } else { v };
+            lo = lo.min(t);
+            hi = hi.max(t);
+        }
+        if !lo.is_finite() {
+            (lo, hi) = (0.0, 1.0);
+        }
+        if hi > lo {
+            let w = hi - lo;
+            (lo, hi) = (lo - pad * w, hi + pad * w);
+        } else {
+            // one value: a unit (a factor e on a log axis) or a fifth of it around it
+            let w = if log || lo == 0.0 {
+                1.0
+            } else {
+                0.2 * lo.abs()
+            };
+            (lo, hi) = (lo - 0.5 * w, hi + 0.5 * w);
+        }
+        if log {
+            // e^±700 stays finite
+            Self {
+                lo: lo.clamp(-700.0, 699.0).exp(),
+                hi: hi.clamp(-699.0, 700.0).exp(),
+                log,
+            }
+        } else {
+            Self { lo, hi, log }
+        }
+    }
+
+    fn t(&self, v: f64) -> f64 {
+        if self.log { v.ln() } else { v }
+    }
+
+    /// Where `v` falls along the axis, 0 at `lo` and 1 at `hi`.
+    fn frac(&self, v: f64) -> f64 {
+        (self.t(v) - self.t(self.lo)) / (self.t(self.hi) - self.t(self.lo))
+    }
+
+    fn contains(&self, v: f64) -> bool {
+        v.is_finite() && (!self.log || v > 0.0) && v >= self.lo && v <= self.hi
+    }
+}
+
+/// The plotting area in pixels and the axes, to place data.
+#[derive(Debug, Clone, Copy)]
+struct Px {
+    x0: f64,
+    x1: f64,
+    y0: f64,
+    y1: f64,
+    x: Axis,
+    y: Axis,
+}
+
+impl Px {
+    /// Pixel position of (x, y); y grows downwards.
+    fn at(&self, x: f64, y: f64) -> (f64, f64) {
+        (
+            self.x0 + self.x.frac(x) * (self.x1 - self.x0),
+            self.y1 - self.y.frac(y) * (self.y1 - self.y0),
+        )
+    }
+
+    fn contains(&self, x: f64, y: f64) -> bool {
+        self.x.contains(x) && self.y.contains(y)
+    }
+
+    /// Pixel height of y clamped to the axis (for error bars that leave it).
+    fn y_clamped(&self, y: f64) -> f64 {
+        // NaN, and zero or below on a log axis, fall to the bottom
+        let f = if y.is_nan() || (self.y.log && y <= 0.0) {
+            0.0
+        } else {
+            self.y.frac(y).clamp(0.0, 1.0)
+        };
+        self.y1 - f * (self.y1 - self.y0)
+    }
+}
+
+/// What the frame shows.
+struct Frame<'a> {
+    title: &'a str,
+    x: Axis,
+    y: Axis,
+    xdesc: &'a str,
+    ydesc: &'a str,
+}
+
+type DrawResult<T, DB> = Result<T, DrawingAreaErrorKind<<DB as DrawingBackend>::ErrorType>>;
+
+/// Draws in pixel coordinates below the grid.
+type Underlay<'a, DB> = &'a dyn Fn(&DrawingArea<DB, Shift>, &Px) -> DrawResult<(), DB>;
+
+/// Draws caption, axes, grid and rounded tick labels; `under` draws in pixel coordinates below
+/// the grid (regime bands). Returns the plotting area.
+fn frame<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    f: &Frame,
+    under: Underlay<DB>,
+) -> DrawResult<Px, DB> {
+    let (xa, xb, ya, yb) = (f.x.lo, f.x.hi, f.y.lo, f.y.hi);
+    match (f.x.log, f.y.log) {
+        (false, false) => mesh(area, f, xa..xb, ya..yb, under),
+        (true, false) => mesh(area, f, log_axis(xa, xb), ya..yb, under),
+        (false, true) => mesh(area, f, xa..xb, log_axis(ya, yb), under),
+        (true, true) => mesh(area, f, log_axis(xa, xb), log_axis(ya, yb), under),
+    }
+}
+
+/// A log axis with its ticks: 1, 2 and 5 per decade over one or two decades (every 1 to 9 when
+/// that gives fewer than three), each decade over a few, every few decades over many; the grid at
+/// 1 to 9 per decade. (plotters' own choice leaves ranges under a decade almost unlabelled.)
+fn log_axis(lo: f64, hi: f64) -> WithKeyPoints<LogCoord<f64>> {
+    let (a, b) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
+    let decades = b - a;
+    let within = |mults: &[f64], every: i32| -> Vec<f64> {
+        (a..=b)
+            .filter(|k| (k - a) % every == 0)
+            .flat_map(|k| mults.iter().map(move |m| m * 10f64.powi(k)))
+            .filter(|v| *v >= lo * (1.0 - 1e-12) && *v <= hi * (1.0 + 1e-12))
+            .collect()
+    };
+    let all: [f64; 9] = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0];
+    let mut bold = if decades <= 2 {
+        within(&[1.0, 2.0, 5.0], 1)
+    } else {
+        within(&[1.0], (decades + 7) / 8)
+    };
+    if bold.len() < 3 {
+        bold = within(&all, 1);
+    }
+    let light = if decades <= 12 {
+        within(&all, 1)
+    } else {
+        Vec::new()
+    };
+    (lo..hi)
+        .log_scale()
+        .with_key_points(bold)
+        .with_light_points(light)
+}
+
+fn mesh<DB, X, Y>(
+    area: &DrawingArea<DB, Shift>,
+    f: &Frame,
+    x: X,
+    y: Y,
+    under: Underlay<DB>,
+) -> DrawResult<Px, DB>
+where
+    DB: DrawingBackend,
+    X: AsRangedCoord<Value = f64>,
+    Y: AsRangedCoord<Value = f64>,
+    X::CoordDescType: ValueFormatter<f64>,
+    Y::CoordDescType: ValueFormatter<f64>,
+{
+    let mut chart = ChartBuilder::on(area)
+        .caption(f.title, ("sans-serif", 24))
+        .margin(20)
+        .x_label_area_size(50)
+        .y_label_area_size(80)
+        .build_cartesian_2d(x, y)?;
+    let (xr, yr) = chart.plotting_area().get_pixel_range();
+    let px = Px {
+        x0: f64::from(xr.start),
+        x1: f64::from(xr.end - 1),
+        y0: f64::from(yr.start),
+        y1: f64::from(yr.end - 1),
+        x: f.x,
+        y: f.y,
+    };
+    under(area, &px)?;
+    let (xs, ys) = (f.x.hi - f.x.lo, f.y.hi - f.y.lo);
+    let xfmt = move |v: &f64| tick(*v, xs);
+    let yfmt = move |v: &f64| tick(*v, ys);
+    chart
+        .configure_mesh()
+        .x_desc(f.xdesc)
+        .y_desc(f.ydesc)
+        .x_label_formatter(&xfmt)
+        .y_label_formatter(&yfmt)
+        .light_line_style(RGBColor(220, 220, 220).mix(0.5))
+        .label_style(("sans-serif", 16))
+        .draw()?;
+    Ok(px)
+}
+
+// ---------------------------------------------------------------------------------------------
+// plain SVG elements
+
+/// Marker shapes; every rate has its own, so curves are told apart without colour.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Shape {
+    Circle,
+    Square,
+    Diamond,
+    Up,
+    Down,
+    Right,
+    Left,
+    Pentagon,
+    Hexagon,
+    Star,
+}
+
+impl Shape {
+    /// Vertices around the origin (None for the circle). Sizes give the shapes about the same
+    /// area as a circle of radius 5.
+    fn vertices(self) -> Option<Vec<(f64, f64)>> {
+        let ring = |n: usize, r: f64, turn: f64| -> Vec<(f64, f64)> {
+            (0..n)
+                .map(|i| {
+                    let a = turn + std::f64::consts::TAU * i as f64 / n as f64;
+                    (r * a.sin(), -r * a.cos())
+                })
+                .collect()
+        };
+        use std::f64::consts::PI;
+        Some(match self {
+            Self::Circle => return None,
+            Self::Square => vec![(-4.5, -4.5), (4.5, -4.5), (4.5, 4.5), (-4.5, 4.5)],
+            Self::Diamond => ring(4, 6.0, 0.0),
+            Self::Up => ring(3, 6.5, 0.0),
+            Self::Down => ring(3, 6.5, PI),
+            Self::Right => ring(3, 6.5, PI / 2.0),
+            Self::Left => ring(3, 6.5, -PI / 2.0),
+            Self::Pentagon => ring(5, 5.5, 0.0),
+            Self::Hexagon => ring(6, 5.3, 0.0),
+            Self::Star => {
+                let (outer, inner) = (ring(5, 7.0, 0.0), ring(5, 3.0, PI / 5.0));
+                outer
+                    .into_iter()
+                    .zip(inner)
+                    .flat_map(|(a, b)| [a, b])
+                    .collect()
+            }
+        })
+    }
+}
+
+fn hex(c: RGBColor) -> String {
+    format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2)
+}
+
+/// XML text and attribute escaping.
+fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// Plain SVG written after plotters' output.
+#[derive(Default)]
+struct Raw(String);
+
+impl Raw {
+    /// A polyline; `dashed` curves are also faded.
+    fn polyline(&mut self, pts: &[(f64, f64)], c: RGBColor, dashed: bool, class: &str, key: &str) {
+        if pts.len() < 2 {
+            return;
+        }
+        let p: String = pts.iter().fold(String::new(), |mut s, (x, y)| {
+            let _ = write!(s, "{x:.1},{y:.1} ");
+            s
+        });
+        let style = if dashed {
+            r#" stroke-dasharray="7 5" stroke-opacity="0.5""#
+        } else {
+            ""
+        };
+        let _ = writeln!(
+            self.0,
+            r#"<polyline class="{class}" data-series="{key}" fill="none" stroke="{}" stroke-width="2"{style} points="{}"/>"#,
+            hex(c),
+            p.trim_end()
+        );
+    }
+
+    /// A marker centred at (x, y): filled, or hollow (white inside) for a formula that does not
+    /// hold there.
+    fn marker(
+        &mut self,
+        shape: Shape,
+        (x, y): (f64, f64),
+        c: RGBColor,
+        filled: bool,
+        class: &str,
+        key: &str,
+    ) {
+        let fill = if filled { hex(c) } else { "#FFFFFF".into() };
+        let paint = format!(r#"fill="{fill}" stroke="{}" stroke-width="1.5""#, hex(c));
+        let body = match shape.vertices() {
+            None => format!(r#"<circle cx="0" cy="0" r="5" {paint}/>"#),
+            Some(v) => {
+                let p: Vec<String> = v.iter().map(|(a, b)| format!("{a:.2},{b:.2}")).collect();
+                format!(r#"<polygon points="{}" {paint}/>"#, p.join(" "))
+            }
+        };
+        let _ = writeln!(
+            self.0,
+            r#"<g class="{class}" data-series="{key}" transform="translate({x:.1},{y:.1})">{body}</g>"#
+        );
+    }
+
+    fn line(
+        &mut self,
+        (x1, y1): (f64, f64),
+        (x2, y2): (f64, f64),
+        c: RGBColor,
+        width: f64,
+        class: &str,
+    ) {
+        let _ = writeln!(
+            self.0,
+            r#"<line class="{class}" x1="{x1:.1}" y1="{y1:.1}" x2="{x2:.1}" y2="{y2:.1}" stroke="{}" stroke-width="{width}"/>"#,
+            hex(c)
+        );
+    }
+
+    /// Text with its baseline at y.
+    fn text(&mut self, (x, y): (f64, f64), s: &str, size: f64, anchor: &str, class: &str) {
+        let _ = writeln!(
+            self.0,
+            r##"<text class="{class}" x="{x:.1}" y="{y:.1}" font-family="sans-serif" font-size="{size}" text-anchor="{anchor}" fill="#000000">{}</text>"##,
+            esc(s)
+        );
+    }
+
+    /// A simulated point with its 95% interval (y values already in pixels; `y` None when no
+    /// escape was seen: the bar alone then shows the upper bound).
+    fn sim_point(&mut self, x: f64, y: Option<f64>, lo: f64, hi: f64) {
+        self.line((x, lo), (x, hi), BLACK, 1.2, "errorbar");
+        self.line((x - 4.0, hi), (x + 4.0, hi), BLACK, 1.2, "errorbar");
+        self.line((x - 4.0, lo), (x + 4.0, lo), BLACK, 1.2, "errorbar");
+        if let Some(y) = y {
+            self.marker(
+                Shape::Circle,
+                (x, y),
+                BLACK,
+                true,
+                "marker sim",
+                "simulation",
+            );
+        }
+    }
+
+    /// Opens the data group clipped to the plotting area.
+    fn open_data(&mut self, p: &Px) {
+        let _ = writeln!(
+            self.0,
+            r#"<defs><clipPath id="plot-area"><rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}"/></clipPath></defs>"#,
+            p.x0,
+            p.y0,
+            p.x1 - p.x0,
+            p.y1 - p.y0
+        );
+        self.0
+            .push_str("<g class=\"data\" clip-path=\"url(#plot-area)\">\n");
+    }
+
+    fn close(&mut self) {
+        self.0.push_str("</g>\n");
+    }
+}
+
+/// Width of `s` in sans-serif at `size` px (about 0.6 em per character on average).
+fn text_width(s: &str, size: f64) -> f64 {
+    0.6 * size * s.chars().count() as f64
+}
+
+// ---------------------------------------------------------------------------------------------
+// legend
+
+/// One legend entry: a line sample and/or a marker, and its text.
+struct Entry {
+    text: String,
+    colour: RGBColor,
+    shape: Option<Shape>,
+    line: bool,
+    /// the simulation's black point with an error bar
+    sim: bool,
+}
+
+/// The legend below the frame: entries in as many columns as fit, then an optional key line.
+struct Legend {
+    entries: Vec<Entry>,
+    /// what solid and filled, and dashed and hollow, mean
+    key: Option<[&'static str; 2]>,
+}
+
+const SAMPLE: f64 = 40.0;
+
+impl Legend {
+    fn columns(&self) -> (usize, f64) {
+        let widest = self
+            .entries
+            .iter()
+            .map(|e| text_width(&e.text, LEGEND_FONT))
+            .fold(0.0, f64::max);
+        let col = SAMPLE + 10.0 + widest + 20.0;
+        let avail = f64::from(W) - 60.0;
+        let n = ((avail / col).floor() as usize).clamp(1, self.entries.len().max(1));
+        (n, col)
+    }
+
+    /// Height in pixels (0 when empty).
+    fn height(&self) -> u32 {
+        if self.entries.is_empty() {
+            return 0;
+        }
+        let (n, _) = self.columns();
+        let rows = self.entries.len().div_ceil(n) + 2 * usize::from(self.key.is_some());
+        (16.0 + rows as f64 * LEGEND_ROW).ceil() as u32 + 10
+    }
+
+    /// Writes the legend with its top edge at `top`.
+    fn draw(&self, raw: &mut Raw, top: f64) {
+        if self.entries.is_empty() {
+            return;
+        }
+        let (n, col) = self.columns();
+        let h = f64::from(self.height()) - 10.0;
+        let left = 30.0;
+        raw.0.push_str("<g class=\"legend\">\n");
+        let _ = writeln!(
+            raw.0,
+            r##"<rect class="legend-box" x="{:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" fill="#FFFFFF" stroke="#000000" stroke-width="1"/>"##,
+            left - 10.0,
+            f64::from(W) - 2.0 * (left - 10.0)
+        );
+        for (i, e) in self.entries.iter().enumerate() {
+            let x = left + (i % n) as f64 * col;
+            let y = top + 8.0 + ((i / n) as f64 + 0.5) * LEGEND_ROW;
+            let mid = x + SAMPLE / 2.0;
+            if e.line {
+                raw.line((x, y), (x + SAMPLE, y), e.colour, 2.0, "legend-line");
+            }
+            if e.sim {
+                raw.line((mid, y - 7.0), (mid, y + 7.0), BLACK, 1.2, "legend-line");
+                raw.marker(Shape::Circle, (mid, y), BLACK, true, "marker", "simulation");
+            } else if let Some(s) = e.shape {
+                raw.marker(s, (mid, y), e.colour, true, "marker", "");
+            }
+            raw.text(
+                (x + SAMPLE + 10.0, y + 4.5),
+                &e.text,
+                LEGEND_FONT,
+                "start",
+                "legend-text",
+            );
+        }
+        // the key: solid and filled, then dashed and hollow, one row each
+        let rows = self.entries.len().div_ceil(n) as f64;
+        let grey = RGBColor(90, 90, 90);
+        for (j, (text, holds)) in self
+            .key
+            .iter()
+            .flat_map(|k| [(k[0], true), (k[1], false)])
+            .enumerate()
+        {
+            let y = top + 8.0 + (rows + j as f64 + 0.5) * LEGEND_ROW;
+            let class = if holds {
+                "legend-line"
+            } else {
+                "legend-line outside"
+            };
+            raw.polyline(&[(left, y), (left + SAMPLE, y)], grey, !holds, class, "");
+            raw.marker(
+                Shape::Square,
+                (left + SAMPLE / 2.0, y),
+                grey,
+                holds,
+                "marker",
+                "",
+            );
+            raw.text(
+                (left + SAMPLE + 10.0, y + 4.5),
+                text,
+                LEGEND_FONT,
+                "start",
+                "legend-text",
+            );
+        }
+        raw.0.push_str("</g>\n");
+    }
+}
+
+/// Renders a picture of frame height `H` plus the legend: `draw` fills the frame (plotters) and
+/// returns the plain SVG of the data; the legend goes below.
+fn render(
+    legend: &Legend,
+    draw: impl for<'b> FnOnce(&DrawingArea<SVGBackend<'b>, Shift>) -> DrawResult<Raw, SVGBackend<'b>>,
+) -> String {
+    let mut buf = String::new();
+    let raw = {
+        let root = SVGBackend::with_string(&mut buf, (W, H + legend.height())).into_drawing_area();
+        let _ = root.fill(&WHITE);
+        let (top, _) = root.split_vertically(H);
+        let raw = draw(&top).unwrap_or_default();
+        let _ = root.present();
+        raw
+    };
+    let mut raw = raw;
+    legend.draw(&mut raw, f64::from(H));
+    match buf.rfind("</svg>") {
+        Some(i) => buf.insert_str(i, &raw.0),
+        None => buf.push_str(&raw.0),
+    }
+    buf
+}
+
+// ---------------------------------------------------------------------------------------------
+// scans
+
+/// Name, colour and marker shape of each rate (fixed per rate, so every picture agrees).
+fn style(key: &str) -> (&'static str, RGBColor, Shape) {
     match key {
-        "tst" => "harmonic TST",
-        "tst_exact" => "exact 1-D TST",
-        "kramers" => "Kramers",
-        "smoluchowski" => "Smoluchowski",
-        "energy_diffusion" => "energy diffusion",
-        "turnover" => "Mel'nikov-Meshkov",
-        "pgh" => "Pollak-Grabert-Hanggi",
-        "mfpt" => "1/MFPT (overdamped)",
-        "grote_hynes" => "Grote-Hynes",
-        "well_to_well" => "well-to-well",
-        _ => "simulation",
+        "tst" => ("harmonic TST", RGBColor(31, 119, 180), Shape::Square),
+        "tst_exact" => ("exact 1-D TST", RGBColor(255, 127, 14), Shape::Diamond),
+        "kramers" => ("Kramers", RGBColor(44, 160, 44), Shape::Up),
+        "smoluchowski" => ("Smoluchowski", RGBColor(214, 39, 40), Shape::Down),
+        "energy_diffusion" => ("energy diffusion", RGBColor(148, 103, 189), Shape::Right),
+        "turnover" => ("Mel'nikov-Meshkov", RGBColor(140, 86, 75), Shape::Pentagon),
+        "pgh" => (
+            "Pollak-Grabert-Hanggi",
+            RGBColor(227, 119, 194),
+            Shape::Hexagon,
+        ),
+        "mfpt" => ("1/MFPT (overdamped)", RGBColor(127, 127, 127), Shape::Star),
+        "grote_hynes" => ("Grote-Hynes", RGBColor(188, 189, 34), Shape::Left),
+        "well_to_well" => ("well-to-well", RGBColor(23, 190, 207), Shape::Circle),
+        _ => ("simulation", BLACK, Shape::Circle),
     }
 }
 
@@ -53,85 +638,61 @@ fn time_unit(r: &ScanReport) -> &str {
     }
 }
 
-/// One series: name, points (x, y), and for the simulation (x, y, y_lo, y_hi).
-struct Series {
-    name: String,
-    pts: Vec<(f64, f64)>,
+/// One rate over the scan: per point (x, y, holds there), None where it is absent or off the
+/// axis.
+struct Curve {
+    key: &'static str,
+    pts: Vec<Option<(f64, f64, bool)>>,
 }
 
-fn bounds(vals: impl Iterator<Item = f64>) -> (f64, f64) {
-    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-    for v in vals.filter(|v| v.is_finite()) {
-        lo = lo.min(v);
-        hi = hi.max(v);
-    }
-    if !lo.is_finite() {
-        return (0.0, 1.0);
-    }
-    if hi <= lo {
-        hi = lo + 1.0;
-    }
-    (lo, hi)
-}
+/// The key line of scan legends.
+const HOLDS_KEY: [&str; 2] = [
+    "solid line, filled marker: the formula holds at that point",
+    "dashed line, hollow marker: it does not hold there (outside its regime, or an upper bound)",
+];
 
 /// The scan as an SVG document.
 pub fn scan(r: &ScanReport) -> String {
-    let mut buf = String::new();
-    {
-        let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let _ = draw(&root, r);
-        let _ = root.present();
-    }
-    buf
-}
-
-fn draw<DB: DrawingBackend>(
-    root: &DrawingArea<DB, plotters::coord::Shift>,
-    r: &ScanReport,
-) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
     let tu = time_unit(r);
     let lu = if r.units.length == "1" {
         "L"
     } else {
-        &r.units.length
+        r.units.length.as_str()
     };
-    // x: friction scans use γ/ω_b when known; temperature scans 1/T
+    let friction = r.kind == Kind::Friction;
     let x_of = |p: &crate::scan::Point| match r.kind {
         Kind::Friction => p.gamma_over_omega_barrier.unwrap_or(p.value),
         Kind::Temperature => 1000.0 / p.value,
         _ => p.value,
     };
-    let friction = r.kind == Kind::Friction;
     let norm = friction && r.points.iter().all(|p| p.rates.tst.is_some());
+    let ln_y = matches!(r.kind, Kind::Temperature | Kind::Force);
     let y_of = |p: &crate::scan::Point, k: f64| -> f64 {
         let k = if norm {
             k / p.rates.tst.unwrap_or(1.0)
         } else {
             k
         };
-        match r.kind {
-            Kind::Temperature | Kind::Force => k.ln(),
-            _ => k,
-        }
+        if ln_y { k.ln() } else { k }
     };
-    let keys: Vec<&str> = RATE_KEYS
+    let curves: Vec<Curve> = RATE_KEYS
         .iter()
         .copied()
         .filter(|k| !(norm && *k == "tst"))
-        .filter(|k| r.points.iter().all(|p| rate_of(&p.rates, k).is_some()))
-        .collect();
-    let series: Vec<Series> = keys
-        .iter()
-        .map(|k| Series {
-            name: label(k).to_string(),
+        .map(|k| Curve {
+            key: k,
             pts: r
                 .points
                 .iter()
-                .map(|p| (x_of(p), y_of(p, rate_of(&p.rates, k).unwrap_or(f64::NAN))))
+                .map(|p| {
+                    let y = y_of(p, rate_of(&p.rates, k)?);
+                    y.is_finite().then(|| (x_of(p), y, p.holds.contains(&k)))
+                })
                 .collect(),
         })
+        .filter(|c| c.pts.iter().any(Option::is_some))
         .collect();
+    // (x, y, lo, hi) of the simulated points
     let sims: Vec<(f64, f64, f64, f64)> = r
         .points
         .iter()
@@ -140,22 +701,44 @@ fn draw<DB: DrawingBackend>(
                 (
                     x_of(p),
                     y_of(p, s.rate),
-                    y_of(p, s.rate_ci95[0].max(s.rate * 1e-3)),
+                    y_of(p, s.rate_ci95[0]),
                     y_of(p, s.rate_ci95[1]),
                 )
             })
         })
         .collect();
-    let (x0, x1) = bounds(r.points.iter().map(x_of));
-    let (y0, y1) = bounds(
-        series
-            .iter()
-            .flat_map(|s| s.pts.iter().map(|p| p.1))
-            .chain(sims.iter().flat_map(|s| [s.2, s.3])),
-    );
-    let (xlabel, ylabel) = match r.kind {
+    let x_log = r.log && !matches!(r.kind, Kind::Temperature | Kind::Force);
+    let xs = r.points.iter().map(x_of).filter(|x| !x_log || *x > 0.0);
+    let x = Axis::fit(xs, x_log, 0.05);
+    let ys: Vec<f64> = curves
+        .iter()
+        .flat_map(|c| c.pts.iter().flatten().map(|p| p.1))
+        .chain(sims.iter().flat_map(|s| [s.1, s.2, s.3]))
+        .collect();
+    // rates are positive: a log axis unless ln k is plotted or the rates span less than a
+    // decade (a simulated interval reaching zero is cut at the axis)
+    // rates spanning more than a decade
+    let positive: Vec<f64> = curves
+        .iter()
+        .flat_map(|c| c.pts.iter().flatten().map(|p| p.1))
+        .collect();
+    let (pmin, pmax) = positive
+        .iter()
+        .fold((f64::INFINITY, 0f64), |(a, b), &v| (a.min(v), b.max(v)));
+    let y_log = !ln_y && positive.iter().all(|v| *v > 0.0) && (norm || pmax > 10.0 * pmin);
+    let mut y = Axis::fit(ys.iter().copied(), y_log, 0.06);
+    if norm && y.log {
+        // k/k_TST above a few is where the overdamped formulas leave their regime: clip there,
+        // but show at least a decade
+        y.hi = y.hi.min(5.0);
+        y.lo = y.lo.min(y.hi / 10.0);
+    }
+    let (xdesc, ydesc) = match r.kind {
         Kind::Friction => (
-            if r.points[0].gamma_over_omega_barrier.is_some() {
+            if r.points
+                .iter()
+                .all(|p| p.gamma_over_omega_barrier.is_some())
+            {
                 "γ/ω_b".to_string()
             } else {
                 r.key.clone()
@@ -179,282 +762,434 @@ fn draw<DB: DrawingBackend>(
         Kind::Force => "rate under a tilt force",
         Kind::Other => "scan",
     };
-    let log_axes = matches!(r.kind, Kind::Friction | Kind::Other);
-    let mut b = ChartBuilder::on(root);
-    b.caption(title, ("sans-serif", 24))
-        .margin(20)
-        .x_label_area_size(50)
-        .y_label_area_size(80);
-    if log_axes {
-        let pad = |a: f64, b: f64| (a / (b / a).powf(0.05), b * (b / a).powf(0.05));
-        let (xa, xb) = pad(x0.max(1e-300), x1.max(x0 * 1.0001));
-        let (ya, yb) = pad(y0.max(1e-300), y1.max(y0 * 1.0001));
-        // k/k_TST above a few is where the overdamped formulas leave their regime: clip there
-        let yb = if norm { yb.min(5.0) } else { yb };
-        let ya = ya.min(yb / 10.0);
-        let mut chart = b.build_cartesian_2d((xa..xb).log_scale(), (ya..yb).log_scale())?;
-        if friction && let (Some(ib), Some(wb)) = (r.action_first, r.omega_barrier_first) {
-            // δ = γ I_b/kT: δ = 1 and 10 at γ/ω_b = δ/(I_b ω_b); overdamped from γ/ω_b = 5
-            let e1 = 1.0 / (ib * wb);
-            let e10 = 10.0 / (ib * wb);
-            let bands = [
-                (
-                    xa,
-                    e1.clamp(xa, xb),
-                    "energy diffusion",
-                    RGBColor(230, 240, 255),
-                ),
-                (
-                    e1.clamp(xa, xb),
-                    e10.clamp(xa, xb),
-                    "turnover",
-                    RGBColor(255, 245, 225),
-                ),
-                (
-                    e10.clamp(xa, xb),
-                    5f64.clamp(xa, xb),
-                    "spatial diffusion",
-                    RGBColor(235, 250, 235),
-                ),
-                (
-                    5f64.clamp(xa, xb),
-                    xb,
-                    "overdamped",
-                    RGBColor(245, 235, 250),
-                ),
-            ];
-            for (a, bnd, name, col) in bands {
-                if bnd > a {
-                    chart.draw_series(std::iter::once(Rectangle::new(
-                        [(a, ya), (bnd, yb)],
-                        col.filled(),
-                    )))?;
-                    chart.draw_series(std::iter::once(Text::new(
-                        name,
-                        (a * 1.05, yb / (yb / ya).powf(0.04)),
-                        ("sans-serif", 14),
-                    )))?;
-                }
+    let legend = scan_legend(r, &curves, !sims.is_empty(), tu, lu);
+    let bands = friction
+        .then_some(())
+        .and(r.action_first.zip(r.omega_barrier_first));
+    let f = Frame {
+        title,
+        x,
+        y,
+        xdesc: &xdesc,
+        ydesc: &ydesc,
+    };
+    render(&legend, |area| {
+        let px = frame(area, &f, &|a, px| match bands {
+            Some((ib, wb)) => regime_bands(a, px, ib, wb),
+            None => Ok(()),
+        })?;
+        let mut raw = Raw::default();
+        raw.open_data(&px);
+        for c in &curves {
+            draw_curve(&mut raw, &px, c);
+        }
+        for &(x, y, lo, hi) in &sims {
+            if !px.x.contains(x) {
+                continue;
             }
+            let (sx, sy) = px.at(x, y);
+            let yv = px.contains(x, y).then_some(sy);
+            raw.sim_point(sx, yv, px.y_clamped(lo), px.y_clamped(hi));
         }
-        chart
-            .configure_mesh()
-            .x_desc(xlabel)
-            .y_desc(ylabel)
-            .light_line_style(RGBColor(220, 220, 220).mix(0.5))
-            .label_style(("sans-serif", 16))
-            .draw()?;
-        for (i, s) in series.iter().enumerate() {
-            let c = colour(i);
-            // points beyond the clipped range are left out rather than drawn along the edge
-            let inside = s.pts.iter().copied().filter(|p| p.1 <= yb && p.1 >= ya);
-            chart
-                .draw_series(LineSeries::new(inside, c.stroke_width(2)))?
-                .label(s.name.clone())
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2))
-                });
+        raw.close();
+        Ok(raw)
+    })
+}
+
+/// A curve: solid between points where the formula holds at both ends, dashed otherwise, broken
+/// where it is absent; a marker at every point on the axes.
+fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
+    let (_, colour, shape) = style(c.key);
+    let mut run: Vec<(f64, f64)> = Vec::new();
+    let mut run_holds = true;
+    let mut flush = |run: &mut Vec<(f64, f64)>, holds: bool| {
+        let class = if holds {
+            "curve holds"
+        } else {
+            "curve outside"
+        };
+        raw.polyline(run, colour, !holds, class, c.key);
+        run.clear();
+    };
+    for w in c.pts.windows(2) {
+        match (w[0], w[1]) {
+            (Some(a), Some(b)) => {
+                let holds = a.2 && b.2;
+                if !run.is_empty() && holds != run_holds {
+                    let last = *run.last().expect("not empty");
+                    flush(&mut run, run_holds);
+                    run.push(last);
+                }
+                run_holds = holds;
+                if run.is_empty() {
+                    run.push(px.at(a.0, a.1));
+                }
+                run.push(px.at(b.0, b.1));
+            }
+            _ => flush(&mut run, run_holds),
         }
-        if !sims.is_empty() {
-            chart.draw_series(sims.iter().map(|&(x, _, lo, hi)| {
-                PathElement::new(vec![(x, lo), (x, hi)], BLACK.stroke_width(1))
-            }))?;
-            chart
-                .draw_series(
-                    sims.iter()
-                        .map(|&(x, y, _, _)| Circle::new((x, y), 4, BLACK.filled())),
-                )?
-                .label("simulation (95%)")
-                .legend(|(x, y)| Circle::new((x + 10, y), 4, BLACK.filled()));
-        }
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .label_font(("sans-serif", 14))
-            .position(SeriesLabelPosition::LowerLeft)
-            .draw()?;
-    } else {
-        let px = 0.05 * (x1 - x0);
-        let py = 0.08 * (y1 - y0);
-        let mut chart = b.build_cartesian_2d((x0 - px)..(x1 + px), (y0 - py)..(y1 + py))?;
-        chart
-            .configure_mesh()
-            .x_desc(xlabel)
-            .y_desc(ylabel)
-            .label_style(("sans-serif", 16))
-            .draw()?;
-        for (i, s) in series.iter().enumerate() {
-            let c = colour(i);
-            let fit = r.fits.iter().find(|f| label(&f.rate) == s.name);
-            let name = match (r.kind, fit) {
-                (Kind::Temperature, Some(f)) => format!(
-                    "{}: Ea = {:.4} [{:.4}, {:.4}] {}, A = {:.3e} /{tu}",
-                    s.name, f.value, f.value_ci95[0], f.value_ci95[1], r.units.energy, f.prefactor
-                ),
-                (Kind::Force, Some(f)) => format!(
-                    "{}: x‡ = {:.4} [{:.4}, {:.4}] {lu}",
-                    s.name, f.value, f.value_ci95[0], f.value_ci95[1]
-                ),
-                _ => s.name.clone(),
-            };
-            chart
-                .draw_series(LineSeries::new(s.pts.iter().copied(), c.stroke_width(2)))?
-                .label(name)
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2))
-                });
-        }
-        if !sims.is_empty() {
-            chart.draw_series(sims.iter().map(|&(x, _, lo, hi)| {
-                PathElement::new(vec![(x, lo), (x, hi)], BLACK.stroke_width(1))
-            }))?;
-            let fit = r.fits.iter().find(|f| f.rate == "simulation");
-            let name = match (r.kind, fit) {
-                (Kind::Temperature, Some(f)) => format!(
-                    "simulation: Ea = {:.4} [{:.4}, {:.4}] {}",
-                    f.value, f.value_ci95[0], f.value_ci95[1], r.units.energy
-                ),
-                (Kind::Force, Some(f)) => format!(
-                    "simulation: x‡ = {:.4} [{:.4}, {:.4}] {lu}",
-                    f.value, f.value_ci95[0], f.value_ci95[1]
-                ),
-                _ => "simulation (95%)".to_string(),
-            };
-            chart
-                .draw_series(
-                    sims.iter()
-                        .map(|&(x, y, _, _)| Circle::new((x, y), 4, BLACK.filled())),
-                )?
-                .label(name)
-                .legend(|(x, y)| Circle::new((x + 10, y), 4, BLACK.filled()));
-        }
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .label_font(("sans-serif", 13))
-            // lines fall to the right in an Arrhenius plot and rise with the force: the empty corner
-            .position(if r.kind == Kind::Temperature {
-                SeriesLabelPosition::LowerLeft
+    }
+    flush(&mut run, run_holds);
+    for &(x, y, holds) in c.pts.iter().flatten() {
+        if px.contains(x, y) {
+            let class = if holds {
+                "marker holds"
             } else {
-                SeriesLabelPosition::UpperLeft
-            })
-            .draw()?;
+                "marker outside"
+            };
+            raw.marker(shape, px.at(x, y), colour, holds, class, c.key);
+        }
+    }
+}
+
+/// The legend of a scan: each rate (with its fit for temperature and force scans), the
+/// simulation, and the key to solid and dashed.
+fn scan_legend(r: &ScanReport, curves: &[Curve], sim: bool, tu: &str, lu: &str) -> Legend {
+    let fit_text = |name: &str, key: &str| -> String {
+        let Some(f) = r.fits.iter().find(|f| f.rate == key) else {
+            return name.to_string();
+        };
+        let iv = |v: f64, [a, b]: [f64; 2]| {
+            format!("{} [{}, {}]", sig_str(v, 4), sig_str(a, 4), sig_str(b, 4))
+        };
+        match r.kind {
+            Kind::Temperature => format!(
+                "{name}: Ea = {} {}, A = {} /{tu}",
+                iv(f.value, f.value_ci95),
+                r.units.energy,
+                sig_str(f.prefactor, 3)
+            ),
+            Kind::Force => format!("{name}: x‡ = {} {lu}", iv(f.value, f.value_ci95)),
+            _ => name.to_string(),
+        }
+    };
+    let mut entries: Vec<Entry> = curves
+        .iter()
+        .map(|c| {
+            let (name, colour, shape) = style(c.key);
+            Entry {
+                text: fit_text(name, c.key),
+                colour,
+                shape: Some(shape),
+                line: true,
+                sim: false,
+            }
+        })
+        .collect();
+    if sim {
+        entries.push(Entry {
+            text: fit_text("simulation (95% interval)", "simulation"),
+            colour: BLACK,
+            shape: None,
+            line: false,
+            sim: true,
+        });
+    }
+    Legend {
+        key: (!curves.is_empty()).then_some(HOLDS_KEY),
+        entries,
+    }
+}
+
+/// The friction regimes as shaded bands: δ = γ I_b/kT = 1 and 10 at γ/ω_b = δ/(I_b ω_b);
+/// overdamped from γ/ω_b = 5.
+fn regime_bands<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    px: &Px,
+    ib: f64,
+    wb: f64,
+) -> DrawResult<(), DB> {
+    let (xa, xb) = (px.x.lo, px.x.hi);
+    let e1 = (1.0 / (ib * wb)).clamp(xa, xb);
+    let e10 = (10.0 / (ib * wb)).clamp(xa, xb);
+    let o = 5f64.clamp(xa, xb);
+    let bands = [
+        (xa, e1, "energy diffusion", RGBColor(230, 240, 255)),
+        (e1, e10, "turnover", RGBColor(255, 245, 225)),
+        (e10, o, "spatial diffusion", RGBColor(235, 250, 235)),
+        (o, xb, "overdamped", RGBColor(245, 235, 250)),
+    ];
+    for (a, b, name, col) in bands {
+        if b <= a {
+            continue;
+        }
+        let (x0, y0) = px.at(a, px.y.hi);
+        let (x1, y1) = px.at(b, px.y.lo);
+        let r = |v: f64| v.round() as i32;
+        area.draw(&Rectangle::new(
+            [(r(x0), r(y0)), (r(x1), r(y1))],
+            col.filled(),
+        ))?;
+        // the name only where the band is wide enough to hold it
+        if x1 - x0 > text_width(name, 14.0) + 8.0 {
+            area.draw(&Text::new(name, (r(x0) + 4, r(y0) + 6), ("sans-serif", 14)))?;
+        }
     }
     Ok(())
 }
 
-/// U(x) with the reactant, barrier, product and target marked and a 1 kT scale bar (`survey`).
-pub fn landscape(
-    pot: &dyn crate::potential::Potential,
-    l: &crate::landscape::Landscape,
-    units: &crate::units::UnitSystem,
-) -> String {
-    let mut buf = String::new();
-    {
-        let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let _ = draw_landscape(&root, pot, l, units);
-        let _ = root.present();
-    }
-    buf
+// ---------------------------------------------------------------------------------------------
+// survey
+
+/// A measured point of the profile with its standard deviation, in internal units (x in the
+/// length unit, U and σ in kT on the same zero as `Potential::u`): drawn with an error bar of
+/// ±σ on the survey picture.
+#[derive(Debug, Clone, Copy)]
+pub struct ProfilePoint {
+    /// position
+    pub x: f64,
+    /// U in kT
+    pub u: f64,
+    /// standard deviation of U in kT
+    pub sigma: f64,
 }
 
-fn draw_landscape<DB: DrawingBackend>(
-    root: &DrawingArea<DB, plotters::coord::Shift>,
-    pot: &dyn crate::potential::Potential,
+/// U(x) with the reactant, barrier, product and target marked and a 1 kT scale bar (`survey`),
+/// titled with the scenario's title (or its file name); `data`, when given, adds measured
+/// points with error bars.
+pub fn landscape(
+    m: &crate::scenario::Model,
     l: &crate::landscape::Landscape,
-    units: &crate::units::UnitSystem,
-) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    data: Option<&[ProfilePoint]>,
+) -> String {
+    use crate::potential::Potential;
+    let pot: &dyn Potential = &m.potential;
+    let units = &m.units;
     let (lo, hi) = pot.domain();
-    let e = |x: f64| units.energy_from_kt(pot.u(x) - l.u_reactant);
+    let e = |u_kt: f64| units.energy_from_kt(u_kt - l.u_reactant);
     let n = 800;
-    let pts: Vec<(f64, f64)> = (0..=n)
+    let curve: Vec<(f64, f64)> = (0..=n)
         .map(|i| {
             let x = lo + (hi - lo) * f64::from(i) / f64::from(n);
-            (x, e(x))
+            (x, e(pot.u(x)))
         })
         .collect();
-    // show up to twice the barrier (walls of high potentials would flatten the picture)
+    // up to twice the barrier (the walls of steep potentials would flatten the picture)
     let top = units.energy_from_kt(2.0 * l.barrier_height.max(1.0));
-    let (ymin, _) = bounds(pts.iter().map(|p| p.1));
+    // down to the lowest marked point and a barrier below it: a potential that keeps falling
+    // beyond the target (a metastable well) would flatten the picture
+    let lowest = [Some(l.target), l.product]
+        .into_iter()
+        .flatten()
+        .map(|x| e(pot.u(x)))
+        .fold(0f64, f64::min);
+    let ymin = curve
+        .iter()
+        .map(|p| p.1)
+        .filter(|v| v.is_finite())
+        .fold(f64::INFINITY, f64::min)
+        .max(lowest - 0.5 * top)
+        .min(lowest);
+    let x = Axis::fit([lo, hi], false, 0.0);
+    // room below the minima for their labels
+    let y = Axis::fit([ymin - 0.12 * top, top], false, 0.0);
     let lu = if units.names.length == "1" {
         "L"
     } else {
         &units.names.length
     };
-    let mut chart = ChartBuilder::on(root)
-        .caption("potential", ("sans-serif", 24))
-        .margin(20)
-        .x_label_area_size(50)
-        .y_label_area_size(80)
-        .build_cartesian_2d(lo..hi, (ymin - 0.05 * top)..top)?;
-    chart
-        .configure_mesh()
-        .x_desc(format!("x ({lu})"))
-        .y_desc(format!("U − U(reactant) ({})", units.names.energy))
-        .label_style(("sans-serif", 16))
-        .draw()?;
-    chart.draw_series(LineSeries::new(
-        pts.into_iter().filter(|p| p.1 <= top),
-        colour(0).stroke_width(2),
-    ))?;
+    let title = m.title.clone().unwrap_or_else(|| {
+        std::path::Path::new(&m.source)
+            .file_name()
+            .map_or_else(|| m.source.clone(), |f| f.to_string_lossy().into_owned())
+    });
+    let xdesc = format!("x ({lu})");
+    let ydesc = format!("U − U(reactant) ({})", units.names.energy);
+    let f = Frame {
+        title: &title,
+        x,
+        y,
+        xdesc: &xdesc,
+        ydesc: &ydesc,
+    };
     let mut marks = vec![
-        ("reactant", l.reactant, colour(2)),
-        ("barrier", l.barrier, colour(3)),
-        ("target", l.target, colour(4)),
+        ("reactant", l.reactant, RGBColor(44, 160, 44)),
+        ("barrier", l.barrier, RGBColor(214, 39, 40)),
     ];
-    if let Some(p) = l.product
-        && (p - l.target).abs() > 1e-9 * (hi - lo)
-    {
-        marks.push(("product", p, colour(1)));
+    match l.product {
+        Some(p) if (p - l.target).abs() > 1e-9 * (hi - lo) => {
+            marks.push(("product", p, RGBColor(255, 127, 14)));
+            marks.push(("target", l.target, RGBColor(148, 103, 189)));
+        }
+        Some(_) => marks.push((
+            "target (product minimum)",
+            l.target,
+            RGBColor(148, 103, 189),
+        )),
+        None => marks.push(("target", l.target, RGBColor(148, 103, 189))),
     }
-    for (name, x, c) in marks {
-        let y = e(x);
-        chart.draw_series(std::iter::once(Circle::new((x, y), 6, c.filled())))?;
-        chart.draw_series(std::iter::once(Text::new(
-            name,
-            (x, y + 0.04 * top),
-            ("sans-serif", 15),
-        )))?;
-    }
-    // a 1 kT scale bar at the right
-    let kt = units.energy_from_kt(1.0);
-    let xb = hi - 0.04 * (hi - lo);
-    let y0 = ymin + 0.1 * top;
-    chart.draw_series(std::iter::once(PathElement::new(
-        vec![(xb, y0), (xb, y0 + kt)],
-        BLACK.stroke_width(3),
-    )))?;
-    chart.draw_series(std::iter::once(Text::new(
-        "1 kT",
-        (xb - 0.07 * (hi - lo), y0 + 0.5 * kt),
-        ("sans-serif", 15),
-    )))?;
-    Ok(())
+    let legend = Legend {
+        entries: Vec::new(),
+        key: None,
+    };
+    render(&legend, |area| {
+        let px = frame(area, &f, &|_, _| Ok(()))?;
+        let mut raw = Raw::default();
+        raw.open_data(&px);
+        let pts: Vec<(f64, f64)> = curve
+            .iter()
+            .filter(|p| p.1.is_finite())
+            .map(|&(x, y)| px.at(x, y_near(&px, y)))
+            .collect();
+        raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
+        if let Some(d) = data {
+            for p in d {
+                let (sx, sy) = px.at(p.x, e(p.u));
+                let lo = px.y_clamped(e(p.u - p.sigma));
+                let hi = px.y_clamped(e(p.u + p.sigma));
+                raw.line((sx, lo), (sx, hi), BLACK, 1.0, "errorbar");
+                if px.contains(p.x, e(p.u)) {
+                    let _ = writeln!(
+                        raw.0,
+                        r##"<g class="marker data" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="2.5" fill="#000000"/></g>"##
+                    );
+                }
+            }
+        }
+        raw.close();
+        // the points and their labels, placed clear of each other and of the curve
+        let centres: Vec<(f64, f64)> = marks
+            .iter()
+            .map(|&(_, x, _)| px.at(x, e(pot.u(x))))
+            .collect();
+        for ((name, _, c), &(cx, cy)) in marks.iter().zip(&centres) {
+            let _ = writeln!(
+                raw.0,
+                r#"<g class="point" data-name="{name}" transform="translate({cx:.1},{cy:.1})"><circle cx="0" cy="0" r="6" fill="{}"/></g>"#,
+                hex(*c)
+            );
+        }
+        let names: Vec<&str> = marks.iter().map(|m| m.0).collect();
+        for (i, b) in place_labels(&names, &centres, &pts, &px)
+            .into_iter()
+            .enumerate()
+        {
+            let (cx, cy) = centres[i];
+            // a leader line when the label had to move away from its point
+            let (bx, by) = (b[0] + b[2] / 2.0, b[1] + b[3] / 2.0);
+            if (bx - cx).abs() > b[2] / 2.0 + 12.0 || (by - cy).abs() > b[3] / 2.0 + 12.0 {
+                let ty = if by < cy {
+                    b[1] + b[3] + 1.0
+                } else {
+                    b[1] - 1.0
+                };
+                raw.line((cx, cy), (bx, ty), RGBColor(120, 120, 120), 0.8, "leader");
+            }
+            raw.text(
+                (bx, b[1] + 0.8 * LABEL_FONT),
+                names[i],
+                LABEL_FONT,
+                "middle",
+                "point-label",
+            );
+        }
+        // the 1 kT bar at the lower right
+        let kt = units.energy_from_kt(1.0);
+        let xb = hi - 0.04 * (hi - lo);
+        let y0 = ymin + 0.1 * top;
+        let (bx, by0) = px.at(xb, y0);
+        let (_, by1) = px.at(xb, y0 + kt);
+        raw.line((bx, by0), (bx, by1), BLACK, 3.0, "scale-bar");
+        raw.text(
+            (bx - 8.0, (by0 + by1) / 2.0 + 5.0),
+            "1 kT",
+            15.0,
+            "end",
+            "scale-label",
+        );
+        Ok(raw)
+    })
 }
+
+/// Values beyond the axis are drawn just beyond it (the clip path cuts them off cleanly).
+fn y_near(px: &Px, y: f64) -> f64 {
+    let m = 0.05 * (px.y.hi - px.y.lo);
+    y.clamp(px.y.lo - m, px.y.hi + m)
+}
+
+const LABEL_FONT: f64 = 14.0;
+
+fn boxes_overlap(a: [f64; 4], b: [f64; 4], gap: f64) -> bool {
+    a[0] < b[0] + b[2] + gap
+        && b[0] < a[0] + a[2] + gap
+        && a[1] < b[1] + b[3] + gap
+        && b[1] < a[1] + a[3] + gap
+}
+
+/// Label boxes [x, y, w, h] (top left, pixels) for points at `centres`: the first of above,
+/// below, right, left and then further above or below that overlaps no other label and no
+/// point marker and stays inside the plotting area, preferring places the curve does not cross.
+fn place_labels(
+    names: &[&str],
+    centres: &[(f64, f64)],
+    curve: &[(f64, f64)],
+    px: &Px,
+) -> Vec<[f64; 4]> {
+    let h = LABEL_FONT;
+    let markers: Vec<[f64; 4]> = centres
+        .iter()
+        .map(|&(x, y)| [x - 7.0, y - 7.0, 14.0, 14.0])
+        .collect();
+    let mut placed: Vec<[f64; 4]> = Vec::new();
+    // left to right, so neighbours are placed next to each other
+    let mut order: Vec<usize> = (0..names.len()).collect();
+    order.sort_by(|&a, &b| centres[a].0.total_cmp(&centres[b].0));
+    let mut out = vec![[0.0; 4]; names.len()];
+    for i in order {
+        let w = text_width(names[i], LABEL_FONT);
+        let (cx, cy) = centres[i];
+        let mut cands = vec![
+            [cx - w / 2.0, cy - 10.0 - h],
+            [cx - w / 2.0, cy + 10.0],
+            [cx + 11.0, cy - h / 2.0],
+            [cx - 11.0 - w, cy - h / 2.0],
+        ];
+        for k in 1..=10 {
+            let d = 10.0 + f64::from(k) * (h + 4.0);
+            cands.push([cx - w / 2.0, cy - d - h]);
+            cands.push([cx - w / 2.0, cy + d]);
+        }
+        let inside = |b: &[f64; 4]| {
+            b[0] >= px.x0 + 2.0
+                && b[0] + b[2] <= px.x1 - 2.0
+                && b[1] >= px.y0 + 2.0
+                && b[1] + b[3] <= px.y1 - 2.0
+        };
+        let free = |b: &[f64; 4]| {
+            inside(b)
+                && !placed.iter().any(|p| boxes_overlap(*b, *p, 3.0))
+                && !markers.iter().any(|m| boxes_overlap(*b, *m, 1.0))
+        };
+        let crossings = |b: &[f64; 4]| {
+            curve
+                .iter()
+                .filter(|(x, y)| *x >= b[0] && *x <= b[0] + b[2] && *y >= b[1] && *y <= b[1] + b[3])
+                .count()
+        };
+        let boxes: Vec<[f64; 4]> = cands.iter().map(|c| [c[0], c[1], w, h]).collect();
+        let best = boxes
+            .iter()
+            .find(|b| free(b) && crossings(b) == 0)
+            .or_else(|| {
+                boxes
+                    .iter()
+                    .filter(|b| free(b))
+                    .min_by_key(|b| crossings(b))
+            })
+            .copied()
+            .unwrap_or(boxes[0]);
+        placed.push(best);
+        out[i] = best;
+    }
+    out
+}
+
+// ---------------------------------------------------------------------------------------------
+// survival
 
 /// The survival curve of a brute-force run (fraction not yet escaped, log scale) with the fitted
 /// exponential e^{−kt} (`simulate --plot`).
-pub fn survival(outcomes: &[crate::stats::Outcome], dt: f64, rate: f64, time_unit: &str) -> String {
-    let mut buf = String::new();
-    {
-        let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let _ = draw_survival(&root, outcomes, dt, rate, time_unit);
-        let _ = root.present();
-    }
-    buf
-}
-
-fn draw_survival<DB: DrawingBackend>(
-    root: &DrawingArea<DB, plotters::coord::Shift>,
-    outcomes: &[crate::stats::Outcome],
-    dt: f64,
-    rate: f64,
-    tu: &str,
-) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+pub fn survival(outcomes: &[crate::stats::Outcome], dt: f64, rate: f64, tu: &str) -> String {
     let n = outcomes.len().max(1) as f64;
     let mut t: Vec<f64> = outcomes
         .iter()
@@ -472,41 +1207,151 @@ fn draw_survival<DB: DrawingBackend>(
         )
         .filter(|p| p.1 >= floor)
         .collect();
-    let mut chart = ChartBuilder::on(root)
-        .caption("survival: fraction not yet escaped", ("sans-serif", 24))
-        .margin(20)
-        .x_label_area_size(50)
-        .y_label_area_size(80)
-        .build_cartesian_2d(0.0..tmax, (floor..1.2).log_scale())?;
-    chart
-        .configure_mesh()
-        .x_desc(format!("t ({tu})"))
-        .y_desc("S(t)")
-        .label_style(("sans-serif", 16))
-        .draw()?;
-    chart
-        .draw_series(LineSeries::new(steps, BLACK.stroke_width(2)))?
-        .label("simulated")
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
-    let c = colour(3);
-    chart
-        .draw_series(LineSeries::new(
-            (0..=200)
-                .map(|i| {
-                    let x = tmax * f64::from(i) / 200.0;
-                    (x, (-rate * x).exp())
-                })
-                .filter(|p| p.1 >= floor),
-            c.stroke_width(2),
-        ))?
-        .label(format!("exp(−k t), k = {rate:.4e} /{tu}"))
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2)));
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .label_font(("sans-serif", 14))
-        .position(SeriesLabelPosition::UpperRight)
-        .draw()?;
-    Ok(())
+    let fitted: Vec<(f64, f64)> = (0..=200)
+        .map(|i| {
+            let x = tmax * f64::from(i) / 200.0;
+            (x, (-rate * x).exp())
+        })
+        .filter(|p| p.1 >= floor)
+        .collect();
+    let red = RGBColor(214, 39, 40);
+    let legend = Legend {
+        entries: vec![
+            Entry {
+                text: "simulated".into(),
+                colour: BLACK,
+                shape: None,
+                line: true,
+                sim: false,
+            },
+            Entry {
+                text: format!("exp(−k t), k = {} /{tu}", sig_str(rate, 4)),
+                colour: red,
+                shape: None,
+                line: true,
+                sim: false,
+            },
+        ],
+        key: None,
+    };
+    let xdesc = format!("t ({tu})");
+    let f = Frame {
+        title: "survival: fraction not yet escaped",
+        x: Axis::fit([0.0, tmax], false, 0.0),
+        y: Axis {
+            lo: floor,
+            hi: 1.2,
+            log: true,
+        },
+        xdesc: &xdesc,
+        ydesc: "S(t)",
+    };
+    render(&legend, |area| {
+        let px = frame(area, &f, &|_, _| Ok(()))?;
+        let mut raw = Raw::default();
+        raw.open_data(&px);
+        let at =
+            |v: &[(f64, f64)]| -> Vec<(f64, f64)> { v.iter().map(|&(x, y)| px.at(x, y)).collect() };
+        raw.polyline(&at(&steps), BLACK, false, "curve", "simulated");
+        raw.polyline(&at(&fitted), red, false, "curve", "fitted");
+        raw.close();
+        Ok(raw)
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // common practice, no source: the labels a person would write
+    #[test]
+    fn ticks_are_rounded() {
+        assert_eq!(tick(4.999_999_999_999_999_6e-6, 1e-5), "5e-6");
+        assert_eq!(tick(0.25, 1.0), "0.25");
+        assert_eq!(tick(1500.0, 1e4), "1.5e3");
+        assert_eq!(tick(0.300_000_000_000_000_04, 1.0), "0.3");
+        assert_eq!(tick(-2.000_000_000_000_000_4, 6.0), "-2");
+        assert_eq!(tick(40.0, 100.0), "40");
+        assert_eq!(tick(0.01, 1.0), "0.01");
+        assert_eq!(tick(0.005, 1.0), "0.005");
+        assert_eq!(tick(0.0005, 1.0), "5e-4");
+        assert_eq!(tick(1.234_567e-7, 1e-6), "1.23457e-7");
+        // rounding noise next to zero on a linear axis through zero
+        assert_eq!(tick(2.2e-17, 6.0), "0");
+        assert_eq!(tick(1e-300, 1e-299), "1e-300");
+    }
+
+    // common practice, no source: measured points appear as markers with ±σ bars, on the
+    // picture's energy scale (U − U(reactant))
+    #[test]
+    fn survey_draws_measured_points_with_error_bars() {
+        let m = crate::scenario::Model::from_text(
+            "[particle]\ndiffusion = 1.0\n[potential]\nexpr = \"6*(x^2 - 1)^2\"\ndomain = [-2.0, 2.0]\n[states]\nstart = -1.0\n",
+            "w.toml",
+            std::path::Path::new("."),
+            &[],
+        )
+        .unwrap();
+        let l =
+            crate::landscape::Landscape::analyse(&m.potential, m.start, m.target, m.mass).unwrap();
+        let pts = [
+            ProfilePoint {
+                x: -1.0,
+                u: 0.0,
+                sigma: 0.5,
+            },
+            ProfilePoint {
+                x: 0.0,
+                u: 6.0,
+                sigma: 1.0,
+            },
+            ProfilePoint {
+                x: 0.5,
+                u: 3.4,
+                sigma: 0.2,
+            },
+        ];
+        let svg = landscape(&m, &l, Some(&pts));
+        let doc = roxmltree::Document::parse(&svg).expect("well-formed XML");
+        let class = |c: &str| {
+            doc.descendants()
+                .filter(|n| n.attribute("class") == Some(c))
+                .collect::<Vec<_>>()
+        };
+        let marks = class("marker data");
+        assert_eq!(marks.len(), 3);
+        let bars = class("errorbar");
+        assert_eq!(bars.len(), 3);
+        // the barrier point's bar spans ±1 kT: twice the reactant's ±0.5 kT, in pixels
+        let len = |n: &roxmltree::Node| {
+            let y = |k: &str| n.attribute(k).unwrap().parse::<f64>().unwrap();
+            (y("y1") - y("y2")).abs()
+        };
+        assert!((len(&bars[1]) / len(&bars[0]) - 2.0).abs() < 0.02);
+        // no title: the file name
+        assert!(
+            doc.descendants()
+                .any(|n| n.is_text() && n.text().map(str::trim) == Some("w.toml"))
+        );
+    }
+
+    #[test]
+    fn axes_are_always_finite_and_ordered() {
+        for (vals, log) in [
+            (vec![-3.0, 3.0], false),
+            (vec![-3.0, -0.5], false),
+            (vec![0.0, 0.0], false),
+            (vec![f64::NAN], true),
+            (vec![-1.0, 0.0], true),
+            (vec![2.0], true),
+            (vec![1e-320, 1e308], true),
+        ] {
+            let a = Axis::fit(vals.iter().copied(), log, 0.05);
+            assert!(
+                a.lo.is_finite() && a.hi.is_finite() && a.lo < a.hi,
+                "{vals:?}: {a:?}"
+            );
+            assert!(!log || a.lo > 0.0, "{vals:?}: {a:?}");
+        }
+    }
 }

@@ -2,7 +2,9 @@
 
 use super::{Header, LandscapeOut, RateReport, SurveyReport};
 use crate::units::UnitNames;
-use comfy_table::{Cell, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use comfy_table::{
+    Cell, ColumnConstraint, ContentArrangement, Table, Width, presets::UTF8_FULL_CONDENSED,
+};
 use std::fmt::Write;
 
 /// Six significant digits, switching to scientific notation outside [1e-3, 1e6).
@@ -20,6 +22,67 @@ pub fn num(v: f64) -> String {
     } else {
         format!("{v:.5e}")
     }
+}
+
+/// `v` rounded to `n` significant digits (1..=17).
+pub(crate) fn round_sig(v: f64, n: usize) -> f64 {
+    format!("{:.*e}", n.clamp(1, 17) - 1, v)
+        .parse()
+        .unwrap_or(v)
+}
+
+/// `v` with `n` significant digits and no trailing zeros: decimal from 0.001 to below `dec_max`,
+/// otherwise mantissa e exponent (0.00354, 7.03, 1.23e-4, 1.5e3).
+pub(crate) fn sig(v: f64, n: usize, dec_max: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let s = format!("{:.*e}", n.clamp(1, 17) - 1, v);
+    let (m, e) = s.split_once('e').unwrap_or((&s, "0"));
+    let e: i32 = e.parse().unwrap_or(0);
+    let trim = |t: &str| -> String {
+        if t.contains('.') {
+            t.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            t.to_string()
+        }
+    };
+    if e >= -3 && 10f64.powi(e) < dec_max {
+        let d = (n as i32 - 1 - e).max(0) as usize;
+        trim(&format!("{v:.d$}"))
+    } else {
+        format!("{}e{e}", trim(m))
+    }
+}
+
+/// A scan cell: three significant digits.
+fn short(v: f64) -> String {
+    sig(v, 3, 1e5)
+}
+
+/// A scan cell with its interval, relative when that reads well: "5.01e-5 −11/+12%",
+/// "0.0311 ±6%"; otherwise "v [lo, hi]" (a value near zero or an interval of more than a factor
+/// 10).
+fn short_iv(v: f64, [lo, hi]: [f64; 2]) -> String {
+    let (down, up) = ((v - lo) / v.abs() * 100.0, (hi - v) / v.abs() * 100.0);
+    if v != 0.0 && (0.0..=90.0).contains(&down) && (0.0..=900.0).contains(&up) {
+        let (d, u) = (sig(down, 2, 1e5), sig(up, 2, 1e5));
+        if d == u {
+            format!("{} ±{d}%", short(v))
+        } else {
+            format!("{} −{d}/+{u}%", short(v))
+        }
+    } else {
+        format!("{} [{}, {}]", short(v), short(lo), short(hi))
+    }
+}
+
+/// The scanned values with the fewest significant digits (3 to 6) that keep them apart.
+fn scan_values(vals: &[f64]) -> Vec<String> {
+    (3..=6)
+        .map(|n| vals.iter().map(|&v| sig(v, n, 1e5)).collect::<Vec<_>>())
+        .find(|s| s.windows(2).all(|w| w[0] != w[1]))
+        .unwrap_or_else(|| vals.iter().map(|&v| sig(v, 6, 1e5)).collect())
 }
 
 /// "v [lo, hi]".
@@ -54,6 +117,63 @@ fn table() -> Table {
         .set_content_arrangement(ContentArrangement::Dynamic)
         .set_width(110);
     t
+}
+
+/// Sets column widths so that comfy-table wraps only at spaces and never breaks a word: every
+/// column at least as wide as its longest word (heading or cell). Then, within the table's
+/// width, the columns whose cells need the least extra room to fit on one line get it first, so
+/// as few cells as possible wrap (headings may).
+fn whole_words(t: &mut Table) {
+    let longest = |s: &str| {
+        s.split_whitespace()
+            .map(|w| w.chars().count())
+            .max()
+            .unwrap_or(0)
+    };
+    let line = |s: &str| s.lines().map(|l| l.chars().count()).max().unwrap_or(0);
+    let mut min: Vec<usize> = Vec::new();
+    let mut want: Vec<usize> = Vec::new();
+    let header = t.header().map(|h| (h, true));
+    for (row, is_head) in header.into_iter().chain(t.row_iter().map(|r| (r, false))) {
+        for (i, c) in row.cell_iter().enumerate() {
+            if min.len() <= i {
+                min.resize(i + 1, 0);
+                want.resize(i + 1, 0);
+            }
+            let text = c.content();
+            min[i] = min[i].max(longest(&text));
+            if !is_head {
+                want[i] = want[i].max(line(&text));
+            }
+        }
+    }
+    // a space of padding on each side and one border per column, and the last border
+    let frame = 3 * min.len() + 1;
+    let mut room = t
+        .width()
+        .map_or(usize::MAX, usize::from)
+        .saturating_sub(frame + min.iter().sum::<usize>());
+    let mut width = min.clone();
+    let mut order: Vec<usize> = (0..min.len()).collect();
+    order.sort_by_key(|&i| want[i].saturating_sub(min[i]));
+    for i in order {
+        let extra = want[i].saturating_sub(min[i]).min(room);
+        width[i] += extra;
+        room -= extra;
+    }
+    for (i, w) in width.into_iter().enumerate() {
+        if let Some(col) = t.column_mut(i) {
+            // the boundary counts the padding
+            let w = u16::try_from(w + 2).unwrap_or(u16::MAX);
+            col.set_constraint(ColumnConstraint::LowerBoundary(Width::Fixed(w)));
+        }
+    }
+}
+
+/// Writes a finished table (words kept whole).
+fn show(out: &mut String, mut t: Table) {
+    whole_words(&mut t);
+    let _ = writeln!(out, "{t}");
 }
 
 fn header(out: &mut String, h: &Header, names: &UnitNames) {
@@ -133,7 +253,7 @@ fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
     };
     t.add_row(vec![Cell::new(rule), Cell::new(num(l.target))]);
     t.add_row(vec![Cell::new("reflecting wall"), Cell::new(num(l.wall))]);
-    let _ = writeln!(out, "{t}");
+    show(out, t);
     let mut s = table();
     s.set_header(vec!["landscape", "value", "unit"]);
     let rows: Vec<(&str, String, String)> = vec![
@@ -159,7 +279,7 @@ fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
     for (k, v, un) in rows {
         s.add_row(vec![k.to_string(), v, un]);
     }
-    let _ = writeln!(out, "{s}");
+    show(out, s);
 }
 
 fn warnings(out: &mut String, w: &[String]) {
@@ -224,7 +344,7 @@ pub fn rate(r: &RateReport) -> String {
             Cell::new(&row.note),
         ]);
     }
-    let _ = writeln!(out, "{t}");
+    show(&mut out, t);
     let _ = writeln!(
         out,
         "exact overdamped MFPT reactant → target: {} {}",
@@ -300,7 +420,7 @@ fn uncertainty(
             iv(i.ci95),
         ]);
     }
-    let _ = writeln!(out, "{t}");
+    show(out, t);
     for d in &q.decompositions {
         if let (Some(b), Some(p), Some(c)) =
             (d.barrier_share, d.prefactor_share, d.covariance_share)
@@ -432,7 +552,7 @@ fn periodic_theory(out: &mut String, p: &super::PeriodicOut, u: &U) {
     for (a, b, c, d) in rows {
         t.add_row(vec![a, b, c, d.to_string()]);
     }
-    let _ = writeln!(out, "{t}");
+    show(out, t);
 }
 
 fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
@@ -494,7 +614,7 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
                 _ => "—".into(),
             },
         ]);
-        let _ = writeln!(out, "{t}");
+        show(out, t);
     }
     if let Some(f) = &s.ffs {
         let _ = writeln!(
@@ -528,7 +648,7 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
                 num(st.probability),
             ]);
         }
-        let _ = writeln!(out, "{t}");
+        show(out, t);
     }
     if let Some(k) = &s.reactive_flux {
         let _ = writeln!(
@@ -657,28 +777,9 @@ pub fn compare(r: &super::CompareReport) -> String {
         ]);
     }
     for c in &r.comparison {
-        t.add_row(vec![
-            c.label.to_string(),
-            opt(c.rate),
-            match c.against {
-                "none" => "— (not counted)".to_string(),
-                a => a.to_string(),
-            },
-            opt(c.ratio_to_simulation),
-            c.ratio_ci95
-                .map(|[a, b]| format!("[{}, {}]", num(a), num(b)))
-                .unwrap_or_else(|| "—".into()),
-            if c.valid { "yes" } else { "no" }.into(),
-            if c.agrees { "yes" } else { "no" }.into(),
-            format!(
-                "{} [{}, {}]",
-                if c.consistent { "yes" } else { "no" },
-                num(c.accuracy_band.0),
-                c.accuracy_band.1.map_or_else(|| "∞".into(), num)
-            ),
-        ]);
+        t.add_row(comparison_cells(c, r));
     }
-    let _ = writeln!(out, "{t}");
+    show(&mut out, t);
     if let (Some(pt), Some(ps)) = (&r.theory.periodic, &s.periodic) {
         let mut t = table();
         t.set_header(vec![
@@ -743,10 +844,70 @@ pub fn compare(r: &super::CompareReport) -> String {
                 );
             }
         }
-        let _ = writeln!(out, "{t}");
+        show(&mut out, t);
     }
     let _ = writeln!(out, "verdict: {}", r.verdict);
     out
+}
+
+/// One row of the comparison table. A row with nothing to compare (no rate, or no simulated rate
+/// to set it against) says so in every column, with the reason.
+fn comparison_cells(c: &super::ComparisonRow, r: &super::CompareReport) -> Vec<String> {
+    let na = || "n/a".to_string();
+    let holds = if c.valid { "yes" } else { "no" }.to_string();
+    let Some(k) = c.rate else {
+        let why = r
+            .theory
+            .formulas
+            .iter()
+            .find(|f| f.key == c.method)
+            .map_or("no rate here", |f| f.note.as_str());
+        return vec![
+            c.label.to_string(),
+            "n/a (no rate)".into(),
+            format!("nothing: {why}"),
+            na(),
+            na(),
+            holds,
+            na(),
+            na(),
+        ];
+    };
+    if c.against == "none" {
+        return vec![
+            c.label.to_string(),
+            num(k),
+            "nothing: no transitions counted (simulation.well_to_well = true counts them)".into(),
+            na(),
+            na(),
+            holds,
+            na(),
+            na(),
+        ];
+    }
+    let (ratio, ci) = match (c.ratio_to_simulation, c.ratio_ci95) {
+        (Some(q), Some([a, b])) => (num(q), format!("[{}, {}]", num(a), num(b))),
+        (Some(q), None) => (num(q), "n/a (open simulated interval)".into()),
+        _ => (
+            "n/a (no simulated escape)".into(),
+            "n/a (no simulated escape)".into(),
+        ),
+    };
+    vec![
+        c.label.to_string(),
+        num(k),
+        c.against.to_string(),
+        ratio,
+        ci,
+        holds,
+        if c.agrees { "yes" } else { "no" }.into(),
+        format!(
+            "{} [{}, {}]",
+            if c.consistent { "yes" } else { "no" },
+            num(c.accuracy_band.0),
+            c.accuracy_band.1.map_or_else(|| "∞".into(), num)
+        ),
+    ]
 }
 
 /// Renders `merge` (times in the run's time unit).
@@ -782,13 +943,46 @@ pub fn merge(r: &super::MergeReport) -> String {
         },
         opt(s.median),
     ]);
-    let _ = writeln!(out, "{t}");
+    show(&mut out, t);
     warnings(&mut out, &r.warnings);
     out
 }
 
-/// Renders `scan`.
-pub fn scan(r: &crate::scan::ScanReport) -> String {
+/// Short heading of each rate in scan tables.
+fn rate_heading(key: &str) -> &'static str {
+    match key {
+        "tst" => "TST",
+        "tst_exact" => "exact TST",
+        "kramers" => "Kramers",
+        "smoluchowski" => "Smoluchowski",
+        "energy_diffusion" => "energy diffusion",
+        "turnover" => "turnover",
+        "pgh" => "PGH",
+        "mfpt" => "1/MFPT",
+        "grote_hynes" => "Grote-Hynes",
+        "well_to_well" => "well to well",
+        _ => "rate",
+    }
+}
+
+/// Short heading with units for the scanned value.
+fn value_heading(r: &crate::scan::ScanReport, u: &U) -> String {
+    match r.key.as_str() {
+        "particle.friction" => format!("γ (1/{})", u.t),
+        "particle.diffusion" => format!("D ({}²/{})", u.l, u.t),
+        "particle.mass" => "m".into(),
+        "units.temperature" => "T (K)".into(),
+        "potential.tilt" => format!("F ({}/{})", u.e, u.l),
+        // the last part of the key; the line above the table names all of it
+        k => k.rsplit('.').next().unwrap_or(k).to_string(),
+    }
+}
+
+/// Renders `scan`: by default the scanned value, each rate that holds somewhere (shown where it
+/// holds), periodic drift and diffusion, and the simulated rates, in 100 columns; `all` adds the
+/// regime, E_b/kT and every rate at every point. Numbers have three significant digits (the
+/// CSV and JSON keep every digit).
+pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
     use crate::scan::{RATE_KEYS, rate_of};
     let u = U::new(&r.units);
     let mut out = String::new();
@@ -799,21 +993,24 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
         r.points.len(),
         r.kind
     );
-    // a scan row carries every rate: give it more room than the other tables
     let mut t = table();
-    t.set_width(160);
-    let mut head = vec![r.key.clone(), "regime".into(), "E_b/kT".into()];
-    let present: Vec<&str> = RATE_KEYS
+    t.set_width(if all { 160 } else { 100 });
+    let mut head = vec![value_heading(r, &u)];
+    if all {
+        head.push("regime".into());
+        head.push("E_b/kT".into());
+    }
+    let keys: Vec<&str> = RATE_KEYS
         .iter()
         .copied()
-        .filter(|k| r.points.iter().any(|p| rate_of(&p.rates, k).is_some()))
+        .filter(|k| {
+            r.points
+                .iter()
+                .any(|p| rate_of(&p.rates, k).is_some() && (all || p.holds.contains(k)))
+        })
         .collect();
-    for k in &present {
-        head.push(format!("{k} (1/{})", u.t));
-    }
-    let unc = r.points.iter().any(|p| p.uncertainty.is_some());
-    if unc {
-        head.push(format!("1/MFPT 95% from σ_U (1/{})", u.t));
+    for k in &keys {
+        head.push(format!("{} (1/{})", rate_heading(k), u.t));
     }
     let per = r.points.iter().any(|p| p.periodic.is_some());
     if per {
@@ -821,90 +1018,119 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
         head.push(format!("D_eff ({}²/{})", u.l, u.t));
         head.push(format!("k+ / k− (1/{})", u.t));
     }
-    let sim = r.points.iter().any(|p| p.simulation.is_some());
-    if sim {
-        head.push(format!("simulated escape (1/{}) [95%]", u.t));
-    }
-    let sim_ww = r.points.iter().any(|p| {
-        p.simulation
-            .as_ref()
-            .is_some_and(|s| s.well_to_well.is_some())
-    });
-    if sim_ww {
-        head.push(format!("simulated well-to-well (1/{}) [95%]", u.t));
-    }
-    let sim_per = r
+    let sims: Vec<&crate::scan::SimPoint> = r
         .points
         .iter()
-        .any(|p| p.simulation.as_ref().is_some_and(|s| s.periodic.is_some()));
+        .filter_map(|p| p.simulation.as_ref())
+        .collect();
+    if !sims.is_empty() {
+        head.push(format!("sim. (1/{})", u.t));
+    }
+    let sim_ww = sims.iter().any(|s| s.well_to_well.is_some());
+    if sim_ww {
+        head.push(format!("sim. well to well (1/{})", u.t));
+    }
+    let sim_per = sims.iter().any(|s| s.periodic.is_some());
     if sim_per {
-        head.push("simulated drift, D_eff [95%]".to_string());
+        head.push(format!("sim. drift ({}/{})", u.l, u.t));
+        head.push(format!("sim. D_eff ({}²/{})", u.l, u.t));
     }
     t.set_header(head);
-    let iv = |v: Option<[f64; 2]>| {
-        v.map_or_else(|| "—".into(), |[a, b]| format!("[{}, {}]", num(a), num(b)))
+    let dash = || "—".to_string();
+    let iv_or = |v: Option<f64>, ci: Option<[f64; 2]>| match (v, ci) {
+        (Some(v), Some(c)) => short_iv(v, c),
+        (Some(v), None) => short(v),
+        _ => dash(),
     };
-    for p in &r.points {
-        let mut row = vec![num(p.value), p.regime.to_string(), num(p.barrier_height_kt)];
-        for k in &present {
-            row.push(opt(rate_of(&p.rates, k)));
+    let mut hidden = false;
+    let values: Vec<f64> = r.points.iter().map(|p| p.value).collect();
+    for (p, value) in r.points.iter().zip(scan_values(&values)) {
+        let mut row = vec![value];
+        if all {
+            row.push(p.regime.to_string());
+            row.push(short(p.barrier_height_kt));
         }
-        if unc {
-            row.push(iv(p
+        for k in &keys {
+            let ci = p
                 .uncertainty
                 .as_ref()
-                .and_then(|v| v.iter().find(|i| i.key == "mfpt"))
-                .map(|i| i.ci95)));
+                .and_then(|v| v.iter().find(|i| i.key == *k))
+                .map(|i| i.ci95);
+            let v = rate_of(&p.rates, k);
+            if all || p.holds.contains(k) {
+                row.push(iv_or(v, ci));
+            } else {
+                hidden |= v.is_some();
+                row.push(dash());
+            }
         }
         if per {
             let q = p.periodic.as_ref();
-            row.push(q.map_or_else(|| "—".into(), |q| num(q.drift)));
-            row.push(opt(q.and_then(|q| q.effective_diffusion)));
-            row.push(q.map_or_else(
-                || "—".into(),
-                |q| format!("{} / {}", opt(q.hop_forward), opt(q.hop_backward)),
-            ));
+            row.push(q.map_or_else(dash, |q| short(q.drift)));
+            row.push(
+                q.and_then(|q| q.effective_diffusion)
+                    .map_or_else(dash, short),
+            );
+            row.push(q.map_or_else(dash, |q| {
+                let o = |v: Option<f64>| v.map_or_else(dash, short);
+                format!("{} / {}", o(q.hop_forward), o(q.hop_backward))
+            }));
         }
-        if sim {
-            row.push(p.simulation.as_ref().map_or_else(
-                || "—".into(),
-                |s| {
-                    format!(
-                        "{} [{}, {}] ({})",
-                        num(s.rate),
-                        num(s.rate_ci95[0]),
-                        num(s.rate_ci95[1]),
-                        s.method
-                    )
-                },
-            ));
+        let s = p.simulation.as_ref();
+        if !sims.is_empty() {
+            row.push(s.map_or_else(dash, |s| short_iv(s.rate, s.rate_ci95)));
         }
         if sim_ww {
-            let s = p.simulation.as_ref();
-            row.push(iv(s.and_then(|s| s.well_to_well_ci95)).replacen(
-                '[',
-                &format!("{} [", opt(s.and_then(|s| s.well_to_well))),
-                1,
+            row.push(iv_or(
+                s.and_then(|s| s.well_to_well),
+                s.and_then(|s| s.well_to_well_ci95),
             ));
         }
         if sim_per {
-            let q = p.simulation.as_ref().and_then(|s| s.periodic.as_ref());
-            row.push(q.map_or_else(
-                || "—".into(),
-                |q| {
-                    format!(
-                        "{} {}, {} {}",
-                        num(q.drift),
-                        iv(q.drift_ci95),
-                        opt(q.effective_diffusion),
-                        iv(q.effective_diffusion_ci95)
-                    )
-                },
-            ));
+            let q = s.and_then(|s| s.periodic.as_ref());
+            row.push(q.map_or_else(dash, |q| iv_or(Some(q.drift), q.drift_ci95)));
+            row.push(q.map_or_else(dash, |q| {
+                iv_or(q.effective_diffusion, q.effective_diffusion_ci95)
+            }));
         }
         t.add_row(row);
     }
-    let _ = writeln!(out, "{t}");
+    show(&mut out, t);
+    if r.points.iter().any(|p| p.uncertainty.is_some()) {
+        let _ = writeln!(
+            out,
+            "rates with an interval: 95% interval from the profile's sigma_U"
+        );
+    }
+    if !sims.is_empty() {
+        let mut methods: Vec<(&str, usize)> = Vec::new();
+        for s in &sims {
+            match methods.iter_mut().find(|(m, _)| *m == s.method) {
+                Some(e) => e.1 += 1,
+                None => methods.push((s.method, 1)),
+            }
+        }
+        let m: Vec<String> = methods
+            .iter()
+            .map(|(m, n)| format!("{m} at {n} point{}", if *n == 1 { "" } else { "s" }))
+            .collect();
+        let _ = writeln!(
+            out,
+            "sim.: simulated rates with their 95% intervals; escape rate by {}",
+            m.join(", ")
+        );
+    }
+    if hidden {
+        let _ = writeln!(
+            out,
+            "—: the formula does not hold at that point (--all-columns shows every rate everywhere)"
+        );
+    } else if keys.is_empty() && !all {
+        let _ = writeln!(
+            out,
+            "no rate formula holds at any point of this scan (--all-columns shows them all)"
+        );
+    }
     if !r.fits.is_empty() {
         let (what, unit, pre) = match r.kind {
             crate::scan::Kind::Temperature => ("apparent E_a", u.e.to_string(), "prefactor A"),
@@ -931,7 +1157,7 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
                 ),
             ]);
         }
-        let _ = writeln!(out, "{f}");
+        show(&mut out, f);
     }
     for n in &r.notes {
         let _ = writeln!(out, "note: {n}");

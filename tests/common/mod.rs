@@ -18,6 +18,11 @@ pub fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
 
 /// Runs the binary with `args` and parses its JSON output (the run must succeed).
 pub fn json(args: &[&str]) -> serde_json::Value {
+    serde_json::from_str(&stdout(args)).unwrap()
+}
+
+/// Runs the binary with `args` and returns its standard output (the run must succeed).
+pub fn stdout(args: &[&str]) -> String {
     let out = assert_cmd::Command::cargo_bin("escapade")
         .unwrap()
         .args(args)
@@ -28,7 +33,14 @@ pub fn json(args: &[&str]) -> serde_json::Value {
         "{args:?}: {}",
         String::from_utf8_lossy(&out.stderr)
     );
-    serde_json::from_slice(&out.stdout).unwrap()
+    String::from_utf8(out.stdout).unwrap()
+}
+
+/// The path of a file in examples/.
+pub fn example(name: &str) -> std::path::PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("examples")
+        .join(name)
 }
 
 /// Mean and its standard error by batch means (50 batches), for correlated samples.
