@@ -83,7 +83,11 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass)
                 .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             if let Some(path) = plot {
-                write_file(&path, &escapade::report::svg::landscape(&m, &l, None))?;
+                let rows = escapade::report::svg::fitted_rows(&m);
+                write_file(
+                    &path,
+                    &escapade::report::svg::landscape(&m, &l, rows.as_deref()),
+                )?;
             }
             let r = SurveyReport::new(&m, &l);
             ok(if common.json {

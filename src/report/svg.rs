@@ -533,8 +533,8 @@ impl Legend {
                 raw.line((x, y), (x + SAMPLE, y), e.colour, 2.0, "legend-line");
             }
             if e.sim {
-                raw.line((mid, y - 7.0), (mid, y + 7.0), BLACK, 1.2, "legend-line");
-                raw.marker(Shape::Circle, (mid, y), BLACK, true, "marker", "simulation");
+                raw.line((mid, y - 7.0), (mid, y + 7.0), e.colour, 1.2, "legend-line");
+                raw.marker(Shape::Circle, (mid, y), e.colour, true, "marker", "simulation");
             } else if let Some(s) = e.shape {
                 raw.marker(s, (mid, y), e.colour, true, "marker", "");
             }
@@ -944,6 +944,36 @@ pub struct ProfilePoint {
     pub sigma: f64,
 }
 
+/// Most table rows drawn as points on the survey picture (more would hide the curve): every k-th
+/// row is drawn, k chosen to stay below this.
+const MAX_DRAWN_ROWS: usize = 120;
+
+/// The rows of a fitted (noisy) table as measured points for [`landscape`]: x, U and σ_U in kT,
+/// thinned to at most [`MAX_DRAWN_ROWS`]; None for formulas, families, periodic profiles and exact
+/// tables (whose curve passes through every row).
+pub fn fitted_rows(m: &crate::scenario::Model) -> Option<Vec<ProfilePoint>> {
+    use crate::potential::Potential;
+    let crate::scenario::AnyPotential::Table(t) = &m.potential else {
+        return None;
+    };
+    if t.fit()?.method != "smoothing spline" {
+        return None;
+    }
+    let x = t.spline().knots();
+    let sigma = t.sigma_u()?;
+    let step = x.len().div_ceil(MAX_DRAWN_ROWS);
+    Some(
+        (0..x.len())
+            .step_by(step)
+            .map(|i| ProfilePoint {
+                x: x[i],
+                u: t.knot_u()[i],
+                sigma: sigma[i],
+            })
+            .collect(),
+    )
+}
+
 /// U(x) with the reactant, barrier, product and target marked and a 1 kT scale bar (`survey`),
 /// titled with the scenario's title (or its file name); `data`, when given, adds measured
 /// points with error bars.
@@ -1018,10 +1048,33 @@ pub fn landscape(
         )),
         None => marks.push(("target", l.target, RGBColor(148, 103, 189))),
     }
-    let legend = Legend {
-        entries: Vec::new(),
-        key: None,
+    // a fitted table: say which fit the curve is, beside its rows with their error bars
+    let entries = match (data, pot.fit()) {
+        (Some(_), Some(fit)) => vec![
+            Entry {
+                text: match (fit.rule, fit.chi2) {
+                    (Some(rule), Some(chi2)) => format!(
+                        "{} ({rule}): χ² = {chi2:.0}, {:.1} effective dof of {} rows",
+                        fit.method, fit.effective_dof, fit.rows
+                    ),
+                    _ => fit.method.to_string(),
+                },
+                colour: RGBColor(31, 119, 180),
+                shape: None,
+                line: true,
+                sim: false,
+            },
+            Entry {
+                text: "table rows ± σ_U".into(),
+                colour: RGBColor(150, 150, 150),
+                shape: None,
+                line: false,
+                sim: true,
+            },
+        ],
+        _ => Vec::new(),
     };
+    let legend = Legend { entries, key: None };
     render(&legend, |area| {
         let px = frame(area, &f, &|_, _| Ok(()))?;
         let mut raw = Raw::default();
@@ -1031,21 +1084,23 @@ pub fn landscape(
             .filter(|p| p.1.is_finite())
             .map(|&(x, y)| px.at(x, y_near(&px, y)))
             .collect();
-        raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
+        // measured rows under the curve, in grey, so the fit stays readable on dense tables
         if let Some(d) = data {
+            let grey = RGBColor(150, 150, 150);
             for p in d {
                 let (sx, sy) = px.at(p.x, e(p.u));
                 let lo = px.y_clamped(e(p.u - p.sigma));
                 let hi = px.y_clamped(e(p.u + p.sigma));
-                raw.line((sx, lo), (sx, hi), BLACK, 1.0, "errorbar");
+                raw.line((sx, lo), (sx, hi), grey, 1.0, "errorbar");
                 if px.contains(p.x, e(p.u)) {
                     let _ = writeln!(
                         raw.0,
-                        r##"<g class="marker data" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="2.5" fill="#000000"/></g>"##
+                        r##"<g class="marker data" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="2" fill="#969696"/></g>"##
                     );
                 }
             }
         }
+        raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
         raw.close();
         // the points and their labels, placed clear of each other and of the curve
         let centres: Vec<(f64, f64)> = marks
