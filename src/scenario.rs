@@ -127,8 +127,9 @@ pub struct PotentialSection {
     pub table: Option<String>,
     /// family name
     pub family: Option<String>,
-    /// domain for expr and family
-    pub domain: Option<[f64; 2]>,
+    /// domain for expr and family: [lo, hi] (a list, so that a wrong length is an error naming
+    /// the key rather than extra values dropped)
+    pub domain: Option<Vec<f64>>,
     /// named constants usable in expr and diffusion_expr
     pub constants: Option<BTreeMap<String, f64>>,
     /// family: barrier height (double-well, cubic)
@@ -617,6 +618,21 @@ impl Validator<'_> {
             }
         }
         let (potential, label, table_d) = self.potential(&pot, &units, &constants)?;
+        // constants nothing reads would be silently ignored (a family takes its own keys)
+        if pot.constants.is_some() && pot.expr.is_none() && particle.diffusion_expr.is_none() {
+            let what = match &pot.family {
+                Some(f) => format!(
+                    "the {f} family takes its parameters as [potential] keys (e.g. potential.barrier)"
+                ),
+                None => "a table potential has no formula".into(),
+            };
+            return Err(self.err(
+                "potential.constants",
+                format!(
+                    "only potential.expr and particle.diffusion_expr use constants: {what}; drop [potential.constants]"
+                ),
+            ));
+        }
         let (lo, hi) = potential.domain();
         let period = match (
             &potential,
@@ -867,12 +883,18 @@ impl Validator<'_> {
     }
 
     fn domain(&self, pot: &PotentialSection) -> Result<Option<(f64, f64)>, ScenarioError> {
-        match pot.domain {
-            None => Ok(None),
-            Some([a, b]) if a.is_finite() && b.is_finite() && a < b => Ok(Some((a, b))),
-            Some([a, b]) => Err(self.err(
+        let Some(v) = pot.domain.as_deref() else {
+            return Ok(None);
+        };
+        match *v {
+            [a, b] if a.is_finite() && b.is_finite() && a < b => Ok(Some((a, b))),
+            [a, b] => Err(self.err(
                 "potential.domain",
                 format!("must be [lo, hi] with finite lo < hi, got [{a}, {b}]"),
+            )),
+            _ => Err(self.err(
+                "potential.domain",
+                format!("must be [lo, hi], two numbers; got {} values", v.len()),
             )),
         }
     }
@@ -991,7 +1013,13 @@ impl Validator<'_> {
                     amp,
                     period,
                     tilt: tilt * scale,
-                    domain: domain.unwrap_or((-0.5 * period, 1.5 * period)),
+                    // walls at the barrier tops next to the well at 0, and a whole period on the
+                    // downhill side (mirrored for a leftward tilt), where the product well is
+                    domain: domain.unwrap_or(if tilt < 0.0 {
+                        (-1.5 * period, 0.5 * period)
+                    } else {
+                        (-0.5 * period, 1.5 * period)
+                    }),
                 }
             }
             other => {

@@ -752,10 +752,15 @@ pub fn compare(r: &super::CompareReport) -> String {
 /// Renders `merge` (times in the run's time unit).
 pub fn merge(r: &super::MergeReport) -> String {
     let s = &r.summary;
+    let t_unit = match r.time_unit.as_deref() {
+        Some("1") => "τ",
+        Some(u) => u,
+        None => "time unit of the run",
+    };
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "merged records: {} of {} trajectories (run {}, seed {}, dt = {})",
+        "merged records: {} of {} trajectories (run {}, seed {}, dt = {} {t_unit})",
         r.recorded,
         r.trajectories,
         r.fingerprint,
@@ -764,12 +769,12 @@ pub fn merge(r: &super::MergeReport) -> String {
     );
     let mut t = table();
     t.set_header(vec![
-        "escaped",
-        "censored",
-        "rate",
-        "95% interval",
-        "MFPT ± se",
-        "median",
+        "escaped".to_string(),
+        "censored".to_string(),
+        format!("rate (1/{t_unit})"),
+        "95% interval".to_string(),
+        format!("MFPT ± se ({t_unit})"),
+        format!("median ({t_unit})"),
     ]);
     t.add_row(vec![
         s.escaped.to_string(),
@@ -821,7 +826,7 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
         head.push(format!("D_eff ({}²/{})", u.l, u.t));
         head.push(format!("k+ / k− (1/{})", u.t));
     }
-    let sim = r.points.iter().any(|p| p.simulation.is_some());
+    let sim = r.points.iter().any(|p| p.simulation_status.is_some());
     if sim {
         head.push(format!("simulated escape (1/{}) [95%]", u.t));
     }
@@ -867,7 +872,12 @@ pub fn scan(r: &crate::scan::ScanReport) -> String {
         }
         if sim {
             row.push(p.simulation.as_ref().map_or_else(
-                || "—".into(),
+                || {
+                    p.simulation_status
+                        .filter(|s| *s == crate::scan::SimStatus::Interrupted)
+                        .map_or("—", |s| s.as_str())
+                        .into()
+                },
                 |s| {
                     format!(
                         "{} [{}, {}] ({})",
