@@ -282,9 +282,6 @@ fn simulate_cmd(
         .map(simulate::parse_shard)
         .transpose()
         .map_err(Failure::user)?;
-    if let Some(p) = &sim.records {
-        records::check_path(p).map_err(|e| Failure::user(e.to_string()))?;
-    }
     let (threads, thread_warning) = simulate::effective_threads(sim.threads);
     // a second Ctrl-C falls through to the default (the first one already asked for a stop)
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
@@ -305,6 +302,9 @@ fn simulate_cmd(
             steps: 0,
             dt: plan.params.dt,
         };
+        // record-file problems first, before any note
+        let open =
+            simulate::open_records(&plan, &opts).map_err(|e| Failure::user(e.to_string()))?;
         if !quiet && !common.json {
             eprintln!(
                 "simulating {} trajectories by brute force, dt = {:.4e} ({})",
@@ -317,7 +317,7 @@ fn simulate_cmd(
                 }
             );
         }
-        let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
+        let result = simulate::run_opened(&plan, &opts, open, &STOP, |o, n| progress.update(o, n))
             .map_err(|e| Failure::user(e.to_string()))?;
         drop(progress);
         if let Some(path) = plot {

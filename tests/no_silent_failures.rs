@@ -260,11 +260,10 @@ fn two_processes_resuming_one_records_file_second_is_refused() {
     let d = dir("lock-cli");
     let f = write(&d, "s.toml", SLOW);
     let rec = d.join("r.csv");
+    // no --quiet or --json: the refusal must come before any note, as the one line on stderr
     let args = [
         "simulate",
         f.to_str().unwrap(),
-        "--quiet",
-        "--json",
         "--threads",
         "1",
         "--records",
@@ -281,6 +280,42 @@ fn two_processes_resuming_one_records_file_second_is_refused() {
     let out = wait(first, 60);
     assert_eq!(out.status.code(), Some(130));
     one_error_line(&second, &["r.csv", "in use"]);
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+/// A record that cannot be written ends the run at once with one error line naming the file,
+/// rather than after the whole ensemble (here about 1e10 steps). The file-size limit (bash's
+/// `ulimit -f`, in KiB, with SIGXFSZ ignored so that the write fails with EFBIG) makes the writes
+/// fail after about 2000 records.
+#[test]
+fn records_write_failure_stops_the_run_at_once() {
+    let d = dir("write-fail");
+    let f = write(&d, "s.toml", SLOW);
+    let rec = d.join("r.csv");
+    let script = format!(
+        "trap '' XFSZ; ulimit -f 48; exec '{}' simulate '{}' --threads 1 --records '{}'",
+        bin().display(),
+        f.display(),
+        rec.display()
+    );
+    let out = Command::new("bash")
+        .args(["-c", &script])
+        .timeout(Duration::from_secs(60))
+        .output()
+        .unwrap();
+    one_error_line(
+        &Output {
+            // the note before the run is not part of the error
+            stderr: String::from_utf8_lossy(&out.stderr)
+                .lines()
+                .filter(|l| !l.starts_with("simulating "))
+                .map(|l| format!("{l}\n"))
+                .collect::<String>()
+                .into_bytes(),
+            ..out
+        },
+        &["r.csv", "too large"],
+    );
     let _ = std::fs::remove_dir_all(&d);
 }
 
