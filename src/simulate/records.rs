@@ -351,19 +351,27 @@ pub fn resume(path: &Path, plan: &Plan) -> Result<(Writer, Contents), RecordErro
     // locked before it is read, so that what is read stays what is continued
     let f = match OpenOptions::new().read(true).append(true).open(path) {
         Ok(f) => f,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-            let w = create(path, plan)?;
-            return Ok((
-                w,
-                Contents {
-                    header: Header::of(plan),
-                    outcomes: Vec::new(),
-                    lines: BTreeMap::new(),
-                    valid_len: 0,
-                    warnings: Vec::new(),
-                },
-            ));
-        }
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => match create(path, plan) {
+            Ok(w) => {
+                return Ok((
+                    w,
+                    Contents {
+                        header: Header::of(plan),
+                        outcomes: Vec::new(),
+                        lines: BTreeMap::new(),
+                        valid_len: 0,
+                        warnings: Vec::new(),
+                    },
+                ));
+            }
+            // another run created it in between: its lock decides below
+            Err(_) if path.exists() => OpenOptions::new()
+                .read(true)
+                .append(true)
+                .open(path)
+                .map_err(|e| io(path, e))?,
+            Err(e) => return Err(e),
+        },
         Err(e) => return Err(io(path, e)),
     };
     lock(&f, path)?;
