@@ -10,6 +10,9 @@ pub struct Cli {
     /// what to do
     #[command(subcommand)]
     pub command: Command,
+    /// No progress or notes on stderr (errors, warnings in the output and "interrupted" remain).
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
 }
 
 /// Options every command accepts.
@@ -18,9 +21,6 @@ pub struct Common {
     /// Print one JSON object on stdout instead of tables.
     #[arg(long)]
     pub json: bool,
-    /// No progress or notes on stderr.
-    #[arg(long, short)]
-    pub quiet: bool,
     /// Override one scenario value, e.g. --set particle.friction=3 (repeatable).
     #[arg(long = "set", value_name = "SECTION.KEY=VALUE")]
     pub set: Vec<String>,

@@ -36,14 +36,20 @@ impl Failure {
     }
 }
 
-/// What a command produced: text for stdout and the exit code.
+/// What a command produced: text for stdout, the exit code, and a status line for stderr
+/// (printed after the output, e.g. that the run was interrupted).
 struct Done {
     text: String,
     code: u8,
+    status: Option<String>,
 }
 
 fn ok(text: String) -> Result<Done, Failure> {
-    Ok(Done { text, code: 0 })
+    Ok(Done {
+        text,
+        code: 0,
+        status: None,
+    })
 }
 
 fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
@@ -77,6 +83,7 @@ fn uncertainty_of(m: &Model) -> Result<Option<escapade::uncertainty::Uncertainty
 }
 
 fn run(cli: Cli) -> Result<Done, Failure> {
+    let quiet = cli.quiet;
     match cli.command {
         Command::Survey { file, plot, common } => {
             let m = load(Some(&file), &common)?;
@@ -124,11 +131,11 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             plot,
             common,
             sim,
-        } => simulate_cmd(Some(&file), &common, &sim, false, plot.as_deref()),
+        } => simulate_cmd(Some(&file), quiet, &common, &sim, false, plot.as_deref()),
         Command::Compare { file, common, sim } => {
-            simulate_cmd(Some(&file), &common, &sim, true, None)
+            simulate_cmd(Some(&file), quiet, &common, &sim, true, None)
         }
-        Command::Demo { common, sim } => simulate_cmd(None, &common, &sim, true, None),
+        Command::Demo { common, sim } => simulate_cmd(None, quiet, &common, &sim, true, None),
         Command::Scan {
             file,
             vary,
@@ -156,9 +163,16 @@ fn run(cli: Cli) -> Result<Done, Failure> {
                 points,
                 log,
             };
-            let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
-            let r = escapade::scan::run(&file, &overrides, &spec, simulate, threads, &STOP)
+            let (threads, thread_warning) = simulate::effective_threads(threads);
+            // only simulations stop cleanly; a theory scan ends at Ctrl-C as any program does
+            if simulate {
+                let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+            }
+            let mut r = escapade::scan::run(&file, &overrides, &spec, simulate, threads, &STOP)
                 .map_err(|e| Failure::user(e.to_string()))?;
+            if simulate && let Some(w) = thread_warning {
+                r.notes.push(w);
+            }
             if let Some(path) = csv {
                 std::fs::write(&path, escapade::report::csv::scan(&r))
                     .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
@@ -167,10 +181,25 @@ fn run(cli: Cli) -> Result<Done, Failure> {
                 std::fs::write(&path, escapade::report::svg::scan(&r))
                     .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
             }
-            ok(if common.json {
+            let text = if common.json {
                 json::render(&r)
             } else {
                 table::scan(&r, all_columns)
+            };
+            Ok(if r.interrupted {
+                Done {
+                    text,
+                    code: 130,
+                    status: Some(
+                        "interrupted: points not simulated to the end are marked \"interrupted\" and have no simulated values".into(),
+                    ),
+                }
+            } else {
+                Done {
+                    text,
+                    code: 0,
+                    status: None,
+                }
             })
         }
         Command::Merge {
@@ -215,7 +244,12 @@ impl Progress {
             b.set_message(format!("{} escaped, rate so far {k:.4e}", self.escaped));
         }
     }
-    fn finish(&self) {
+}
+
+/// The bar is cleared however its scope ends (an error included), so that an error line never
+/// runs into it.
+impl Drop for Progress {
+    fn drop(&mut self) {
         if let Some(b) = &self.bar {
             b.finish_and_clear();
         }
@@ -235,6 +269,7 @@ fn write_file(path: &Path, text: &str) -> Result<(), Failure> {
 
 fn simulate_cmd(
     file: Option<&Path>,
+    quiet: bool,
     common: &Common,
     sim: &SimOpts,
     with_theory: bool,
@@ -249,16 +284,17 @@ fn simulate_cmd(
         .map(simulate::parse_shard)
         .transpose()
         .map_err(Failure::user)?;
+    let (threads, thread_warning) = simulate::effective_threads(sim.threads);
     // a second Ctrl-C falls through to the default (the first one already asked for a stop)
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
     let (out, interrupted) = if plan.method == simulate::Method::BruteForce {
         let opts = RunOptions {
-            threads: sim.threads,
+            threads,
             shard,
             records: sim.records.clone(),
             resume: sim.resume,
         };
-        let show = !common.quiet && std::io::stderr().is_terminal() && !json_to_pipe(common);
+        let show = !quiet && std::io::stderr().is_terminal() && !json_to_pipe(common);
         let mut progress = Progress {
             show,
             start: std::time::Instant::now(),
@@ -268,7 +304,10 @@ fn simulate_cmd(
             steps: 0,
             dt: plan.params.dt,
         };
-        if !common.quiet && !common.json {
+        // record-file problems first, before any note
+        let open =
+            simulate::open_records(&plan, &opts).map_err(|e| Failure::user(e.to_string()))?;
+        if !quiet && !common.json {
             eprintln!(
                 "simulating {} trajectories by brute force, dt = {:.4e} ({})",
                 progress.total,
@@ -280,9 +319,9 @@ fn simulate_cmd(
                 }
             );
         }
-        let result = simulate::run_ensemble(&plan, &opts, &STOP, |o, n| progress.update(o, n))
+        let result = simulate::run_opened(&plan, &opts, open, &STOP, |o, n| progress.update(o, n))
             .map_err(|e| Failure::user(e.to_string()))?;
-        progress.finish();
+        drop(progress);
         if let Some(path) = plot {
             let s =
                 escapade::stats::summarise(&result.outcomes, plan.params.dt, plan.params.max_steps);
@@ -308,7 +347,7 @@ fn simulate_cmd(
                 plan.method.as_str()
             )));
         }
-        if !common.quiet && !common.json {
+        if !quiet && !common.json {
             eprintln!(
                 "estimating the rate by {}, dt = {:.4e} ({})",
                 plan.method.as_str(),
@@ -316,7 +355,7 @@ fn simulate_cmd(
                 plan.method_reason
             );
         }
-        match simulate::run_rare(&plan, &m, &t, sim.threads, &STOP) {
+        match simulate::run_rare(&plan, &m, &t, threads, &STOP) {
             Ok((r, wall, threads)) => (SimulationOut::rare(&plan, r, wall, threads), false),
             Err(simulate::SimError::Interrupted) => {
                 return Err(Failure {
@@ -328,6 +367,7 @@ fn simulate_cmd(
         }
     };
     let mut out = out;
+    out.warnings.extend(thread_warning);
     let mut interrupted = interrupted;
     if shard.is_some() {
         if plan.section.well_to_well == Some(true) || t.periodic.is_some() {
@@ -336,7 +376,15 @@ fn simulate_cmd(
             );
         }
     } else if !interrupted {
-        long_runs(&m, &t, &plan, common, sim, &mut out, &mut interrupted)?;
+        long_runs(
+            &m,
+            &t,
+            &plan,
+            !quiet && !common.json,
+            threads,
+            &mut out,
+            &mut interrupted,
+        )?;
     }
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
@@ -356,6 +404,8 @@ fn simulate_cmd(
             table::compare(&r)
         }
     } else {
+        // `simulate` shows no theory section: its implausible-value warnings go with the run's
+        out.warnings.extend(theory::plausibility_warnings(&m, &t));
         let r = SimulateReport {
             header: escapade::report::Header::new(&m),
             units: m.units.names.clone(),
@@ -368,26 +418,33 @@ fn simulate_cmd(
             table::simulate(&r)
         }
     };
-    Ok(Done { text, code })
+    Ok(Done {
+        text,
+        code,
+        status: interrupted.then(|| {
+            "interrupted: the output covers the work finished so far (finished records are kept)"
+                .into()
+        }),
+    })
 }
 
 /// The long-trajectory measurements after the escape run: the well-to-well count (when asked
 /// for) and, for periodic landscapes, drift, diffusion and hopping (when the cost fits the budget).
-/// Sets `interrupted` on Ctrl-C.
+/// Sets `interrupted` on Ctrl-C; `notes` prints what runs on stderr.
 fn long_runs(
     m: &Model,
     t: &theory::TheoryReport,
     plan: &Plan,
-    common: &Common,
-    sim: &SimOpts,
+    notes: bool,
+    threads: usize,
     out: &mut SimulationOut,
     interrupted: &mut bool,
 ) -> Result<(), Failure> {
     if plan.section.well_to_well == Some(true) {
-        if !common.quiet && !common.json {
+        if notes {
             eprintln!("counting well-to-well transitions in long trajectories");
         }
-        match simulate::run_transitions(plan, m, t, sim.threads, &STOP) {
+        match simulate::run_transitions(plan, m, t, threads, &STOP) {
             Ok((w, wall)) => {
                 out.total_steps += w.total_steps;
                 out.wall_seconds += wall;
@@ -411,10 +468,10 @@ fn long_runs(
                 plan.budget_steps
             ));
         } else {
-            if !common.quiet && !common.json {
+            if notes {
                 eprintln!("measuring drift, diffusion and hopping in long trajectories");
             }
-            match simulate::run_periodic_for(plan, t, sim.threads, &STOP) {
+            match simulate::run_periodic_for(plan, t, threads, &STOP) {
                 Ok(Some((p, wall))) => {
                     out.total_steps += p.total_steps;
                     out.wall_seconds += wall;
@@ -472,7 +529,11 @@ fn main() -> ExitCode {
             use std::io::Write;
             // a closed pipe (e.g. `| head`) is not an error worth a message
             let mut out = std::io::stdout().lock();
-            match writeln!(out, "{}", done.text.trim_end()).and_then(|()| out.flush()) {
+            let written = writeln!(out, "{}", done.text.trim_end()).and_then(|()| out.flush());
+            if let Some(s) = &done.status {
+                eprintln!("{s}");
+            }
+            match written {
                 Ok(()) => ExitCode::from(done.code),
                 Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::from(done.code),
                 Err(e) => {
@@ -497,5 +558,34 @@ fn main() -> ExitCode {
             eprintln!("error: {line}");
             ExitCode::from(f.code)
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// An error returned while the progress bar is up must not leave the bar on stderr, where it
+    /// would run into the error line (common practice, no source).
+    #[test]
+    fn progress_bar_is_cleared_when_an_error_leaves_its_scope() {
+        let bar = indicatif::ProgressBar::with_draw_target(
+            Some(10),
+            indicatif::ProgressDrawTarget::hidden(),
+        );
+        let failing = |bar: indicatif::ProgressBar| -> Result<(), Failure> {
+            let _progress = Progress {
+                show: true,
+                start: std::time::Instant::now(),
+                bar: Some(bar),
+                total: 10,
+                escaped: 0,
+                steps: 0,
+                dt: 0.1,
+            };
+            Err(Failure::user("the records file cannot be written"))
+        };
+        assert!(failing(bar.clone()).is_err());
+        assert!(bar.is_finished());
     }
 }

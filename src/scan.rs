@@ -8,7 +8,9 @@
 //! - a friction scan (`particle.friction` or `particle.diffusion`) shows the turnover.
 //!
 //! Each point's simulation has its own seed derived from the master seed and the point index, and
-//! its own step budget, so points are independent and reproducible.
+//! its own step budget, so points are independent and reproducible. A stop request (Ctrl-C) ends
+//! the simulations: the point being simulated and every later one are marked interrupted with no
+//! simulated values (a partial ensemble is not a result), while the theory is still given for all.
 
 use crate::fit::{self, Line};
 use crate::scenario::{Model, Override, ScenarioError};
@@ -17,7 +19,7 @@ use crate::theory::{self, Rates};
 use crate::units::K_B;
 use serde::Serialize;
 use std::path::Path;
-use std::sync::atomic::AtomicBool;
+use std::sync::atomic::{AtomicBool, Ordering};
 use thiserror::Error;
 
 /// Scan problems.
@@ -44,6 +46,11 @@ pub enum ScanError {
     },
 }
 
+/// Most points a scan may have: each point is a whole analysis (and a simulation with
+/// `--simulate`), so more is a typing mistake rather than a plan (and 1e14 points would not fit
+/// in memory).
+pub const MAX_POINTS: usize = 10_000;
+
 /// What is varied.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Spec {
@@ -63,9 +70,15 @@ impl Spec {
     /// The values of the scan.
     ///
     /// # Errors
-    /// Fewer than 2 points, non-finite ends, or a log scan through zero.
+    /// Fewer than 2 or more than [`MAX_POINTS`] points, non-finite ends, or a log scan through
+    /// zero.
     pub fn values(&self) -> Result<Vec<f64>, ScanError> {
         let (a, b, n) = (self.from, self.to, self.points);
+        if n > MAX_POINTS {
+            return Err(ScanError::Spec(format!(
+                "--points {n}: at most {MAX_POINTS} points"
+            )));
+        }
         if n < 2 || !a.is_finite() || !b.is_finite() {
             return Err(ScanError::Spec(format!(
                 "--from/--to/--points: need finite ends and at least 2 points (got {a}, {b}, {n})"
@@ -150,6 +163,29 @@ impl PeriodicPoint {
     }
 }
 
+/// Whether a point was simulated (with `--simulate`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SimStatus {
+    /// simulated to the end
+    Complete,
+    /// stopped (Ctrl-C) before its simulation finished, or not started after a stop
+    Interrupted,
+    /// nothing to simulate (the running state past the critical tilt)
+    NotSimulated,
+}
+
+impl SimStatus {
+    /// The name as in the JSON and CSV output.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Complete => "complete",
+            Self::Interrupted => "interrupted",
+            Self::NotSimulated => "not-simulated",
+        }
+    }
+}
+
 /// A simulated rate at one point.
 #[derive(Debug, Clone, Serialize)]
 pub struct SimPoint {
@@ -191,12 +227,14 @@ pub struct Point {
     pub periodic: Option<PeriodicPoint>,
     /// 95% intervals of the rates from the profile's sigma_U (with an `[uncertainty]` section)
     pub uncertainty: Option<Vec<crate::uncertainty::Interval>>,
-    /// the simulated rate, with --simulate
+    /// the simulated rate, with --simulate (null when interrupted)
     pub simulation: Option<SimPoint>,
     /// keys of the rates that hold at this point (`theory::RegimeReport::trusted`); tables and
     /// pictures mark the others
     #[serde(skip)]
     pub holds: Vec<&'static str>,
+    /// with --simulate: whether this point's simulation finished
+    pub simulation_status: Option<SimStatus>,
 }
 
 /// A fit over the scan for one rate.
@@ -231,6 +269,8 @@ pub struct ScanReport {
     pub fits: Vec<FitOut>,
     /// notes
     pub notes: Vec<String>,
+    /// stopped by the user before every simulation finished
+    pub interrupted: bool,
     /// action I_b at the first point (for regime bands of a friction scan), energy·time
     #[serde(skip)]
     pub action_first: Option<f64>,
@@ -314,6 +354,7 @@ pub fn run(
     let mut action_first = None;
     let mut omega_first = None;
     let mut skipped: Vec<String> = Vec::new();
+    let mut interrupted = false;
     for (i, &v) in values.iter().enumerate() {
         let (m, t) = match point_theory(file, base, &spec.key, v, &[])? {
             (m, theory::Analysis::Full(t)) => (m, *t),
@@ -339,6 +380,7 @@ pub fn run(
                     uncertainty: None,
                     simulation: None,
                     holds: Vec::new(),
+                    simulation_status: simulate.then_some(SimStatus::NotSimulated),
                 });
                 continue;
             }
@@ -349,102 +391,20 @@ pub fn run(
             action_first = t.landscape.action;
             omega_first = t.landscape.omega_barrier;
         }
-        let simulation = if simulate {
-            let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
-            // 63 bits: TOML integers are signed
-            let seed =
-                simulate::engine::splitmix64(master ^ (i as u64).wrapping_mul(0x9e37_79b9)) >> 1;
-            let (m, t) = match point_theory(
-                file,
-                base,
-                &spec.key,
-                v,
-                &[Override::parse(&format!("simulation.seed={seed}"))?],
-            )? {
-                (m, theory::Analysis::Full(t)) => (m, *t),
-                // the same point gave a well a moment ago: only a changed file can do this
-                (_, theory::Analysis::Running(_)) => {
-                    return Err(ScanError::Point {
-                        file: file.display().to_string(),
-                        key: spec.key.clone(),
-                        value: v,
-                        message: "the scenario changed during the scan".into(),
-                    });
-                }
-            };
-            let bad = |e: String| ScanError::Point {
-                file: file.display().to_string(),
-                key: spec.key.clone(),
-                value: v,
-                message: e,
-            };
-            let plan = Plan::new(&m, &t).map_err(|e| bad(e.to_string()))?;
-            let out = if plan.method == Method::BruteForce {
-                let opts = RunOptions {
-                    threads,
-                    ..RunOptions::default()
-                };
-                let r = simulate::run_ensemble(&plan, &opts, stop, |_, _| {})
-                    .map_err(|e| bad(e.to_string()))?;
-                crate::report::SimulationOut::new(&plan, &r, None)
-            } else {
-                let (r, wall, th) = simulate::run_rare(&plan, &m, &t, threads, stop)
-                    .map_err(|e| bad(e.to_string()))?;
-                crate::report::SimulationOut::rare(&plan, r, wall, th)
-            };
-            // the long-trajectory measurements as in `compare`: skipped (with a note) when they
-            // do not fit the step budget, never a reason to stop the scan
-            let ww = if plan.section.well_to_well == Some(true) {
-                match simulate::run_transitions(&plan, &m, &t, threads, stop) {
-                    Ok((w, _)) => Some(w),
-                    Err(e @ simulate::SimError::Interrupted) => return Err(bad(e.to_string())),
-                    Err(e) => {
-                        skipped.push(format!(
-                            "{} = {v}: well-to-well count not run: {e}",
-                            spec.key
-                        ));
-                        None
-                    }
-                }
-            } else {
-                None
-            };
-            let fits = simulate::periodic_rate(&t)
-                .is_some_and(|r| simulate::periodic_size(&plan, r).3 <= plan.budget_steps);
-            let per = if fits {
-                simulate::run_periodic_for(&plan, &t, threads, stop)
-                    .map_err(|e| bad(e.to_string()))?
-                    .map(|(p, _)| p)
-            } else {
-                if t.periodic.is_some() {
-                    skipped.push(format!(
-                        "{} = {v}: periodic drift and diffusion not simulated (over simulation.budget_steps)",
-                        spec.key
-                    ));
-                }
-                None
-            };
-            Some(SimPoint {
-                method: out.method,
-                rate: out.rate,
-                rate_ci95: out.rate_ci95,
-                well_to_well: ww.as_ref().map(|w| w.rate),
-                well_to_well_ci95: ww.as_ref().map(|w| w.rate_ci95),
-                periodic: per.as_ref().map(|p| PeriodicPoint {
-                    drift: p.drift,
-                    drift_ci95: Some(p.drift_ci95),
-                    effective_diffusion: Some(p.effective_diffusion),
-                    effective_diffusion_ci95: Some(p.effective_diffusion_ci95),
-                    hop_forward: Some(p.hop_forward),
-                    hop_backward: Some(p.hop_backward),
-                }),
-                total_steps: out.total_steps
-                    + ww.as_ref().map_or(0, |w| w.total_steps)
-                    + per.as_ref().map_or(0, |p| p.total_steps),
-                seed,
-            })
+        let (simulation, simulation_status) = if !simulate {
+            (None, None)
+        } else if interrupted || stop.load(Ordering::Relaxed) {
+            interrupted = true;
+            (None, Some(SimStatus::Interrupted))
         } else {
-            None
+            let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
+            match simulate_point(file, base, spec, i, v, master, threads, stop, &mut skipped)? {
+                Some(p) => (Some(p), Some(SimStatus::Complete)),
+                None => {
+                    interrupted = true;
+                    (None, Some(SimStatus::Interrupted))
+                }
+            }
         };
         points.push(Point {
             value: v,
@@ -469,10 +429,21 @@ pub fn run(
             },
             simulation,
             holds: t.regime.trusted.clone(),
+            simulation_status,
         });
     }
     let units = units.expect("at least two points");
     let mut notes = skipped;
+    if interrupted {
+        let n = points
+            .iter()
+            .filter(|p| p.simulation_status == Some(SimStatus::Interrupted))
+            .count();
+        notes.push(format!(
+            "interrupted: {n} of {} points not simulated to the end (their simulated values are null; the theory is complete)",
+            points.len()
+        ));
+    }
     let fits = match kind {
         Kind::Temperature => {
             notes.push(
@@ -490,10 +461,127 @@ pub fn run(
         points,
         fits,
         notes,
+        interrupted,
         action_first,
         omega_barrier_first: omega_first,
         log: spec.log,
     })
+}
+
+/// Simulates point `i` (value `v`) of a scan with its own seed from `master`; `None` when `stop`
+/// ended it before it finished (its partial numbers are dropped). Long-trajectory measurements
+/// that do not fit the budget are skipped with a note in `skipped`.
+#[allow(clippy::too_many_arguments)] // the point's full context
+fn simulate_point(
+    file: &Path,
+    base: &[Override],
+    spec: &Spec,
+    i: usize,
+    v: f64,
+    master: u64,
+    threads: usize,
+    stop: &AtomicBool,
+    skipped: &mut Vec<String>,
+) -> Result<Option<SimPoint>, ScanError> {
+    use simulate::SimError::Interrupted;
+    // 63 bits: TOML integers are signed
+    let seed = simulate::engine::splitmix64(master ^ (i as u64).wrapping_mul(0x9e37_79b9)) >> 1;
+    let (m, t) = match point_theory(
+        file,
+        base,
+        &spec.key,
+        v,
+        &[Override::parse(&format!("simulation.seed={seed}"))?],
+    )? {
+        (m, theory::Analysis::Full(t)) => (m, *t),
+        // the same point gave a well a moment ago: only a changed file can do this
+        (_, theory::Analysis::Running(_)) => {
+            return Err(ScanError::Point {
+                file: file.display().to_string(),
+                key: spec.key.clone(),
+                value: v,
+                message: "the scenario changed during the scan".into(),
+            });
+        }
+    };
+    let bad = |e: String| ScanError::Point {
+        file: file.display().to_string(),
+        key: spec.key.clone(),
+        value: v,
+        message: e,
+    };
+    let plan = Plan::new(&m, &t).map_err(|e| bad(e.to_string()))?;
+    let out = if plan.method == Method::BruteForce {
+        let opts = RunOptions {
+            threads,
+            ..RunOptions::default()
+        };
+        let r = simulate::run_ensemble(&plan, &opts, stop, |_, _| {})
+            .map_err(|e| bad(e.to_string()))?;
+        if r.interrupted {
+            return Ok(None);
+        }
+        crate::report::SimulationOut::new(&plan, &r, None)
+    } else {
+        match simulate::run_rare(&plan, &m, &t, threads, stop) {
+            Ok((r, wall, th)) => crate::report::SimulationOut::rare(&plan, r, wall, th),
+            Err(Interrupted) => return Ok(None),
+            Err(e) => return Err(bad(e.to_string())),
+        }
+    };
+    // the long-trajectory measurements as in `compare`: skipped (with a note) when they
+    // do not fit the step budget, never a reason to stop the scan
+    let ww = if plan.section.well_to_well == Some(true) {
+        match simulate::run_transitions(&plan, &m, &t, threads, stop) {
+            Ok((w, _)) => Some(w),
+            Err(Interrupted) => return Ok(None),
+            Err(e) => {
+                skipped.push(format!(
+                    "{} = {v}: well-to-well count not run: {e}",
+                    spec.key
+                ));
+                None
+            }
+        }
+    } else {
+        None
+    };
+    let fits = simulate::periodic_rate(&t)
+        .is_some_and(|r| simulate::periodic_size(&plan, r).3 <= plan.budget_steps);
+    let per = if fits {
+        match simulate::run_periodic_for(&plan, &t, threads, stop) {
+            Ok(p) => p.map(|(p, _)| p),
+            Err(Interrupted) => return Ok(None),
+            Err(e) => return Err(bad(e.to_string())),
+        }
+    } else {
+        if t.periodic.is_some() {
+            skipped.push(format!(
+                "{} = {v}: periodic drift and diffusion not simulated (over simulation.budget_steps)",
+                spec.key
+            ));
+        }
+        None
+    };
+    Ok(Some(SimPoint {
+        method: out.method,
+        rate: out.rate,
+        rate_ci95: out.rate_ci95,
+        well_to_well: ww.as_ref().map(|w| w.rate),
+        well_to_well_ci95: ww.as_ref().map(|w| w.rate_ci95),
+        periodic: per.as_ref().map(|p| PeriodicPoint {
+            drift: p.drift,
+            drift_ci95: Some(p.drift_ci95),
+            effective_diffusion: Some(p.effective_diffusion),
+            effective_diffusion_ci95: Some(p.effective_diffusion_ci95),
+            hop_forward: Some(p.hop_forward),
+            hop_backward: Some(p.hop_backward),
+        }),
+        total_steps: out.total_steps
+            + ww.as_ref().map_or(0, |w| w.total_steps)
+            + per.as_ref().map_or(0, |p| p.total_steps),
+        seed,
+    }))
 }
 
 /// Joules per scenario energy unit (None for kT).

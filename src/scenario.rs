@@ -162,12 +162,6 @@ mod quantity {
             .collect()
     }
 
-    pub fn length_pair<'de, D: Deserializer<'de>>(d: D) -> Result<Option<[f64; 2]>, D::Error> {
-        Option::<[Raw; 2]>::deserialize(d)?
-            .map(|p| lengths(Vec::from(p)).map(|v| [v[0], v[1]]))
-            .transpose()
-    }
-
     pub fn length_list<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
         Option::<Vec<Raw>>::deserialize(d)?.map(lengths).transpose()
     }
@@ -265,9 +259,10 @@ pub struct PotentialSection {
     pub table: Option<String>,
     /// family name
     pub family: Option<String>,
-    /// domain for expr and family
-    #[serde(default, deserialize_with = "quantity::length_pair")]
-    pub domain: Option<[f64; 2]>,
+    /// domain for expr and family: [lo, hi] (a list, so that a wrong length is an error naming
+    /// the key rather than extra values dropped)
+    #[serde(default, deserialize_with = "quantity::length_list")]
+    pub domain: Option<Vec<f64>>,
     /// named constants usable in expr and diffusion_expr
     pub constants: Option<BTreeMap<String, f64>>,
     /// family: barrier height (double-well, cubic)
@@ -861,6 +856,21 @@ impl Validator<'_> {
             .filter(|c| c.is_finite() && *c >= 0.0);
         let (potential, label, table_d) =
             self.potential(&pot, &units, &constants, correlation_length)?;
+        // constants nothing reads would be silently ignored (a family takes its own keys)
+        if pot.constants.is_some() && pot.expr.is_none() && particle.diffusion_expr.is_none() {
+            let what = match &pot.family {
+                Some(f) => format!(
+                    "the {f} family takes its parameters as [potential] keys (e.g. potential.barrier)"
+                ),
+                None => "a table potential has no formula".into(),
+            };
+            return Err(self.err(
+                "potential.constants",
+                format!(
+                    "only potential.expr and particle.diffusion_expr use constants: {what}; drop [potential.constants]"
+                ),
+            ));
+        }
         let (lo, hi) = potential.domain();
         let period = match (
             &potential,
@@ -1113,12 +1123,18 @@ impl Validator<'_> {
     }
 
     fn domain(&self, pot: &PotentialSection) -> Result<Option<(f64, f64)>, ScenarioError> {
-        match pot.domain {
-            None => Ok(None),
-            Some([a, b]) if a.is_finite() && b.is_finite() && a < b => Ok(Some((a, b))),
-            Some([a, b]) => Err(self.err(
+        let Some(v) = pot.domain.as_deref() else {
+            return Ok(None);
+        };
+        match *v {
+            [a, b] if a.is_finite() && b.is_finite() && a < b => Ok(Some((a, b))),
+            [a, b] => Err(self.err(
                 "potential.domain",
                 format!("must be [lo, hi] with finite lo < hi, got [{a}, {b}]"),
+            )),
+            _ => Err(self.err(
+                "potential.domain",
+                format!("must be [lo, hi], two numbers; got {} values", v.len()),
             )),
         }
     }
@@ -1319,7 +1335,13 @@ impl Validator<'_> {
                     amp,
                     period,
                     tilt: tilt * scale,
-                    domain: domain.unwrap_or((-0.5 * period, 1.5 * period)),
+                    // walls at the barrier tops next to the well at 0, and a whole period on the
+                    // downhill side (mirrored for a leftward tilt), where the product well is
+                    domain: domain.unwrap_or(if tilt < 0.0 {
+                        (-1.5 * period, 0.5 * period)
+                    } else {
+                        (-0.5 * period, 1.5 * period)
+                    }),
                 }
             }
             other => {

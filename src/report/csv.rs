@@ -44,6 +44,11 @@ pub fn scan(r: &ScanReport) -> String {
             ",simulation_drift,simulation_drift_lo,simulation_drift_hi,simulation_effective_diffusion,simulation_effective_diffusion_lo,simulation_effective_diffusion_hi,simulation_hop_forward,simulation_hop_backward"
         );
     }
+    // last, so that the columns before it keep their places
+    let status = r.points.iter().any(|p| p.simulation_status.is_some());
+    if status {
+        out.push_str(",simulation_status");
+    }
     out.push('\n');
     for p in &r.points {
         let _ = write!(
@@ -98,6 +103,9 @@ pub fn scan(r: &ScanReport) -> String {
                     out.push_str(",,,,,,,,");
                 }
             }
+        }
+        if status {
+            let _ = write!(out, ",{}", p.simulation_status.map_or("", |s| s.as_str()));
         }
         out.push('\n');
     }

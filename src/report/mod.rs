@@ -645,6 +645,9 @@ pub struct MergeReport {
     pub complete: bool,
     /// time step
     pub dt: f64,
+    /// the scenario's time unit of dt, rates and times ("1" reduced; null for files written before
+    /// it was recorded)
+    pub time_unit: Option<String>,
     /// statistics of the union
     pub summary: crate::stats::Summary,
     /// warnings
@@ -670,6 +673,7 @@ impl MergeReport {
             recorded,
             complete: recorded == c.header.trajectories,
             dt: c.header.dt,
+            time_unit: c.header.time_unit.clone(),
             summary: s,
             warnings,
         }

@@ -534,7 +534,14 @@ impl Legend {
             }
             if e.sim {
                 raw.line((mid, y - 7.0), (mid, y + 7.0), e.colour, 1.2, "legend-line");
-                raw.marker(Shape::Circle, (mid, y), e.colour, true, "marker", "simulation");
+                raw.marker(
+                    Shape::Circle,
+                    (mid, y),
+                    e.colour,
+                    true,
+                    "marker",
+                    "simulation",
+                );
             } else if let Some(s) = e.shape {
                 raw.marker(s, (mid, y), e.colour, true, "marker", "");
             }

@@ -913,10 +913,15 @@ fn comparison_cells(c: &super::ComparisonRow, r: &super::CompareReport) -> Vec<S
 /// Renders `merge` (times in the run's time unit).
 pub fn merge(r: &super::MergeReport) -> String {
     let s = &r.summary;
+    let t_unit = match r.time_unit.as_deref() {
+        Some("1") => "τ",
+        Some(u) => u,
+        None => "time unit of the run",
+    };
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "merged records: {} of {} trajectories (run {}, seed {}, dt = {})",
+        "merged records: {} of {} trajectories (run {}, seed {}, dt = {} {t_unit})",
         r.recorded,
         r.trajectories,
         r.fingerprint,
@@ -925,12 +930,12 @@ pub fn merge(r: &super::MergeReport) -> String {
     );
     let mut t = table();
     t.set_header(vec![
-        "escaped",
-        "censored",
-        "rate",
-        "95% interval",
-        "MFPT ± se",
-        "median",
+        "escaped".to_string(),
+        "censored".to_string(),
+        format!("rate (1/{t_unit})"),
+        "95% interval".to_string(),
+        format!("MFPT ± se ({t_unit})"),
+        format!("median ({t_unit})"),
     ]);
     t.add_row(vec![
         s.escaped.to_string(),
@@ -1023,7 +1028,9 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
         .iter()
         .filter_map(|p| p.simulation.as_ref())
         .collect();
-    if !sims.is_empty() {
+    // a column when anything was simulated, or meant to be (an interrupted scan)
+    let sim = r.points.iter().any(|p| p.simulation_status.is_some()) || !sims.is_empty();
+    if sim {
         head.push(format!("sim. (1/{})", u.t));
     }
     let sim_ww = sims.iter().any(|s| s.well_to_well.is_some());
@@ -1077,8 +1084,16 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             }));
         }
         let s = p.simulation.as_ref();
-        if !sims.is_empty() {
-            row.push(s.map_or_else(dash, |s| short_iv(s.rate, s.rate_ci95)));
+        if sim {
+            row.push(s.map_or_else(
+                || {
+                    p.simulation_status
+                        .filter(|s| *s == crate::scan::SimStatus::Interrupted)
+                        .map_or("—", |s| s.as_str())
+                        .into()
+                },
+                |s| short_iv(s.rate, s.rate_ci95),
+            ));
         }
         if sim_ww {
             row.push(iv_or(

@@ -27,7 +27,7 @@ use crate::theory::TheoryReport;
 use engine::{Kind, Params, Start};
 use force::{ConstD, FastForce, GridD};
 use serde::Serialize;
-use std::sync::atomic::{AtomicBool, AtomicUsize};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::mpsc;
 use thiserror::Error;
 
@@ -50,6 +50,33 @@ pub const DEFAULT_BUDGET_STEPS: f64 = 1e9;
 pub const REFUSE_FACTOR: f64 = 10.0;
 /// Default reactive-flux ensemble.
 pub const DEFAULT_FLUX_TRAJECTORIES: u64 = 20_000;
+/// Worker threads are capped at this multiple of the available cores: more only adds scheduling
+/// and memory (100 000 threads used to hang), and results do not depend on the count.
+pub const THREADS_PER_CORE_CAP: usize = 4;
+
+/// The worker threads to use for `requested` (0 = all cores), capped at
+/// [`THREADS_PER_CORE_CAP`] × the available cores, with a warning when the cap applies.
+pub fn effective_threads(requested: usize) -> (usize, Option<String>) {
+    let cores = std::thread::available_parallelism().map_or(1, std::num::NonZero::get);
+    let cap = THREADS_PER_CORE_CAP * cores;
+    match requested {
+        0 => (cores, None),
+        n if n > cap => (
+            cap,
+            Some(format!(
+                "--threads {n} is more than {THREADS_PER_CORE_CAP} x the {cores} available cores: using {cap} threads (results do not depend on the count)"
+            )),
+        ),
+        n => (n, None),
+    }
+}
+
+/// A number whose natural logarithm is `ln`, as `d.dde±x`, also beyond the range of f64.
+fn sci_from_ln(ln: f64) -> String {
+    let l10 = ln / std::f64::consts::LN_10;
+    let e = l10.floor();
+    format!("{:.2}e{e}", 10f64.powf(l10 - e))
+}
 
 /// Simulation set-up problems.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -145,6 +172,8 @@ pub struct Plan {
     pub expected_brute_steps: f64,
     /// the `[simulation]` section as given
     pub section: crate::scenario::SimulationSection,
+    /// the scenario's time unit name ("1" reduced), for record files
+    pub time_unit: String,
 }
 
 /// FNV-1a, 64 bit: a stable fingerprint (not a cryptographic hash).
@@ -237,23 +266,50 @@ impl Plan {
         let (lo, hi) = m.potential.domain();
         let d_a = m.diffusion.value(l.reactant);
         let d_b = m.diffusion.value(l.barrier);
-        let dt_default = match dynamics {
+        // the landscape's shortest time scale, and the default dt from it
+        let (t_scale, t_scale_name, dt_default) = match dynamics {
             Dynamics::Underdamped => {
                 let w = (l.curvature_reactant.max(l.curvature_barrier) / mass).sqrt();
+                let period = 2.0 * std::f64::consts::PI / w;
                 // and γ dt ≤ 0.2: with γ dt ≫ 1 BAOAB still samples the right distribution but its
                 // diffusion in x no longer follows D = kT/(mγ), so rates would be wrong. With
                 // memory the same bound holds (the τ → 0 limit is BAOAB) and none is needed on τ:
                 // the O-step propagates the stiff (v, z) block exactly for any τ/dt
-                (DT_PERIOD_FRACTION * 2.0 * std::f64::consts::PI / w).min(DT_FRICTION / gamma)
+                (
+                    period.min(1.0 / gamma),
+                    "the shorter of the period 2π/ω and 1/γ",
+                    (DT_PERIOD_FRACTION * period).min(DT_FRICTION / gamma),
+                )
             }
             Dynamics::Overdamped => {
                 let tau =
                     (1.0 / (d_a * l.curvature_reactant)).min(1.0 / (d_b * l.curvature_barrier));
-                DT_RELAXATION_FRACTION * tau
+                (
+                    tau,
+                    "the relaxation time kT/(D U'')",
+                    DT_RELAXATION_FRACTION * tau,
+                )
             }
         };
         let mut warnings = Vec::new();
         let dt = s.dt.unwrap_or(dt_default);
+        let trajectories = s.trajectories.unwrap_or(DEFAULT_TRAJECTORIES);
+        let budget_steps = s.budget_steps.unwrap_or(DEFAULT_BUDGET_STEPS);
+        // every method runs each trajectory (or trial) for at least about one such time; forward
+        // flux sampling has no step budget of its own, so a dt far below it would crawl for ever
+        // (logarithms: t/dt can exceed the range of f64)
+        let ln_least = (t_scale.ln() - dt.ln()).max(0.0);
+        let ln_total = ln_least + (trajectories as f64).ln();
+        if ln_total > (REFUSE_FACTOR * budget_steps).ln() {
+            return Err(key_err(
+                "simulation.dt",
+                format!(
+                    "{dt:.3e} is far below this landscape's shortest time scale {t_scale:.3e} ({t_scale_name}): crossing it once takes about {} steps per trajectory, {} for {trajectories} trajectories, more than {REFUSE_FACTOR}x simulation.budget_steps = {budget_steps:.2e}; the default dt here is {dt_default:.3e}",
+                    sci_from_ln(ln_least),
+                    sci_from_ln(ln_total)
+                ),
+            ));
+        }
         if s.dt.is_some() && dt > dt_default {
             warnings.push(format!(
                 "simulation.dt = {dt:.4e} is larger than the default {dt_default:.4e} for this landscape: expect a time-step bias in the rate (first passages are checked once per step)"
@@ -323,14 +379,20 @@ impl Plan {
             memory_time: memory.unwrap_or(0.0),
             start,
         };
-        let trajectories = s.trajectories.unwrap_or(DEFAULT_TRAJECTORIES);
         let fingerprint = fingerprint(m, &params, trajectories);
-        let budget_steps = s.budget_steps.unwrap_or(DEFAULT_BUDGET_STEPS);
-        let expected_brute_steps =
-            trajectories as f64 * (1.0 / k_expect).min(max_steps as f64 * dt) / dt;
+        // a trajectory lasts the expected escape time, or the horizon when that is shorter
+        let escape_time = 1.0 / k_expect;
+        let per_trajectory = escape_time.min(max_steps as f64 * dt);
+        let expected_brute_steps = trajectories as f64 * per_trajectory / dt;
         let cost = format!(
-            "expected brute-force cost {expected_brute_steps:.2e} steps ({trajectories} trajectories × expected escape time {:.3e} / dt {dt:.3e}) against simulation.budget_steps = {budget_steps:.2e}",
-            1.0 / k_expect
+            "expected brute-force cost {expected_brute_steps:.2e} steps ({trajectories} trajectories × {per_trajectory:.3e} per trajectory / dt {dt:.3e}; T = {}) against simulation.budget_steps = {budget_steps:.2e}",
+            if per_trajectory < escape_time {
+                format!(
+                    "the horizon max_time, shorter than the expected escape time {escape_time:.3e}"
+                )
+            } else {
+                "the expected escape time".to_string()
+            }
         );
         let (method, method_reason) = match s.method.as_deref() {
             Some("brute-force") => {
@@ -382,6 +444,7 @@ impl Plan {
             budget_steps,
             expected_brute_steps,
             section: s,
+            time_unit: m.units.names.time.clone(),
         })
     }
 
@@ -443,25 +506,29 @@ fn fingerprint(m: &Model, p: &Params, n: u64) -> u64 {
 }
 
 /// Runs the trajectories `indices` of `plan` on `threads` threads, calling `on_done` on this thread
-/// for each finished one as it completes. Returns the outcomes in index order. When `stop` is set
-/// the run ends early and only finished trajectories are returned.
+/// for each finished one as it completes. Returns the outcomes in index order. When `stop` is set,
+/// or `on_done` returns `false` (e.g. a record could not be written), the run ends early and only
+/// finished trajectories are returned.
 pub fn execute(
     plan: &Plan,
     indices: &[u64],
     threads: usize,
     stop: &AtomicBool,
-    mut on_done: impl FnMut(&Outcome),
+    mut on_done: impl FnMut(&Outcome) -> bool,
 ) -> Vec<Outcome> {
+    // the workers watch `halt`: the caller's stop, or this thread's own decision to end
+    let halt = AtomicBool::new(stop.load(Ordering::Relaxed));
+    let workers = effective_threads(threads.max(1)).0;
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.max(1))
+        .num_threads(workers)
         .build()
         .expect("a thread pool");
     let (tx, rx) = mpsc::channel::<Outcome>();
     let mut out = Vec::with_capacity(indices.len());
     let cursor = AtomicUsize::new(0);
-    let workers = threads.max(1);
     std::thread::scope(|s| {
         let cursor = &cursor;
+        let halt = &halt;
         let worker = s.spawn(move || {
             pool.scope(|sc| {
                 for _ in 0..workers {
@@ -470,7 +537,7 @@ pub fn execute(
                         let mut send = |o: Outcome| {
                             let _ = tx.send(o);
                         };
-                        run_worker(plan, indices, cursor, stop, &mut send);
+                        run_worker(plan, indices, cursor, halt, &mut send);
                     });
                 }
             });
@@ -480,8 +547,13 @@ pub fn execute(
         // (12% of the run time in a profile of short trajectories). 2 ms keeps records timely.
         loop {
             let finished = worker.is_finished();
+            if stop.load(Ordering::Relaxed) {
+                halt.store(true, Ordering::Relaxed);
+            }
             while let Ok(o) = rx.try_recv() {
-                on_done(&o);
+                if !on_done(&o) {
+                    halt.store(true, Ordering::Relaxed);
+                }
                 out.push(o);
             }
             if finished {
@@ -593,36 +665,77 @@ pub struct RunResult {
     pub threads: usize,
 }
 
+/// A run's record file, created or resumed (and locked), with what it already holds.
+pub struct OpenRecords {
+    writer: Option<records::Writer>,
+    previous: Vec<Outcome>,
+    warnings: Vec<String>,
+}
+
+/// Creates or resumes the record file of `opts` (nothing without one), so that a problem with it
+/// is known before the run starts.
+///
+/// # Errors
+/// Record-file problems (a directory, exists, in use, mismatched, malformed, unwritable).
+pub fn open_records(plan: &Plan, opts: &RunOptions) -> Result<OpenRecords, records::RecordError> {
+    Ok(match (&opts.records, opts.resume) {
+        (Some(path), true) => {
+            let (w, c) = records::resume(path, plan)?;
+            OpenRecords {
+                writer: Some(w),
+                previous: c.outcomes,
+                warnings: c.warnings,
+            }
+        }
+        (Some(path), false) => OpenRecords {
+            writer: Some(records::create(path, plan)?),
+            previous: Vec::new(),
+            warnings: Vec::new(),
+        },
+        (None, _) => OpenRecords {
+            writer: None,
+            previous: Vec::new(),
+            warnings: Vec::new(),
+        },
+    })
+}
+
 /// Runs (or resumes) the ensemble of `plan` with records and sharding; `on_done` sees every newly
 /// finished trajectory with the count finished so far (for progress displays).
 ///
 /// # Errors
-/// Record-file problems (exists, mismatched, malformed, unwritable).
+/// Record-file problems (exists, in use, mismatched, malformed, unwritable).
 pub fn run_ensemble(
     plan: &Plan,
     opts: &RunOptions,
     stop: &AtomicBool,
+    on_done: impl FnMut(&Outcome, usize),
+) -> Result<RunResult, records::RecordError> {
+    let open = open_records(plan, opts)?;
+    run_opened(plan, opts, open, stop, on_done)
+}
+
+/// As [`run_ensemble`], with the record file already opened by [`open_records`].
+///
+/// # Errors
+/// A record could not be written.
+pub fn run_opened(
+    plan: &Plan,
+    opts: &RunOptions,
+    open: OpenRecords,
+    stop: &AtomicBool,
     mut on_done: impl FnMut(&Outcome, usize),
 ) -> Result<RunResult, records::RecordError> {
     let range = shard_range(plan.trajectories, opts.shard);
-    let mut warnings = Vec::new();
-    let (mut writer, mut previous) = match (&opts.records, opts.resume) {
-        (Some(path), true) => {
-            let (w, c) = records::resume(path, plan)?;
-            warnings.extend(c.warnings);
-            (Some(w), c.outcomes)
-        }
-        (Some(path), false) => (Some(records::create(path, plan)?), Vec::new()),
-        (None, _) => (None, Vec::new()),
-    };
+    let OpenRecords {
+        mut writer,
+        mut previous,
+        warnings,
+    } = open;
     previous.retain(|o| range.contains(&o.index));
     let done: std::collections::BTreeSet<u64> = previous.iter().map(|o| o.index).collect();
     let todo: Vec<u64> = range.clone().filter(|i| !done.contains(i)).collect();
-    let threads = if opts.threads == 0 {
-        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
-    } else {
-        opts.threads
-    };
+    let threads = effective_threads(opts.threads).0;
     let t0 = std::time::Instant::now();
     let mut count = previous.len();
     let mut write_error = None;
@@ -635,6 +748,8 @@ pub fn run_ensemble(
             write_error = Some(e);
         }
         on_done(o, count);
+        // a run whose records cannot be written ends at once rather than after all its work
+        write_error.is_none()
     });
     if let Some(e) = write_error {
         return Err(e);
@@ -827,13 +942,10 @@ pub fn run_rare(
     Ok((res, t0.elapsed().as_secs_f64(), threads))
 }
 
-/// A rayon pool of `threads` threads (0 = all cores), and that number.
+/// A rayon pool of `threads` threads (0 = all cores; capped as [`effective_threads`]), and that
+/// number.
 fn pool_for(threads: usize) -> (rayon::ThreadPool, usize) {
-    let threads = if threads == 0 {
-        std::thread::available_parallelism().map_or(1, std::num::NonZero::get)
-    } else {
-        threads
-    };
+    let threads = effective_threads(threads).0;
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()

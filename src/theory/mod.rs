@@ -294,7 +294,47 @@ pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
         }
         t.periodic = Some(p);
     }
+    let implausible = plausibility_warnings(model, &t);
+    t.regime.warnings.extend(implausible);
     Ok(t)
+}
+
+/// γ/ω_b beyond this factor either way is implausible for a physical system: more likely a rate
+/// typed in another time unit (1/s where 1/ps was meant is a factor 1e12).
+pub const IMPLAUSIBLE_FRICTION_RATIO: f64 = 1e8;
+/// Barriers above this (in kT) give rates of order e^-1000, zero for any purpose: more likely a
+/// wrong energy unit or temperature.
+pub const IMPLAUSIBLE_BARRIER_KT: f64 = 1000.0;
+/// Temperatures outside this range (K) are implausible for thermally activated escape.
+pub const PLAUSIBLE_TEMPERATURE_K: (f64, f64) = (1.0, 1e5);
+
+/// Warnings about values that are valid but implausible (the results are still computed): a
+/// friction many orders of magnitude from ω_b (given, or implied by D), a temperature below 1 K
+/// or above 1e5 K, a barrier above 1000 kT.
+pub fn plausibility_warnings(model: &Model, t: &TheoryReport) -> Vec<String> {
+    let mut w = Vec::new();
+    if let Some(r) = t.regime.gamma_over_omega_barrier
+        && !(1.0 / IMPLAUSIBLE_FRICTION_RATIO..=IMPLAUSIBLE_FRICTION_RATIO).contains(&r)
+    {
+        w.push(format!(
+            "particle.friction (or the friction kT/(mD) implied by particle.diffusion) is {r:.2e} times the barrier frequency ω_b: implausible (beyond {IMPLAUSIBLE_FRICTION_RATIO:.0e} either way); check its value and time unit"
+        ));
+    }
+    if let Some(temp) = model.units.temperature
+        && !(PLAUSIBLE_TEMPERATURE_K.0..=PLAUSIBLE_TEMPERATURE_K.1).contains(&temp)
+    {
+        w.push(format!(
+            "units.temperature = {temp} K is implausible (outside {} K to {:.0e} K): check the value",
+            PLAUSIBLE_TEMPERATURE_K.0, PLAUSIBLE_TEMPERATURE_K.1
+        ));
+    }
+    let eb = t.landscape.barrier_height;
+    if eb > IMPLAUSIBLE_BARRIER_KT {
+        w.push(format!(
+            "the barrier is {eb:.4e} kT, above {IMPLAUSIBLE_BARRIER_KT} kT: implausible (rates of order e^-{eb:.0}); check the energy unit and units.temperature"
+        ));
+    }
+    w
 }
 
 /// What [`analyse_or_running`] found.
