@@ -280,6 +280,30 @@ fn landscape(out: &mut String, l: &LandscapeOut, u: &U) {
         s.add_row(vec![k.to_string(), v, un]);
     }
     show(out, s);
+    if let Some(f) = &l.fit {
+        let _ = match (f.rule, f.chi2) {
+            (Some(rule), Some(chi2)) => writeln!(
+                out,
+                "profile fit: {} ({rule}), χ² = {} over {} rows, {} effective degrees of freedom{}",
+                f.method,
+                num(chi2),
+                f.rows,
+                num(f.effective_dof),
+                f.noise_source
+                    .map_or(String::new(), |s| format!(", σ_U from {s}"))
+            ),
+            _ => writeln!(out, "profile fit: {} through {} rows", f.method, f.rows),
+        };
+    }
+    if !l.ignored_points.is_empty() {
+        let xs: Vec<String> = l.ignored_points.iter().map(|p| num(p.x)).collect();
+        let _ = writeln!(
+            out,
+            "taken for noise (below the significance threshold): {} stationary point(s) at x = {}",
+            xs.len(),
+            xs.join(", ")
+        );
+    }
 }
 
 fn warnings(out: &mut String, w: &[String]) {
