@@ -66,8 +66,9 @@ fn covers(x: &[f64], u: &[f64], sigma: &[f64], ell: f64, t: u64, k_true: f64) ->
 // in tests/reference_values.rs; the 401-row spline of the same profile differs by O(h⁴) ≈ 1e-8,
 // nothing next to the noise). Tables: the tool's noise model (`profile_noise` is what the draws
 // add) at ℓ = 0.15 and ℓ = 0.03 of the 4-unit table; at ℓ = 0.03 the noise biases 1/MFPT, so the
-// plain percentile interval of the draws sits on the wrong side (measured: 84% coverage with the
-// earlier percentile rule; the README has the figures).
+// plain percentile interval of the draws sits on the wrong side: the earlier intervals (percentiles
+// of the draws at rank (M − 1)p) covered 91.0% and 82.0% here and fail at ℓ = 0.03; the README
+// has the figures of every method tried.
 //
 // Tolerance: the count of covering tables is binomial, sd sqrt(0.95·0.05/200) = 1.54%; 4 of them,
 // 6.2%. No allowance for the 40 draws: the percentile rank (M + 1)p makes the interval's coverage
