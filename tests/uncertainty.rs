@@ -78,8 +78,8 @@ fn collapsed(i: &Interval, tol: f64) -> bool {
 }
 
 // σ_U = 0: every draw re-analyses a table rebuilt from identical knot values, so the draws repeat
-// the central computation; the only difference is the ln/exp round trip of the percentile summary
-// (a few ulps), hence 1e-12 (self-consistency, no external source).
+// the central computation; the only difference is the ln/exp round trip and the reflection 2θ̂ − q
+// of the interval (a few ulps), hence 1e-12 (self-consistency, no external source).
 #[test]
 fn zero_sigma_collapses_every_interval() {
     let m = quartic(0.0);
@@ -205,9 +205,11 @@ fn analytic_shift_of_ln_mfpt_rate() {
     let tol_w = 4.0 * 0.19 * want + 0.02 * want_w;
     eprintln!("95% width of ln k = {width:.4} (predicted {want_w:.4} ± {tol_w:.4})");
     assert!((width - want_w).abs() < tol_w, "{width} vs {want_w}");
-    // the median of ln k stays at ln k0: standard error of a normal median 1.2533 sd/sqrt(N), 4 of
-    // them; the second-order (Jensen) bias σ² s²/ℓ² ≈ 1.4e-3 is far smaller.
-    let shift = (k.median / k.central).ln();
+    // the draws' median of ln k stays at ln k0, and so does the bias-corrected estimate
+    // 2 ln k0 − (that median): standard error of a normal median 1.2533 sd/sqrt(N), 4 of them; the
+    // second-order (Jensen) bias σ² s²/ℓ² ≈ 1.4e-3 is far smaller.
+    let shift = (k.draws_median / k.central).ln();
+    assert!(((k.median / k.central).ln() + shift).abs() < 1e-12);
     let tol_m = 4.0 * 1.2533 * want / (n as f64).sqrt();
     eprintln!("median ln k - ln k0 = {shift:.4} (± {tol_m:.4})");
     assert!(shift.abs() < tol_m, "{shift}");
@@ -287,7 +289,8 @@ fn no_sigma_column_or_no_table_gives_none_and_bad_options_name_keys() {
 
 // The shipped example table (invented ion-pair PMF with a sigma_U column): every draw is analysed
 // and the exact 1/MFPT, which averages the knot noise over the thermal windows, keeps its
-// unperturbed value inside the draws' 95% interval (self-consistency, no external source).
+// unperturbed value inside the draws' 95% spread, hence inside the reflected interval
+// (self-consistency, no external source).
 #[test]
 fn example_table_propagates() {
     let m = Model::load(std::path::Path::new("examples/pmf_table.toml"), &[]).unwrap();
@@ -298,5 +301,16 @@ fn example_table_propagates() {
     let k = &r.rates[1];
     assert!(k.ci95[0] <= k.central && k.central <= k.ci95[1], "{k:?}");
     assert!(k.ci95[0] <= k.ci68[0] && k.ci68[0] <= k.median && k.median <= k.ci68[1]);
+    // the basic interval is the draws' spread reflected about k0 in ln k: k0²/q (rounding of the
+    // ln/exp round trip, 1e-12)
+    let c2 = k.central * k.central;
+    assert!(
+        (k.ci95[0] * k.draws_ci95[1] / c2 - 1.0).abs() < 1e-12,
+        "{k:?}"
+    );
+    assert!(
+        (k.ci95[1] * k.draws_ci95[0] / c2 - 1.0).abs() < 1e-12,
+        "{k:?}"
+    );
     eprintln!("{}", serde_json::to_string(&r).unwrap());
 }

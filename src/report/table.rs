@@ -404,7 +404,7 @@ fn uncertainty(
 ) {
     let _ = writeln!(
         out,
-        "profile uncertainty: {} perturbed profiles (Gaussian noise of the table's sigma_U, correlation length {} {}, seed {}){}",
+        "profile uncertainty: {} perturbed profiles (Gaussian noise of the table's sigma_U, correlation length {} {}, seed {}){}; basic bootstrap intervals (the draws' spread reflected about the unperturbed value, which corrects a shift the noise causes)",
         q.draws,
         num(q.correlation_length),
         u.l,
@@ -419,7 +419,7 @@ fn uncertainty(
     t.set_header(vec![
         "quantity".to_string(),
         "unperturbed".to_string(),
-        "median".to_string(),
+        "bias-corrected".to_string(),
         "68% interval".to_string(),
         "95% interval".to_string(),
     ]);
