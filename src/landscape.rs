@@ -203,10 +203,11 @@ pub fn stationary_points(pot: &dyn Potential) -> Result<Vec<Stationary>, Landsca
 /// smallest difference first. This is the persistence simplification of a 1-D function
 /// (Edelsbrunner, Letscher & Zomorodian, Discrete Comput. Geom. 28, 511 (2002)): removing the
 /// closest pair first guarantees that the neighbours left behind are the deeper minimum and the
-/// higher maximum, so what survives does not depend on the order of the noise. A domain end acts
-/// as a fixed neighbour: a maximum (minimum) next to an end that lies less than the threshold
-/// below (above) it is a bump (dip) at the wall, not a barrier (well), and is dropped alone. The
-/// last minimum is never dropped.
+/// higher maximum, so what survives does not depend on the order of the noise. A maximum next to
+/// a domain end that rises less than the threshold above the end is a bump at the wall, not a
+/// barrier, and is dropped alone; a minimum next to an end is judged against its inner neighbour
+/// only (a reflecting wall has no basin beyond it to merge with). The last minimum is never
+/// dropped.
 pub fn significant(
     pot: &dyn Potential,
     mut pts: Vec<Stationary>,
@@ -216,10 +217,16 @@ pub fn significant(
     let (u_lo, u_hi) = (pot.u(lo), pot.u(hi));
     let thr = |p: &Stationary| pot.prominence_threshold(p.x);
     loop {
-        // (difference, first index, how many points go)
+        // (difference, first index, how many points go); a candidate that would take the last
+        // minimum is never offered
         let mut best: Option<(f64, usize, usize)> = None;
+        let minima = pts.iter().filter(|p| p.kind == Kind::Minimum).count();
         let mut offer = |d: f64, i: usize, k: usize, limit: f64| {
-            if d < limit && best.is_none_or(|b| d < b.0) {
+            let gone = pts[i..i + k]
+                .iter()
+                .filter(|p| p.kind == Kind::Minimum)
+                .count();
+            if d < limit && gone < minima && best.is_none_or(|b| d < b.0) {
                 best = Some((d, i, k));
             }
         };
@@ -229,28 +236,18 @@ pub fn significant(
                 offer((a.u - b.u).abs(), i, 2, thr(a).max(thr(b)));
             }
         }
-        let sign = |p: &Stationary| if p.kind == Kind::Maximum { 1.0 } else { -1.0 };
-        if let Some(p) = pts.first() {
-            let d = sign(p) * (p.u - u_lo);
-            if d >= 0.0 {
-                offer(d, 0, 1, thr(p));
-            }
-        }
-        if let Some(p) = pts.last() {
-            let d = sign(p) * (p.u - u_hi);
-            if d >= 0.0 {
-                offer(d, pts.len() - 1, 1, thr(p));
+        // a maximum next to an end, barely above it, is a bump at the wall; a minimum next to an
+        // end is judged against its other neighbour only (the wall has no basin beyond it)
+        let ends = [
+            (pts.first(), u_lo, 0),
+            (pts.last(), u_hi, pts.len().saturating_sub(1)),
+        ];
+        for (p, u_end, i) in ends {
+            if let Some(p) = p.filter(|p| p.kind == Kind::Maximum && p.u >= u_end) {
+                offer(p.u - u_end, i, 1, thr(p));
             }
         }
         let Some((_, i, k)) = best else { break };
-        let minima_left = pts.iter().filter(|p| p.kind == Kind::Minimum).count()
-            - pts[i..i + k]
-                .iter()
-                .filter(|p| p.kind == Kind::Minimum)
-                .count();
-        if minima_left == 0 {
-            break;
-        }
         dropped.extend(pts.drain(i..i + k));
     }
     dropped.sort_by(|a, b| a.x.total_cmp(&b.x));
@@ -637,6 +634,79 @@ mod tests {
         assert_eq!(l.target_rule, TargetRule::MetastableDrop);
         assert!((cu.u(l.target) - (eb - 10.0)).abs() < 1e-9);
         assert!((l.turning_point + ll / 3.0).abs() < 1e-12);
+    }
+
+    /// A potential given by its values at a few points (piecewise linear; only U at the ends and
+    /// the threshold matter to `significant`).
+    #[derive(Debug)]
+    struct Ends {
+        lo: f64,
+        hi: f64,
+        u_lo: f64,
+        u_hi: f64,
+        threshold: f64,
+    }
+    impl Potential for Ends {
+        fn u(&self, x: f64) -> f64 {
+            if x <= self.lo { self.u_lo } else { self.u_hi }
+        }
+        fn du(&self, _: f64) -> f64 {
+            0.0
+        }
+        fn d2u(&self, _: f64) -> f64 {
+            0.0
+        }
+        fn domain(&self) -> (f64, f64) {
+            (self.lo, self.hi)
+        }
+        fn prominence_threshold(&self, _: f64) -> f64 {
+            self.threshold
+        }
+    }
+
+    fn pt(x: f64, u: f64, kind: Kind) -> Stationary {
+        Stationary {
+            x,
+            u,
+            curvature: if kind == Kind::Minimum { 1.0 } else { -1.0 },
+            kind,
+        }
+    }
+
+    // The persistence rule by hand (threshold 0.6 kT): a 0.3 kT noise pair inside a well goes, the
+    // smallest pair first; the real 8 kT barrier and both wells stay; a well next to the wall stays
+    // although the wall end is only 0.3 kT above it (a wall has no basin to merge with); a bump of
+    // 0.2 kT at the far end goes alone.
+    #[test]
+    fn significance_keeps_wells_at_walls_and_drops_noise_pairs() {
+        use Kind::{Maximum as Max, Minimum as Min};
+        let pot = Ends {
+            lo: 0.0,
+            hi: 4.0,
+            u_lo: 0.3,
+            u_hi: -2.9,
+            threshold: 0.6,
+        };
+        let pts = vec![
+            pt(0.1, 0.0, Min),
+            pt(1.0, 8.0, Max),
+            pt(2.0, -3.0, Min),
+            pt(2.2, -2.7, Max),
+            pt(2.3, -2.9, Min),
+            pt(3.9, -2.7, Max),
+        ];
+        let (kept, dropped) = significant(&pot, pts);
+        let xs: Vec<f64> = kept.iter().map(|p| p.x).collect();
+        assert_eq!(xs, vec![0.1, 1.0, 2.0], "{dropped:?}");
+        assert_eq!(dropped.len(), 3);
+        // the last minimum is never dropped, even when every pair is below the threshold
+        let flat = Ends {
+            threshold: 100.0,
+            ..pot
+        };
+        let (kept, _) = significant(&flat, vec![pt(1.0, 0.0, Min), pt(2.0, 0.5, Max)]);
+        assert_eq!(kept.len(), 1);
+        assert_eq!(kept[0].kind, Min);
     }
 
     #[test]

@@ -275,12 +275,6 @@ struct Draw {
 }
 
 /// Median knot spacing.
-fn median_spacing(x: &[f64]) -> f64 {
-    let mut h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();
-    h.sort_by(f64::total_cmp);
-    quantile(&h, 0.5)
-}
-
 /// Percentile of sorted data: linear interpolation at rank (M + 1)p, clamped to the sample
 /// (Hyndman & Fan, def. 6).
 fn quantile(sorted: &[f64], p: f64) -> f64 {
@@ -513,7 +507,7 @@ pub fn propagate(
     }
     let x = table.spline().knots();
     let ell = match opts.correlation_length {
-        None => median_spacing(x),
+        None => crate::potential::table::median_spacing(x),
         Some(v) if v.is_finite() && v >= 0.0 => v,
         Some(v) => return Err(UncertaintyError::BadCorrelationLength { value: v }),
     };
