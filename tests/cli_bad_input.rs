@@ -474,6 +474,47 @@ const CASES: &[Case] = &[
         "cannot read \"heavy\" as a quantity",
         "",
     ),
+    // the fit of noisy tables and the significance threshold
+    with_args(
+        "survey",
+        "table_sigma.toml",
+        &["--set", "potential.noise=0.1"],
+        "",
+        "potential.noise",
+        "drop potential.noise",
+    ),
+    with_args(
+        "survey",
+        "table_sigma.toml",
+        &["--set", "potential.fit=\"spline\""],
+        "",
+        "potential.fit",
+        "unknown fit",
+    ),
+    with_args(
+        "survey",
+        "table_exact.toml",
+        &["--set", "potential.fit=\"chi-square\""],
+        "",
+        "potential.fit",
+        "standard errors",
+    ),
+    with_args(
+        "survey",
+        "table_sigma.toml",
+        &["--set", "potential.prominence=-1"],
+        "",
+        "potential.prominence",
+        "must be a finite energy",
+    ),
+    with_args(
+        "survey",
+        "good.toml",
+        &["--set", "potential.prominence=1"],
+        "",
+        "potential.prominence",
+        "applies to table potentials only",
+    ),
     // with several --set, the message must name the one that is wrong (and only that one)
     with_args(
         "rate",
