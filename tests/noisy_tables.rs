@@ -44,11 +44,10 @@ fn noise(n: usize, ell_rows: f64, seed: u64) -> Vec<f64> {
         .collect()
 }
 
-/// The example profile's rows (x in angstrom, U in kcal/mol).
-fn example_rows() -> (Vec<f64>, Vec<f64>) {
+/// The example profile's rows: x (angstrom), U and sigma_U (kcal/mol).
+fn example_rows() -> (Vec<f64>, Vec<f64>, Vec<f64>) {
     let text = std::fs::read_to_string("examples/pmf_profile.csv").unwrap();
-    let mut x = Vec::new();
-    let mut u = Vec::new();
+    let (mut x, mut u, mut s) = (Vec::new(), Vec::new(), Vec::new());
     for line in text
         .lines()
         .filter(|l| !l.starts_with('#') && !l.starts_with('x'))
@@ -56,8 +55,9 @@ fn example_rows() -> (Vec<f64>, Vec<f64>) {
         let f: Vec<f64> = line.split(',').map(|v| v.parse().unwrap()).collect();
         x.push(f[0]);
         u.push(f[1]);
+        s.push(f[2]);
     }
-    (x, u)
+    (x, u, s)
 }
 
 /// How a noisy copy of the example is made.
@@ -74,13 +74,7 @@ struct Noise {
 
 /// The example scenario on a noisy copy of its profile.
 fn noisy_example(dir: &Path, tag: &str, nz: &Noise, seed: u64, fit: &str) -> Model {
-    let (x, u) = example_rows();
-    let text = std::fs::read_to_string("examples/pmf_profile.csv").unwrap();
-    let own_sigma: Vec<f64> = text
-        .lines()
-        .filter(|l| !l.starts_with('#') && !l.starts_with('x'))
-        .map(|l| l.split(',').nth(2).unwrap().parse().unwrap())
-        .collect();
+    let (x, u, own_sigma) = example_rows();
     let e = noise(x.len(), nz.ell_rows, seed);
     let h = x[1] - x[0];
     let mut csv = String::from("x,U,sigma_U\n");

@@ -164,8 +164,9 @@ impl Reinsch {
         y.iter().zip(&r).map(|(y, r)| y - r).collect()
     }
 
-    /// χ² at a finite α > 0 and the factors (no trace: what the probe-based risk needs).
-    fn chi2(&self, var: &[f64], alpha: f64) -> (f64, Factors) {
+    /// Solves at a finite α > 0: the factors of B, γ, the residuals y − g and χ² (no trace:
+    /// what the probe-based risk needs).
+    fn solve(&self, var: &[f64], alpha: f64) -> (Factors, Vec<f64>, Vec<f64>, f64) {
         let fac = self.factor(alpha);
         let gamma = band_solve(&fac.0, &fac.1, &fac.2, self.qty.clone());
         let res = self.residuals(var, alpha, &gamma);
@@ -178,7 +179,7 @@ impl Reinsch {
                 }
             })
             .sum();
-        (chi2, fac)
+        (fac, gamma, res, chi2)
     }
 
     /// H e for probe data e with the factors of B at α already made.
@@ -195,18 +196,7 @@ impl Reinsch {
     fn fit(&self, y: &[f64], var: &[f64], alpha: f64) -> Smoothed {
         let m = self.r0.len();
         let n = m + 2;
-        let (d, e, f) = self.factor(alpha);
-        let gamma = band_solve(&d, &e, &f, self.qty.clone());
-        let res = self.residuals(var, alpha, &gamma);
-        let chi2 = (0..n)
-            .map(|i| {
-                if var[i] > 0.0 {
-                    res[i] * res[i] / var[i]
-                } else {
-                    0.0
-                }
-            })
-            .sum();
+        let ((d, e, f), gamma, res, chi2) = self.solve(var, alpha);
         let values: Vec<f64> = y.iter().zip(&res).map(|(y, r)| y - r).collect();
         // tr H = 2 + tr(B⁻¹R) = n − α tr(B⁻¹ QᵀΣQ) from the band of B⁻¹ (Hutchinson & de Hoog);
         // each form is taken where it does not cancel: the first for strong smoothing, the
@@ -526,7 +516,7 @@ fn risk_minimum(
                 s.chi2 + 2.0 * s.edf - target
             }
             Some(pr) => {
-                let (chi2, fac) = sys.chi2(var, alpha);
+                let (fac, _, _, chi2) = sys.solve(var, alpha);
                 chi2 + 2.0 * mean(&|e| quad(e, &sys.apply(e, var, alpha, &fac)), pr) - target
             }
         }

@@ -693,8 +693,9 @@ impl Potential for Table {
         if let Some(p) = self.prominence {
             return p;
         }
-        match (self.fit.method, self.sigma_at(x)) {
-            ("smoothing spline", Some(s)) => (PROMINENCE_SIGMAS * s).max(PROMINENCE_FLOOR_KT),
+        // a threshold from σ_U only where the curve is a fit to noisy rows
+        match (&self.fit_sigma, self.sigma_at(x)) {
+            (Some(_), Some(s)) => (PROMINENCE_SIGMAS * s).max(PROMINENCE_FLOOR_KT),
             _ => 0.0,
         }
     }
