@@ -38,13 +38,13 @@ fn bench(c: &mut Criterion) {
     g.bench_function("table_1e5_rows", |b| {
         b.iter(|| {
             let m = Model::load(black_box(&table), &[]).unwrap();
-            black_box(theory::analyse(&m).unwrap())
+            black_box(theory::analyse(&m.system).unwrap())
         })
     });
     g.bench_function("expr_formula", |b| {
         b.iter(|| {
             let m = Model::load(black_box(&expr), &[]).unwrap();
-            black_box(theory::analyse(&m).unwrap())
+            black_box(theory::analyse(&m.system).unwrap())
         })
     });
     g.finish();

@@ -19,6 +19,7 @@ pub mod scan;
 pub mod scenario;
 pub mod simulate;
 pub mod stats;
+pub mod system;
 pub mod theory;
 pub mod uncertainty;
 pub mod units;

@@ -72,13 +72,13 @@ fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
 }
 
 fn theory_of(m: &Model) -> Result<theory::TheoryReport, Failure> {
-    theory::analyse(m).map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
+    theory::analyse(&m.system).map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
 }
 
 /// The rates' intervals from a table's sigma_U column (None without one).
 fn uncertainty_of(m: &Model) -> Result<Option<escapade::uncertainty::UncertaintyReport>, Failure> {
-    let opts = escapade::uncertainty::UncertaintyOptions::for_model(m);
-    escapade::uncertainty::propagate(m, &opts)
+    let opts = m.uncertainty_options();
+    escapade::uncertainty::propagate(&m.system, &opts)
         .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))
 }
 
@@ -87,8 +87,13 @@ fn run(cli: Cli) -> Result<Done, Failure> {
     match cli.command {
         Command::Survey { file, plot, common } => {
             let m = load(Some(&file), &common)?;
-            let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass)
-                .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
+            let l = Landscape::analyse(
+                &m.system.potential,
+                m.system.start,
+                m.system.target,
+                m.system.mass,
+            )
+            .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             if let Some(path) = plot {
                 let rows = escapade::report::svg::fitted_rows(&m);
                 write_file(
@@ -105,7 +110,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
         }
         Command::Rate { file, common } => {
             let m = load(Some(&file), &common)?;
-            let analysis = theory::analyse_or_running(&m)
+            let analysis = theory::analyse_or_running(&m.system)
                 .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             let t = match analysis {
                 theory::Analysis::Full(t) => *t,
@@ -405,7 +410,8 @@ fn simulate_cmd(
         }
     } else {
         // `simulate` shows no theory section: its implausible-value warnings go with the run's
-        out.warnings.extend(theory::plausibility_warnings(&m, &t));
+        out.warnings
+            .extend(theory::plausibility_warnings(&m.system, &t));
         let r = SimulateReport {
             header: escapade::report::Header::new(&m),
             units: m.units.names.clone(),

@@ -324,7 +324,7 @@ fn point_theory(
     o.push(Override::parse(&format!("{key}={v:?}"))?);
     o.extend_from_slice(extra);
     let m = Model::load(file, &o)?;
-    let t = theory::analyse_or_running(&m).map_err(|e| ScanError::Point {
+    let t = theory::analyse_or_running(&m.system).map_err(|e| ScanError::Point {
         file: file.display().to_string(),
         key: key.to_string(),
         value: v,
@@ -415,8 +415,8 @@ pub fn run(
             rates: t.rates,
             periodic: t.periodic.as_ref().map(PeriodicPoint::theory),
             uncertainty: if m.uncertainty_given {
-                let opts = crate::uncertainty::UncertaintyOptions::for_model(&m);
-                crate::uncertainty::propagate(&m, &opts)
+                let opts = m.uncertainty_options();
+                crate::uncertainty::propagate(&m.system, &opts)
                     .map_err(|e| ScanError::Point {
                         file: file.display().to_string(),
                         key: spec.key.clone(),

@@ -7,10 +7,13 @@
 //! Dimensioned values may be strings with a unit ("5 /ps"), converted into the scenario's units
 //! while the file is read ([`crate::units::read_quantity`]; the `[units]` section is read first).
 
+use crate::potential::periodic::Periodic;
 use crate::potential::{
-    Diffusion, Family, FitChoice, Formula, FormulaPotential, Potential, Table, TableOptions,
-    smooth::Rule as SmoothRule, table::read_columns,
+    AnyPotential, Diffusion, Family, FitChoice, Formula, FormulaPotential, Potential, Table,
+    TableOptions, smooth::Rule as SmoothRule, table::read_columns,
 };
+use crate::system::System;
+use crate::uncertainty::{MIN_DRAWS, UncertaintyOptions};
 use crate::units::{UnitError, UnitNames, UnitScale, UnitSystem};
 use serde::Deserialize;
 use std::cell::RefCell;
@@ -431,66 +434,6 @@ impl Override {
     }
 }
 
-/// The potential in internal units.
-#[derive(Debug, Clone)]
-pub enum AnyPotential {
-    /// user formula
-    Formula(FormulaPotential),
-    /// built-in family
-    Family(Family),
-    /// profile table
-    Table(Table),
-    /// a formula or table extended periodically (potential.periodic)
-    Periodic(Box<crate::theory::periodic::Periodic<AnyPotential>>),
-}
-
-macro_rules! dispatch {
-    ($self:ident, $p:ident => $e:expr) => {
-        match $self {
-            AnyPotential::Formula($p) => $e,
-            AnyPotential::Family($p) => $e,
-            AnyPotential::Table($p) => $e,
-            AnyPotential::Periodic($p) => $e,
-        }
-    };
-}
-
-impl Potential for AnyPotential {
-    #[inline]
-    fn u(&self, x: f64) -> f64 {
-        dispatch!(self, p => p.u(x))
-    }
-    #[inline]
-    fn du(&self, x: f64) -> f64 {
-        dispatch!(self, p => p.du(x))
-    }
-    #[inline]
-    fn d2u(&self, x: f64) -> f64 {
-        dispatch!(self, p => p.d2u(x))
-    }
-    fn domain(&self) -> (f64, f64) {
-        dispatch!(self, p => p.domain())
-    }
-    fn scan_points(&self) -> Vec<f64> {
-        dispatch!(self, p => p.scan_points())
-    }
-    fn stationary_points(&self) -> Option<Vec<f64>> {
-        dispatch!(self, p => p.stationary_points())
-    }
-    fn knots(&self) -> Option<&[f64]> {
-        dispatch!(self, p => p.knots())
-    }
-    fn is_interpolated(&self) -> bool {
-        dispatch!(self, p => p.is_interpolated())
-    }
-    fn prominence_threshold(&self, x: f64) -> f64 {
-        dispatch!(self, p => p.prominence_threshold(x))
-    }
-    fn fit(&self) -> Option<&crate::potential::FitSummary> {
-        dispatch!(self, p => p.fit())
-    }
-}
-
 /// A validated scenario in internal units (energies in kT, lengths in units.length, times in
 /// units.time, masses in kT·time²/length²).
 #[derive(Debug, Clone)]
@@ -501,26 +444,12 @@ pub struct Model {
     pub title: Option<String>,
     /// unit conversion
     pub units: UnitSystem,
-    /// U(x)
-    pub potential: AnyPotential,
+    /// the physical system (potential, D, mass, friction, memory, period, start, target)
+    pub system: System,
     /// a short description of the potential for reports
     pub potential_label: String,
-    /// mass (internal), if given
-    pub mass: Option<f64>,
-    /// friction rate gamma, if given or derivable (kT/(m D))
-    pub friction: Option<f64>,
-    /// D(x)
-    pub diffusion: Diffusion,
-    /// states.start
-    pub start: Option<f64>,
-    /// states.target
-    pub target: Option<f64>,
     /// the `[simulation]` section, if any
     pub simulation: Option<SimulationSection>,
-    /// memory time of the friction kernel (units.time), if given
-    pub memory_time: Option<f64>,
-    /// period of a periodic landscape (the washboard's period, or potential.periodic)
-    pub period: Option<f64>,
     /// the `[uncertainty]` section (defaults when absent)
     pub uncertainty: UncertaintySection,
     /// true when an `[uncertainty]` section was given
@@ -528,6 +457,17 @@ pub struct Model {
 }
 
 impl Model {
+    /// The options of the `[uncertainty]` section (defaults where absent).
+    pub fn uncertainty_options(&self) -> UncertaintyOptions {
+        let u = &self.uncertainty;
+        let d = UncertaintyOptions::default();
+        UncertaintyOptions {
+            draws: u.draws.map_or(d.draws, |n| n as usize),
+            correlation_length: u.correlation_length,
+            seed: u.seed.unwrap_or(d.seed),
+        }
+    }
+
     /// Reads, overrides and validates a scenario file.
     ///
     /// # Errors
@@ -908,7 +848,7 @@ impl Validator<'_> {
         // [lo − L, lo + 2L] (tilt from the rise over one period)
         let (potential, label) = match (period, &potential) {
             (Some(l), AnyPotential::Formula(_) | AnyPotential::Table(_)) => {
-                let w = crate::theory::periodic::Periodic::new(potential, lo, l.min(hi - lo))
+                let w = Periodic::new(potential, lo, l.min(hi - lo))
                     .map_err(|e| self.err("potential.periodic", e.to_string()))?;
                 (
                     AnyPotential::Periodic(Box::new(w)),
@@ -927,12 +867,12 @@ impl Validator<'_> {
         if matches!(uncertainty.draws, Some(n) if n > MAX_DRAWS) {
             return Err(self.err("uncertainty.draws", format!("must be at most {MAX_DRAWS}")));
         }
-        if matches!(uncertainty.draws, Some(n) if n < crate::uncertainty::MIN_DRAWS as u64) {
+        if matches!(uncertainty.draws, Some(n) if n < MIN_DRAWS as u64) {
             return Err(self.err(
                 "uncertainty.draws",
                 format!(
                     "must be at least {} (below that the 95% percentiles are the extreme draws)",
-                    crate::uncertainty::MIN_DRAWS
+                    MIN_DRAWS
                 ),
             ));
         }
@@ -1040,17 +980,20 @@ impl Validator<'_> {
         Ok(Model {
             source: self.file.to_string(),
             title: sf.title,
+            system: System {
+                potential,
+                diffusion: diffusion_model,
+                mass: mass_int,
+                friction: friction_int,
+                memory_time,
+                period,
+                start,
+                target,
+                temperature_k: units.temperature,
+            },
             units,
-            potential,
             potential_label: label,
-            mass: mass_int,
-            friction: friction_int,
-            diffusion: diffusion_model,
-            start,
-            target,
             simulation: sf.simulation,
-            memory_time,
-            period,
             uncertainty,
             uncertainty_given,
         })
@@ -1403,8 +1346,8 @@ mod tests {
     #[test]
     fn loads_and_derives_diffusion() {
         let m = load(OK).unwrap();
-        assert_eq!(m.diffusion.constant(), Some(0.5));
-        assert_eq!(m.friction, Some(2.0));
+        assert_eq!(m.system.diffusion.constant(), Some(0.5));
+        assert_eq!(m.system.friction, Some(2.0));
     }
 
     #[test]
@@ -1433,7 +1376,7 @@ mod tests {
     fn overrides_apply_and_are_checked() {
         let o = [Override::parse("potential.barrier=8").unwrap()];
         let m = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap();
-        assert!((m.potential.u(0.0) - 8.0).abs() < 1e-12);
+        assert!((m.system.potential.u(0.0) - 8.0).abs() < 1e-12);
         let o = [Override::parse("potential.family=cubic").unwrap()];
         let e = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap_err();
         assert!(e.to_string().contains("potential.half_width"), "{e}");

@@ -81,9 +81,10 @@
 //! noisy profile), and a first-order correction of the shift is not to be trusted.
 
 use crate::landscape::{Kind, Landscape};
+use crate::potential::AnyPotential;
 use crate::potential::{Potential, Table};
-use crate::scenario::{AnyPotential, Model};
 use crate::simulate::engine::stream;
+use crate::system::System;
 use crate::theory::{self, Rates, TheoryError};
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -123,18 +124,6 @@ impl Default for UncertaintyOptions {
             draws: DEFAULT_DRAWS,
             correlation_length: None,
             seed: 1,
-        }
-    }
-}
-
-impl UncertaintyOptions {
-    /// The options of a scenario's `[uncertainty]` section (defaults where absent).
-    pub fn for_model(m: &Model) -> Self {
-        let u = &m.uncertainty;
-        Self {
-            draws: u.draws.map_or(DEFAULT_DRAWS, |d| d as usize),
-            correlation_length: u.correlation_length,
-            seed: u.seed.unwrap_or(1),
         }
     }
 }
@@ -396,7 +385,7 @@ fn basin(l: &Landscape, domain: (f64, f64)) -> (f64, f64) {
 }
 
 /// Analyses one (perturbed) table with the per-draw rules; `None` if the analysis fails.
-fn analyse_draw(table: &Table, model: &Model, basin: (f64, f64), target: f64) -> Option<Draw> {
+fn analyse_draw(table: &Table, model: &System, basin: (f64, f64), target: f64) -> Option<Draw> {
     let points = crate::landscape::stationary_points(table).ok()?;
     let reactant = points
         .iter()
@@ -493,7 +482,7 @@ fn decompose(key: &'static str, pairs: &[(f64, f64)]) -> Decomposition {
 /// Fewer than [`MIN_DRAWS`] draws, a negative or non-finite correlation length, an unperturbed
 /// profile that cannot be analysed, or every draw failing.
 pub fn propagate(
-    model: &Model,
+    model: &System,
     opts: &UncertaintyOptions,
 ) -> Result<Option<UncertaintyReport>, UncertaintyError> {
     let AnyPotential::Table(table) = &model.potential else {

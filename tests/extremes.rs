@@ -37,7 +37,7 @@ fn all_rates_finite(t: &theory::TheoryReport) {
 
 #[test]
 fn tiny_and_huge_barriers() {
-    let t = theory::analyse(&model(&["potential.barrier=0.1"])).unwrap();
+    let t = theory::analyse(&model(&["potential.barrier=0.1"]).system).unwrap();
     all_rates_finite(&t);
     assert!(
         t.regime
@@ -48,12 +48,12 @@ fn tiny_and_huge_barriers() {
     // below 5 kT only the exact MFPT can be trusted (and only when overdamped)
     assert!(t.regime.trusted.iter().all(|k| *k == "mfpt"));
     let m = model(&["potential.barrier=200"]);
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     all_rates_finite(&t);
     assert!(t.mfpt.ln_time > 190.0 && t.mfpt.ln_time < 210.0);
     // brute force asked for explicitly is refused, naming the cost and FFS
     let m = model(&["potential.barrier=200", "simulation.method=brute-force"]);
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let e = Plan::new(&m, &t).unwrap_err().to_string();
     assert!(e.contains("refused") && e.contains("ffs"), "{e}");
 }
@@ -65,7 +65,7 @@ fn frictions_over_eight_decades_in_theory_and_short_simulations() {
     for ratio in [1e-4, 1e-2, 1.0, 1e2, 1e4] {
         let g = format!("particle.friction={:?}", ratio * wb);
         let m = model(&[&g]);
-        let t = theory::analyse(&m).unwrap();
+        let t = theory::analyse(&m.system).unwrap();
         all_rates_finite(&t);
         // a short censored run: no NaN anywhere, underdamped with an explicit dynamics
         let m = model(&[
@@ -74,7 +74,7 @@ fn frictions_over_eight_decades_in_theory_and_short_simulations() {
             "simulation.trajectories=16",
             "simulation.max_time=2.0",
         ]);
-        let t = theory::analyse(&m).unwrap();
+        let t = theory::analyse(&m.system).unwrap();
         let plan = Plan::new(&m, &t).unwrap();
         let r = run_ensemble(
             &plan,
@@ -93,7 +93,7 @@ fn frictions_over_eight_decades_in_theory_and_short_simulations() {
         "simulation.trajectories=4",
         "simulation.max_time=1",
     ]);
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let plan = Plan::new(&m, &t).unwrap();
     assert!(
         plan.warnings
@@ -124,7 +124,7 @@ fn profiles_of_ten_and_a_million_rows() {
     // 10 rows: coarse, but analysed, with the coarse-profile warning
     let d = table_of(10);
     let m = Model::load(&d.join("s.toml"), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     all_rates_finite(&t);
     assert!(t.regime.warnings.iter().any(|w| w.contains("too coarse")));
     let _ = std::fs::remove_dir_all(&d);
@@ -132,7 +132,7 @@ fn profiles_of_ten_and_a_million_rows() {
     // [-2, 2], reflecting at -2) to the quadrature tolerance
     let d = table_of(1_000_000);
     let m = Model::load(&d.join("s.toml"), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let exact = Model::from_text(
         "[particle]\nmass = 1.0\nfriction = 1.0\n[potential]\nexpr = \"5*(x^2-1)^2\"\ndomain = [-2.0, 2.0]\n[states]\nstart = -1.0\n",
         "e",
@@ -140,7 +140,7 @@ fn profiles_of_ten_and_a_million_rows() {
         &[],
     )
     .unwrap();
-    let te = theory::analyse(&exact).unwrap();
+    let te = theory::analyse(&exact.system).unwrap();
     assert!((t.mfpt.ln_time - te.mfpt.ln_time).abs() < 1e-6);
     let _ = std::fs::remove_dir_all(&d);
 }

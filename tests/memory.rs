@@ -20,7 +20,7 @@ use std::sync::atomic::AtomicBool;
 fn model(text: &str, sets: &[String]) -> (Model, TheoryReport) {
     let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
     let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     (m, t)
 }
 

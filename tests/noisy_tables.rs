@@ -125,7 +125,7 @@ fn ratio_smol_mfpt(t: &TheoryReport) -> f64 {
 #[test]
 fn noisy_example_finds_the_true_landscape() {
     let clean_model = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
-    let clean = theory::analyse(&clean_model).unwrap();
+    let clean = theory::analyse(&clean_model.system).unwrap();
     let truth = &clean.landscape.points;
     assert_eq!(truth.len(), 3, "{truth:?}");
     let dir = scratch("landscape");
@@ -133,7 +133,7 @@ fn noisy_example_finds_the_true_landscape() {
     for (ell, seeds) in [(1.0, 0..8u64), (5.0, 100..108u64)] {
         for seed in seeds {
             let m = noisy_example(&dir, "a", &strong(ell), seed, "unbiased-risk");
-            let t = theory::analyse(&m).unwrap();
+            let t = theory::analyse(&m.system).unwrap();
             let l = &t.landscape;
             let got: Vec<(Kind, f64)> = l.points.iter().map(|p| (p.kind, p.x)).collect();
             let us: Vec<f64> = l.points.iter().map(|p| p.u).collect();
@@ -176,7 +176,7 @@ fn interpolating_a_noisy_table_finds_noise() {
     let spurious = (0..8u64)
         .filter(|&seed| {
             let m = noisy_example(&dir, "b", &strong(1.0), seed, "interpolate");
-            theory::analyse(&m).map_or(true, |t| t.landscape.points.len() != 3)
+            theory::analyse(&m.system).map_or(true, |t| t.landscape.points.len() != 3)
         })
         .count();
     assert!(
@@ -194,7 +194,7 @@ fn interpolating_a_noisy_table_finds_noise() {
 #[test]
 fn umbrella_like_noise_under_a_misstated_correlation() {
     let clean_model = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
-    let clean = theory::analyse(&clean_model).unwrap();
+    let clean = theory::analyse(&clean_model.system).unwrap();
     let (lo, hi) = theory::accuracy_band("smoluchowski", clean.landscape.barrier_height);
     let dir = scratch("umbrella");
     let nz = Noise {
@@ -206,12 +206,12 @@ fn umbrella_like_noise_under_a_misstated_correlation() {
     let mut ratios = Vec::new();
     for seed in 0..6u64 {
         let m = noisy_example(&dir, "c", &nz, seed, "unbiased-risk");
-        let t = theory::analyse(&m).unwrap();
+        let t = theory::analyse(&m.system).unwrap();
         assert_eq!(t.landscape.points.len(), 3, "seed {seed}");
         ratios.push(ratio_smol_mfpt(&t) / ratio_smol_mfpt(&clean));
         let mut given = m.clone();
-        given.target = Some(5.9);
-        let tt = theory::analyse(&given).unwrap();
+        given.system.target = Some(5.9);
+        let tt = theory::analyse(&given.system).unwrap();
         let p = tt.landscape.product.unwrap();
         // the product well's thermal width sqrt(kT/U'') is 0.34 angstrom
         assert!((p - 5.9).abs() < 0.34, "seed {seed}: product at {p}");
@@ -233,10 +233,10 @@ fn umbrella_like_noise_under_a_misstated_correlation() {
 #[test]
 fn exact_table_keeps_its_values() {
     let m = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let o = escapade::scenario::Override::parse("potential.fit=\"interpolate\"").unwrap();
     let mi = Model::load(Path::new("examples/pmf_table.toml"), &[o]).unwrap();
-    let ti = theory::analyse(&mi).unwrap();
+    let ti = theory::analyse(&mi.system).unwrap();
     assert!((t.landscape.barrier_height - ti.landscape.barrier_height).abs() < 0.01);
     let k = t.rates.mfpt.unwrap() / ti.rates.mfpt.unwrap();
     assert!((k - 1.0).abs() < 0.01, "{k}");
@@ -253,7 +253,7 @@ fn exact_table_keeps_its_values() {
 #[test]
 fn disagreeing_trusted_rates_are_flagged() {
     let m = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     assert_eq!(t.regime.trusted, vec!["mfpt"]);
     assert!(
         t.regime
@@ -273,7 +273,7 @@ domain = [-2.5, 2.5]
 start = -1.0
 "#;
     let m = Model::from_text(text, "dw", Path::new("."), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     assert!(t.regime.trusted.contains(&"smoluchowski"), "{:?}", t.regime);
     assert!(!t.regime.warnings.iter().any(|w| w.contains("believe")));
     // With inertia at γ/ω_b = 5 (where 1/MFPT starts to hold) Kramers keeps its transmission
@@ -291,7 +291,7 @@ domain = [-2.5, 2.5]
 start = -1.0
 "#;
     let m = Model::from_text(text, "dw50", Path::new("."), &[]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let g = t.regime.gamma_over_omega_barrier.unwrap();
     assert!((g - 5.0).abs() < 0.01, "γ/ω_b = {g}");
     for key in ["kramers", "smoluchowski", "mfpt"] {
@@ -316,13 +316,18 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
             continue;
         }
         let m = Model::load(&path, &[]).unwrap();
-        if m.period.is_some() || path.ends_with("pmf_table.toml") {
+        if m.system.period.is_some() || path.ends_with("pmf_table.toml") {
             continue;
         }
-        let Ok(exact) = Landscape::analyse(&m.potential, m.start, m.target, m.mass) else {
+        let Ok(exact) = Landscape::analyse(
+            &m.system.potential,
+            m.system.start,
+            m.system.target,
+            m.system.mass,
+        ) else {
             continue;
         };
-        let (lo, hi) = m.potential.domain();
+        let (lo, hi) = m.system.potential.domain();
         let n = 401;
         let x: Vec<f64> = (0..n)
             .map(|i| lo + (hi - lo) * i as f64 / (n - 1) as f64)
@@ -333,7 +338,7 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
                 x: x.clone(),
                 u: x.iter()
                     .zip(&e)
-                    .map(|(&x, e)| m.potential.u(x) + 0.3 * e)
+                    .map(|(&x, e)| m.system.potential.u(x) + 0.3 * e)
                     .collect(),
                 sigma_u: Some(vec![0.3; n]),
                 d: None,
@@ -344,7 +349,7 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
             };
             let t = Table::with_options(&cols, 1.0, opts);
             let name = path.display();
-            let l = Landscape::analyse(&t, m.start, m.target, m.mass)
+            let l = Landscape::analyse(&t, m.system.start, m.system.target, m.system.mass)
                 .unwrap_or_else(|err| panic!("{name}, ℓ = {ell}: {err}"));
             let near = |a: f64, b: f64, curvature: f64, what: &str| {
                 let width = 1.0 / curvature.abs().sqrt();
@@ -362,7 +367,7 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
             near(l.barrier, exact.barrier, exact.curvature_barrier, "barrier");
             assert_eq!(l.target_rule, exact.target_rule, "{name}");
             match (l.product, exact.product) {
-                (Some(p), Some(q)) => near(p, q, m.potential.d2u(q), "product"),
+                (Some(p), Some(q)) => near(p, q, m.system.potential.d2u(q), "product"),
                 (None, None) => {}
                 other => panic!("{name}, ℓ = {ell}, seed {seed}: product {other:?}"),
             }
@@ -370,7 +375,7 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
                 near(
                     l.target,
                     exact.target,
-                    m.potential.d2u(exact.target),
+                    m.system.potential.d2u(exact.target),
                     "target",
                 );
             }

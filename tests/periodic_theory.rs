@@ -3,9 +3,10 @@
 //! closed forms, exact identities and mpmath values written by reference/periodic.py
 //! (reference/periodic_values.json; formulas and method in reference/SOURCES.md, "Periodic").
 
+use escapade::potential::periodic::{Periodic, WrapError};
 use escapade::potential::table::Columns;
 use escapade::potential::{Diffusion, Family, Formula, FormulaPotential, Potential, Table};
-use escapade::theory::periodic::{Periodic, PeriodicError, PeriodicTheory, analyse};
+use escapade::theory::periodic::{PeriodicError, PeriodicTheory, analyse};
 use serde_json::Value;
 use std::collections::BTreeMap;
 
@@ -338,7 +339,10 @@ fn check_wrapper<P: Potential>(w: Periodic<P>, tilt: f64) {
 fn non_periodic_profile_is_an_error() {
     let p = FormulaPotential::new(formula("x^2 + cos(2*pi*x)"), 1.0, (-1.0, 2.0));
     let e = analyse(&p, &Diffusion::Constant(1.0), 0.0, 1.0, 0.0, None, None).unwrap_err();
-    assert!(matches!(e, PeriodicError::NotPeriodic { .. }), "{e}");
+    assert!(
+        matches!(e, PeriodicError::Wrap(WrapError::NotPeriodic { .. })),
+        "{e}"
+    );
     assert_eq!(e.key(), "potential");
     let w = washboard(1.0, 0.5, 1.0);
     let e = analyse(&w, &Diffusion::Constant(-1.0), 0.0, 1.0, 0.0, None, None).unwrap_err();

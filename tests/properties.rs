@@ -16,7 +16,7 @@ fn dw(eb: f64, a: f64, m: f64, g: f64) -> theory::TheoryReport {
         -a
     );
     let m = Model::from_text(&text, "p", Path::new("."), &[]).unwrap();
-    theory::analyse(&m).unwrap()
+    theory::analyse(&m.system).unwrap()
 }
 
 proptest! {
@@ -67,7 +67,7 @@ proptest! {
     fn merging_shards_is_order_independent(perm in Just(vec![0usize, 1, 2]).prop_shuffle()) {
         let text = "[particle]\nmass = 1.0\nfriction = 3.0\n[potential]\nfamily = \"double-well\"\nbarrier = 2.0\nhalf_width = 1.0\n[states]\nstart = -1.0\n[simulation]\ntrajectories = 90\nseed = 4\n";
         let m = Model::from_text(text, "p", Path::new("."), &[Override::parse("simulation.seed=4").unwrap()]).unwrap();
-        let t = theory::analyse(&m).unwrap();
+        let t = theory::analyse(&m.system).unwrap();
         let plan = Plan::new(&m, &t).unwrap();
         let dir = std::env::temp_dir().join(format!("escapade-prop-{}-{:?}", std::process::id(), perm));
         let _ = std::fs::remove_dir_all(&dir);

@@ -101,7 +101,7 @@ fn mfpt_through_the_scenario_pipeline() {
         let text =
             format!("[particle]\n{dline}\n[potential]\n{pot}\n[states]\nstart = {x0}\n{target}\n");
         let m = Model::from_text(&text, name, Path::new("reference"), &[]).unwrap();
-        let t = theory::analyse(&m).unwrap_or_else(|e| panic!("{name}: {e}"));
+        let t = theory::analyse(&m.system).unwrap_or_else(|e| panic!("{name}: {e}"));
         let l = &t.landscape;
         assert!((l.wall - a).abs() < 1e-12, "{name}: wall {}", l.wall);
         // minima from Brent (1e-15) or the spline (O(h^4) ~ 1e-8 shift)
@@ -165,7 +165,13 @@ fn actions_match_mpmath() {
         &[],
     )
     .unwrap();
-    let l = Landscape::analyse(&m.potential, m.start, m.target, m.mass).unwrap();
+    let l = Landscape::analyse(
+        &m.system.potential,
+        m.system.start,
+        m.system.target,
+        m.system.mass,
+    )
+    .unwrap();
     assert!((l.action.unwrap() / actions["table2000_reactant"] - 1.0).abs() < TABLE_REL);
     assert!((l.action_product.unwrap() / actions["table2000_product"] - 1.0).abs() < TABLE_REL);
 }
@@ -229,7 +235,7 @@ fn table_with_a_diffusion_column_matches_mpmath() {
         &[],
     )
     .unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     std::fs::remove_dir_all(&dir).ok();
     let want = f(case, "ln_T");
     assert!(

@@ -175,7 +175,7 @@ fn arrhenius_fit_recovers_an_exact_arrhenius_rate() {
     let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
     let fit = r.fits.iter().find(|x| x.rate == "tst").unwrap();
     let m = Model::load(&f, &[Override::parse("units.temperature=300").unwrap()]).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let eb = m.units.energy_from_kt(t.landscape.barrier_height);
     let a = t.landscape.omega_reactant.unwrap() / (2.0 * std::f64::consts::PI);
     assert!(
@@ -236,7 +236,7 @@ fn friction_scan_turnover_maximum_is_where_theory_puts_it() {
             &[Override::parse(&format!("particle.friction={g:?}")).unwrap()],
         )
         .unwrap();
-        let k = theory::analyse(&m).unwrap().rates.turnover.unwrap();
+        let k = theory::analyse(&m.system).unwrap().rates.turnover.unwrap();
         if k > best.1 {
             best = (g, k);
         }

@@ -21,7 +21,7 @@ fn model(text: &str, sets: &[&str]) -> Model {
 }
 
 fn run(m: &Model, threads: usize) -> (Plan, Vec<Outcome>) {
-    let t = theory::analyse(m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let plan = Plan::new(m, &t).unwrap();
     let never = AtomicBool::new(false);
     let opts = RunOptions {
@@ -157,7 +157,7 @@ fn overdamped_mfpt_matches_the_exact_quadrature() {
     check_mfpt(&out, &plan, reference_mfpt("dw5"), "dw5");
     // 2 kT against the library's quadrature (itself checked against mpmath to 1e-8)
     let m = model(DW, &["potential.barrier=2", "simulation.seed=12"]);
-    let exact = theory::analyse(&m).unwrap().mfpt.time;
+    let exact = theory::analyse(&m.system).unwrap().mfpt.time;
     let (plan, out) = run(&m, 0);
     check_mfpt(&out, &plan, exact, "dw2");
     // Euler–Maruyama as well
@@ -188,7 +188,7 @@ fn overdamped_schemes_with_strongly_varying_diffusion_match_the_exact_mfpt() {
     let text = "[particle]\ndiffusion_expr = \"0.8 + 0.2*cos(2*pi*x)\"\n[potential]\nexpr = \"-2*cos(2*pi*x) - 0.5*x\"\ndomain = [-1.0, 1.5]\n[states]\nstart = 0.0\ntarget = 1.0\n[simulation]\ntrajectories = 3000\nseed = 21\n";
     for scheme in ["leimkuhler-matthews", "euler-maruyama"] {
         let m = model(text, &[&format!("simulation.scheme={scheme}")]);
-        let exact = theory::analyse(&m).unwrap().mfpt.time;
+        let exact = theory::analyse(&m.system).unwrap().mfpt.time;
         let (plan, out) = run(&m, 0);
         check_mfpt(&out, &plan, exact, scheme);
     }
@@ -215,7 +215,7 @@ fn check_rate(outcomes: &[Outcome], plan: &Plan, theory: f64, low: f64, what: &s
 #[test]
 fn underdamped_rate_matches_kramers_at_moderate_friction() {
     let m = model(UD, &[]);
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let (plan, out) = run(&m, 0);
     check_rate(&out, &plan, t.rates.kramers.unwrap(), 0.12, "kramers");
 }
@@ -233,7 +233,7 @@ fn underdamped_rate_matches_melnikov_meshkov_at_weak_friction() {
             "simulation.trajectories=1500",
         ],
     );
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     assert_eq!(t.regime.name.as_str(), "turnover");
     let (plan, out) = run(&m, 0);
     check_rate(&out, &plan, t.rates.turnover.unwrap(), 0.17, "turnover");
@@ -259,7 +259,7 @@ fn tmp(name: &str) -> std::path::PathBuf {
 #[test]
 fn shards_merged_and_resumed_runs_equal_one_run() {
     let m = model(SMALL, &[]);
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     let plan = Plan::new(&m, &t).unwrap();
     let never = AtomicBool::new(false);
     let whole = run_ensemble(&plan, &RunOptions::default(), &never, |_, _| {})
@@ -318,7 +318,7 @@ fn shards_merged_and_resumed_runs_equal_one_run() {
     assert_eq!(records::read(&f).unwrap().outcomes, whole);
     // a record file of another scenario is refused
     let other = model(SMALL, &["simulation.seed=100"]);
-    let plan2 = Plan::new(&other, &theory::analyse(&other).unwrap()).unwrap();
+    let plan2 = Plan::new(&other, &theory::analyse(&other.system).unwrap()).unwrap();
     assert!(
         run_ensemble(
             &plan2,

@@ -13,7 +13,7 @@ const DW: &str = "[particle]\nmass = 1.3\nfriction = 1.0\n[potential]\nfamily = 
 fn run(sets: &[&str]) -> TheoryReport {
     let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
     let m = Model::from_text(DW, "dw", Path::new("."), &o).unwrap();
-    theory::analyse(&m).unwrap()
+    theory::analyse(&m.system).unwrap()
 }
 
 // Closed forms for the quartic well (PHYSICS.md §10): ω_a = sqrt(8 Eb/(m a²)), ω_b = ω_a/√2,

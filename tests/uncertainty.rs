@@ -63,7 +63,7 @@ fn run(m: &Model, draws: usize, ell: Option<f64>, seed: u64) -> UncertaintyRepor
         correlation_length: ell,
         seed,
     };
-    propagate(m, &opts).unwrap().unwrap()
+    propagate(&m.system, &opts).unwrap().unwrap()
 }
 
 fn collapsed(i: &Interval, tol: f64) -> bool {
@@ -249,7 +249,7 @@ fn no_sigma_column_or_no_table_gives_none_and_bad_options_name_keys() {
     )
     .unwrap();
     assert!(
-        propagate(&fam, &UncertaintyOptions::default())
+        propagate(&fam.system, &UncertaintyOptions::default())
             .unwrap()
             .is_none()
     );
@@ -261,14 +261,14 @@ fn no_sigma_column_or_no_table_gives_none_and_bad_options_name_keys() {
         .collect();
     let plain = model_with("plain", "diffusion = 1.0", -1.0, &rows, false);
     assert!(
-        propagate(&plain, &UncertaintyOptions::default())
+        propagate(&plain.system, &UncertaintyOptions::default())
             .unwrap()
             .is_none()
     );
     let m = quartic(0.1);
     let bad = |draws: usize, ell: Option<f64>| {
         propagate(
-            &m,
+            &m.system,
             &UncertaintyOptions {
                 draws,
                 correlation_length: ell,

@@ -6,7 +6,7 @@
 
 use escapade::scenario::Model;
 use escapade::theory;
-use escapade::uncertainty::{UncertaintyOptions, profile_noise, propagate};
+use escapade::uncertainty::{profile_noise, propagate};
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -33,7 +33,7 @@ fn truth() -> f64 {
     let text =
         format!("{PARTICLE}[potential]\nexpr = \"{EB}*(x^2-1)^2\"\ndomain = [-2.0, 2.0]\n{STATES}");
     let m = Model::from_text(&text, "truth.toml", Path::new("."), &[]).unwrap();
-    theory::analyse(&m).unwrap().rates.mfpt.unwrap()
+    theory::analyse(&m.system).unwrap().rates.mfpt.unwrap()
 }
 
 /// Whether the 95% interval of 1/MFPT of noisy table `t` (correlation length `ell`) holds `k_true`.
@@ -55,7 +55,7 @@ fn covers(x: &[f64], u: &[f64], sigma: &[f64], ell: f64, t: u64, k_true: f64) ->
     );
     let m = Model::from_text(&text, "scenario.toml", &dir, &[]).unwrap();
     std::fs::remove_dir_all(&dir).ok();
-    let r = propagate(&m, &UncertaintyOptions::for_model(&m))
+    let r = propagate(&m.system, &m.uncertainty_options())
         .unwrap()
         .unwrap();
     let k = r.rates.iter().find(|i| i.key == "mfpt").unwrap();

@@ -218,7 +218,7 @@ half_width = 1.0
 fn stokes_law_gives_d() {
     let hand = 1.380_649e-23 * 298.15 / (6.0 * std::f64::consts::PI * 0.89e-3 * 0.5e-6); // m²/s
     let (m, _) = common::model(STOKES, &[]);
-    let d = m.diffusion.constant().unwrap();
+    let d = m.system.diffusion.constant().unwrap();
     assert!(
         ((d - hand * 1e12) / d).abs() < 1e-14,
         "{d} vs {}",
@@ -237,7 +237,7 @@ fn stokes_law_gives_d() {
             "particle.radius=500",
         ],
     );
-    let d = m.diffusion.constant().unwrap();
+    let d = m.system.diffusion.constant().unwrap();
     assert!(
         ((d - hand * 1e6) / d).abs() < 1e-14,
         "{d} vs {}",
@@ -245,7 +245,7 @@ fn stokes_law_gives_d() {
     );
     // with a mass, γ = kT/(m D) = 6π η r/m (a rate, 1/s here), as with particle.diffusion
     let (m, _) = common::model(STOKES, &["units.mass=kg", "particle.mass=2e-15 kg"]);
-    let f = m.friction.unwrap();
+    let f = m.system.friction.unwrap();
     let want = 6.0 * std::f64::consts::PI * 0.89e-3 * 0.5e-6 / 2e-15; // 1/s
     assert!(((f - want) / want).abs() < 1e-14, "{f} vs {want}");
 }
@@ -288,8 +288,8 @@ fn a_table_with_d_needs_no_particle_section() {
     d_table(&dir);
     let bare = "[potential]\ntable = \"d.csv\"\n";
     let m = Model::from_text(bare, "bare", &dir, &[]).unwrap();
-    assert!(matches!(m.diffusion, Diffusion::Table(_)));
-    assert_eq!(m.mass, None);
+    assert!(matches!(m.system.diffusion, Diffusion::Table(_)));
+    assert_eq!(m.system.mass, None);
     let f = write(&dir, "bare.toml", bare);
     let empty = write(&dir, "empty.toml", &format!("[particle]\n{bare}"));
     assert_eq!(
@@ -302,8 +302,8 @@ fn a_table_with_d_needs_no_particle_section() {
     // with a mass the friction of the inertial rates is kT/(m D(x_b)), D at the barrier x = 0
     let with_mass =
         Model::from_text(&format!("[particle]\nmass = 2.0\n{bare}"), "m", &dir, &[]).unwrap();
-    let t = theory::analyse(&with_mass).unwrap();
-    let d_b = with_mass.diffusion.value(t.landscape.barrier);
+    let t = theory::analyse(&with_mass.system).unwrap();
+    let d_b = with_mass.system.diffusion.value(t.landscape.barrier);
     assert_eq!(t.friction, Some(1.0 / (2.0 * d_b)));
     // without a D column the section is still required
     let plain = "x,U\n-2,45\n-1,0\n0,5\n1,0\n2,45\n";

@@ -7,11 +7,14 @@
 //! domain with reflecting walls at its ends; `wall_*` give the steep walls the simulation meets
 //! outside it.
 
+pub mod any;
 pub mod family;
 pub mod formula;
+pub mod periodic;
 pub mod smooth;
 pub mod table;
 
+pub use any::AnyPotential;
 pub use family::Family;
 pub use formula::{Formula, FormulaError};
 pub use table::{FitChoice, FitSummary, Spline, Table, TableError, TableOptions};

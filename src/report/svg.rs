@@ -960,7 +960,7 @@ const MAX_DRAWN_ROWS: usize = 120;
 /// tables (whose curve passes through every row).
 pub fn fitted_rows(m: &crate::scenario::Model) -> Option<Vec<ProfilePoint>> {
     use crate::potential::Potential;
-    let crate::scenario::AnyPotential::Table(t) = &m.potential else {
+    let crate::potential::AnyPotential::Table(t) = &m.system.potential else {
         return None;
     };
     if t.fit()?.method != "smoothing spline" {
@@ -990,7 +990,7 @@ pub fn landscape(
     data: Option<&[ProfilePoint]>,
 ) -> String {
     use crate::potential::Potential;
-    let pot: &dyn Potential = &m.potential;
+    let pot: &dyn Potential = &m.system.potential;
     let units = &m.units;
     let (lo, hi) = pot.domain();
     let e = |u_kt: f64| units.energy_from_kt(u_kt - l.u_reactant);
@@ -1354,8 +1354,13 @@ mod tests {
             &[],
         )
         .unwrap();
-        let l =
-            crate::landscape::Landscape::analyse(&m.potential, m.start, m.target, m.mass).unwrap();
+        let l = crate::landscape::Landscape::analyse(
+            &m.system.potential,
+            m.system.start,
+            m.system.target,
+            m.system.mass,
+        )
+        .unwrap();
         let pts = [
             ProfilePoint {
                 x: -1.0,

@@ -202,21 +202,21 @@ pub enum FastForce {
 
 impl FastForce {
     /// Chooses the fast form of `pot`'s force on `[lo, hi]`.
-    pub fn new(pot: &crate::scenario::AnyPotential) -> Self {
+    pub fn new(pot: &crate::potential::AnyPotential) -> Self {
         match pot {
-            crate::scenario::AnyPotential::Family(Family::DoubleWell { eb, a, .. }) => {
+            crate::potential::AnyPotential::Family(Family::DoubleWell { eb, a, .. }) => {
                 Self::DoubleWell(DoubleWellForce {
                     c: 4.0 * eb / (a * a),
                     inv_a2: 1.0 / (a * a),
                 })
             }
-            crate::scenario::AnyPotential::Family(Family::Cubic { eb, l, .. }) => {
+            crate::potential::AnyPotential::Family(Family::Cubic { eb, l, .. }) => {
                 Self::Cubic(CubicForce {
                     k1: 13.5 * eb / (l * l),
                     k2: 20.25 * eb / (l * l * l),
                 })
             }
-            crate::scenario::AnyPotential::Family(Family::Washboard {
+            crate::potential::AnyPotential::Family(Family::Washboard {
                 amp, period, tilt, ..
             }) => {
                 let k = 2.0 * PI / period;
@@ -309,7 +309,7 @@ mod tests {
     // The folded closed forms equal the family's U' (rounding only).
     #[test]
     fn folded_forces_match_the_families() {
-        use crate::scenario::AnyPotential;
+        use crate::potential::AnyPotential;
         let fams = [
             Family::DoubleWell {
                 eb: 5.0,

@@ -20,8 +20,9 @@ pub mod periodic;
 pub mod records;
 pub mod transitions;
 
+use crate::potential::AnyPotential;
 use crate::potential::{Diffusion, Potential};
-use crate::scenario::{AnyPotential, Model};
+use crate::scenario::Model;
 use crate::stats::Outcome;
 use crate::theory::TheoryReport;
 use engine::{Kind, Params, Start};
@@ -194,7 +195,7 @@ impl Plan {
     /// memory friction with explicit overdamped dynamics.
     pub fn new(m: &Model, t: &TheoryReport) -> Result<Self, SimError> {
         let s = m.simulation.clone().unwrap_or_default();
-        let memory = m.memory_time;
+        let memory = m.system.memory_time;
         let l = &t.landscape;
         let dynamics = match s.dynamics.as_deref() {
             Some("underdamped") => Dynamics::Underdamped,
@@ -209,7 +210,7 @@ impl Plan {
             None if memory.is_some() => Dynamics::Underdamped,
             // inertia matters below γ/ω_b = 5; above, the overdamped limit holds (to 4%) and is
             // far cheaper to integrate correctly
-            None if m.mass.is_some()
+            None if m.system.mass.is_some()
                 && t.friction.is_some()
                 && t.regime
                     .gamma_over_omega_barrier
@@ -255,7 +256,8 @@ impl Plan {
         };
         let (mass, gamma) = match dynamics {
             Dynamics::Underdamped => (
-                m.mass
+                m.system
+                    .mass
                     .ok_or_else(|| key_err("particle.mass", "underdamped dynamics needs a mass"))?,
                 t.friction.ok_or_else(|| {
                     key_err("particle.friction", "underdamped dynamics needs a friction")
@@ -263,9 +265,9 @@ impl Plan {
             ),
             Dynamics::Overdamped => (1.0, 0.0),
         };
-        let (lo, hi) = m.potential.domain();
-        let d_a = m.diffusion.value(l.reactant);
-        let d_b = m.diffusion.value(l.barrier);
+        let (lo, hi) = m.system.potential.domain();
+        let d_a = m.system.diffusion.value(l.reactant);
+        let d_b = m.system.diffusion.value(l.barrier);
         // the landscape's shortest time scale, and the default dt from it
         let (t_scale, t_scale_name, dt_default) = match dynamics {
             Dynamics::Underdamped => {
@@ -340,17 +342,19 @@ impl Plan {
         }
         let max_steps = max_steps_f as u64;
         let start = match s.start.as_deref() {
-            Some("thermal") => Start::Thermal(thermal_table(&m.potential, l.wall, l.barrier)),
+            Some("thermal") => {
+                Start::Thermal(thermal_table(&m.system.potential, l.wall, l.barrier))
+            }
             _ => Start::At(l.reactant),
         };
-        let force = FastForce::new(&m.potential);
+        let force = FastForce::new(&m.system.potential);
         if force.rel_error() > 1e-6 {
             warnings.push(format!(
                 "the tabulated force has a relative interpolation error of {:.1e}",
                 force.rel_error()
             ));
         }
-        let mobility = match (&m.diffusion, dynamics) {
+        let mobility = match (&m.system.diffusion, dynamics) {
             (Diffusion::Constant(_), _) | (_, Dynamics::Underdamped) => None,
             (d, Dynamics::Overdamped) => Some(GridD::new(d, lo, hi)),
         };
@@ -498,8 +502,8 @@ fn fingerprint(m: &Model, p: &Params, n: u64) -> u64 {
         let x = lo + (hi - lo) * f64::from(i) / 64.0;
         s.push_str(&format!(
             "{:?},{:?};",
-            m.potential.du(x),
-            m.diffusion.value(x)
+            m.system.potential.du(x),
+            m.system.diffusion.value(x)
         ));
     }
     fnv1a(s.as_bytes())
@@ -893,7 +897,7 @@ pub fn run_rare(
                     (v, false, vec![STAGE_GUESS; n])
                 }
                 None => {
-                    let (v, p) = ffs::place_interfaces(&m.potential, &m.diffusion, l);
+                    let (v, p) = ffs::place_interfaces(&m.system.potential, &m.system.diffusion, l);
                     (v, true, p)
                 }
             };
@@ -1007,7 +1011,7 @@ pub fn run_transitions(
             plan,
             f,
             mb,
-            &m.potential,
+            &m.system.potential,
             l,
             n,
             steps_f as u64,

@@ -13,7 +13,7 @@ pub mod turnover;
 
 use crate::landscape::{LOW_BARRIER_KT, Landscape, LandscapeError};
 use crate::potential::{Diffusion, Potential};
-use crate::scenario::Model;
+use crate::system::System;
 use mfpt::Mfpt;
 use regime::{DELTA_ED_VALID, DELTA_SPATIAL, RegimeName};
 use serde::Serialize;
@@ -285,7 +285,7 @@ fn between(l: &Landscape, a: f64, b: f64) -> Vec<f64> {
 ///
 /// # Errors
 /// Landscape problems (no minimum, no barrier, no target, …).
-pub fn analyse(model: &Model) -> Result<TheoryReport, TheoryError> {
+pub fn analyse(model: &System) -> Result<TheoryReport, TheoryError> {
     let pot = &model.potential;
     let l = Landscape::analyse(pot, model.start, model.target, model.mass)?;
     let t = rates_for(
@@ -324,7 +324,7 @@ pub const PLAUSIBLE_TEMPERATURE_K: (f64, f64) = (1.0, 1e5);
 /// Warnings about values that are valid but implausible (the results are still computed): a
 /// friction many orders of magnitude from ω_b (given, or implied by D), a temperature below 1 K
 /// or above 1e5 K, a barrier above 1000 kT.
-pub fn plausibility_warnings(model: &Model, t: &TheoryReport) -> Vec<String> {
+pub fn plausibility_warnings(model: &System, t: &TheoryReport) -> Vec<String> {
     let mut w = Vec::new();
     if let Some(r) = t.regime.gamma_over_omega_barrier
         && !(1.0 / IMPLAUSIBLE_FRICTION_RATIO..=IMPLAUSIBLE_FRICTION_RATIO).contains(&r)
@@ -333,7 +333,7 @@ pub fn plausibility_warnings(model: &Model, t: &TheoryReport) -> Vec<String> {
             "particle.friction (or the friction kT/(mD) implied by particle.diffusion) is {r:.2e} times the barrier frequency ω_b: implausible (beyond {IMPLAUSIBLE_FRICTION_RATIO:.0e} either way); check its value and time unit"
         ));
     }
-    if let Some(temp) = model.units.temperature
+    if let Some(temp) = model.temperature_k
         && !(PLAUSIBLE_TEMPERATURE_K.0..=PLAUSIBLE_TEMPERATURE_K.1).contains(&temp)
     {
         w.push(format!(
@@ -365,7 +365,7 @@ pub enum Analysis {
 ///
 /// # Errors
 /// As [`analyse`].
-pub fn analyse_or_running(model: &Model) -> Result<Analysis, TheoryError> {
+pub fn analyse_or_running(model: &System) -> Result<Analysis, TheoryError> {
     match analyse(model) {
         Ok(t) => Ok(Analysis::Full(Box::new(t))),
         Err(TheoryError::Landscape(LandscapeError::NoMinimum { .. })) if model.period.is_some() => {
@@ -384,7 +384,7 @@ pub fn analyse_or_running(model: &Model) -> Result<Analysis, TheoryError> {
 /// # Errors
 /// A profile that is not periodic, or non-finite values.
 pub fn analyse_periodic(
-    model: &Model,
+    model: &System,
     x_a_guess: f64,
     friction: Option<f64>,
 ) -> Result<periodic::PeriodicTheory, TheoryError> {
@@ -392,7 +392,7 @@ pub fn analyse_periodic(
     let period = model.period.ok_or(TheoryError::NotPeriodic)?;
     // the base period: the wrapper's own, or the washboard's domain start
     let x0 = match pot {
-        crate::scenario::AnyPotential::Periodic(w) => w.origin(),
+        crate::potential::AnyPotential::Periodic(w) => w.origin(),
         other => other.domain().0,
     };
     Ok(periodic::analyse(

@@ -12,7 +12,7 @@ use std::sync::atomic::AtomicBool;
 pub fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
     let o: Vec<Override> = sets.iter().map(|s| Override::parse(s).unwrap()).collect();
     let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
-    let t = theory::analyse(&m).unwrap();
+    let t = theory::analyse(&m.system).unwrap();
     (m, t)
 }
 
