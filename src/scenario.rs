@@ -12,11 +12,12 @@ use crate::potential::{
     AnyPotential, Diffusion, Family, FitChoice, Formula, FormulaPotential, Potential, Table,
     TableOptions, smooth::Rule as SmoothRule, table::read_columns,
 };
+use crate::simulate::Settings;
 use crate::system::System;
 use crate::uncertainty::{MIN_DRAWS, UncertaintyOptions};
+use crate::units::quantity::{self, with_scale};
 use crate::units::{UnitError, UnitNames, UnitScale, UnitSystem};
 use serde::Deserialize;
-use std::cell::RefCell;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use thiserror::Error;
@@ -63,111 +64,6 @@ pub enum ScenarioError {
         /// what is wrong
         message: String,
     },
-}
-
-thread_local! {
-    /// The scale of the scenario being read: dimensioned keys convert unit strings on reading.
-    static SCALE: RefCell<Option<UnitScale>> = const { RefCell::new(None) };
-}
-
-/// Runs `f` (a deserialisation) with `scale` as the scale for unit strings.
-fn with_scale<T>(scale: UnitScale, f: impl FnOnce() -> T) -> T {
-    let before = SCALE.replace(Some(scale));
-    let out = f();
-    SCALE.set(before);
-    out
-}
-
-/// Deserialisers of dimensioned keys: a number in the scenario's units, or a string with a unit
-/// ("5 /ps") converted into them by [`crate::units::read_quantity`].
-mod quantity {
-    use super::SCALE;
-    use crate::units::{Kind, UnitError, UnitScale, read_quantity};
-    use serde::de::{self, Deserialize, Deserializer, Visitor};
-    use std::fmt;
-
-    /// A value as written.
-    enum Raw {
-        Number(f64),
-        Text(String),
-    }
-
-    impl<'de> Deserialize<'de> for Raw {
-        fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-            struct V;
-            impl Visitor<'_> for V {
-                type Value = Raw;
-                fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-                    f.write_str("a number or a string with a unit (e.g. \"1.5 nm\")")
-                }
-                fn visit_f64<E>(self, v: f64) -> Result<Raw, E> {
-                    Ok(Raw::Number(v))
-                }
-                fn visit_i64<E>(self, v: i64) -> Result<Raw, E> {
-                    Ok(Raw::Number(v as f64))
-                }
-                fn visit_u64<E>(self, v: u64) -> Result<Raw, E> {
-                    Ok(Raw::Number(v as f64))
-                }
-                fn visit_str<E>(self, v: &str) -> Result<Raw, E> {
-                    Ok(Raw::Text(v.to_string()))
-                }
-            }
-            d.deserialize_any(V)
-        }
-    }
-
-    impl Raw {
-        fn value(self, kind: Kind) -> Result<f64, UnitError> {
-            match self {
-                Raw::Number(x) => Ok(x),
-                Raw::Text(t) => SCALE.with_borrow(|s| match s {
-                    Some(s) => read_quantity(&t, kind, s),
-                    None => read_quantity(&t, kind, &UnitScale::reduced()),
-                }),
-            }
-        }
-    }
-
-    fn one<'de, D: Deserializer<'de>>(d: D, kind: Kind) -> Result<Option<f64>, D::Error> {
-        Option::<Raw>::deserialize(d)?
-            .map(|r| r.value(kind).map_err(de::Error::custom))
-            .transpose()
-    }
-
-    macro_rules! kinds {
-        ($($name:ident => $kind:ident),* $(,)?) => {$(
-            pub fn $name<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
-                one(d, Kind::$kind)
-            }
-        )*};
-    }
-    kinds!(
-        energy => Energy,
-        length => Length,
-        time => Time,
-        rate => Rate,
-        diffusion => Diffusion,
-        mass => Mass,
-        force => Force,
-        viscosity => Viscosity,
-        temperature => Temperature,
-    );
-
-    /// Each entry of a list of lengths ("entry 2: ..." in errors).
-    fn lengths<E: de::Error>(raw: Vec<Raw>) -> Result<Vec<f64>, E> {
-        raw.into_iter()
-            .enumerate()
-            .map(|(i, r)| {
-                r.value(Kind::Length)
-                    .map_err(|e| E::custom(format!("entry {}: {e}", i + 1)))
-            })
-            .collect()
-    }
-
-    pub fn length_list<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
-        Option::<Vec<Raw>>::deserialize(d)?.map(lengths).transpose()
-    }
 }
 
 /// Internal masses, frictions and diffusion coefficients must lie in this range: beyond it actions
@@ -327,48 +223,6 @@ pub struct StatesSection {
     pub target: Option<f64>,
 }
 
-/// `[simulation]` (read and range-checked here; used by the simulation commands)
-#[derive(Debug, Clone, Default, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct SimulationSection {
-    /// "underdamped" | "overdamped"
-    pub dynamics: Option<String>,
-    /// integrator
-    pub scheme: Option<String>,
-    /// number of trajectories
-    pub trajectories: Option<u64>,
-    /// time step in units.time
-    #[serde(default, deserialize_with = "quantity::time")]
-    pub dt: Option<f64>,
-    /// censoring horizon in units.time
-    #[serde(default, deserialize_with = "quantity::time")]
-    pub max_time: Option<f64>,
-    /// master seed
-    pub seed: Option<u64>,
-    /// "minimum" | "thermal"
-    pub start: Option<String>,
-    /// "brute-force" | "ffs" | "reactive-flux" | "auto"
-    pub method: Option<String>,
-    /// step budget for method = "auto"
-    pub budget_steps: Option<f64>,
-    /// forward flux sampling: interface positions (units.length), the target last
-    #[serde(default, deserialize_with = "quantity::length_list")]
-    pub interfaces: Option<Vec<f64>>,
-    /// forward flux sampling: trials per stage and replica
-    pub trials: Option<u64>,
-    /// forward flux sampling: independent replicas (for the interval)
-    pub replicas: Option<u64>,
-    /// reactive flux: the window for κ(t), in units.time
-    #[serde(default, deserialize_with = "quantity::time")]
-    pub flux_time: Option<f64>,
-    /// also count well-to-well transitions (double wells)
-    pub well_to_well: Option<bool>,
-    /// well-to-well transitions expected over the whole count (sets the trajectory length)
-    pub transitions: Option<u64>,
-    /// independent long trajectories for the well-to-well count and periodic measurements
-    pub long_trajectories: Option<u64>,
-}
-
 /// The file as written.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -386,7 +240,7 @@ pub struct ScenarioFile {
     #[serde(default)]
     pub states: StatesSection,
     /// `[simulation]`
-    pub simulation: Option<SimulationSection>,
+    pub simulation: Option<Settings>,
     /// `[uncertainty]`
     pub uncertainty: Option<UncertaintySection>,
 }
@@ -449,7 +303,7 @@ pub struct Model {
     /// a short description of the potential for reports
     pub potential_label: String,
     /// the `[simulation]` section, if any
-    pub simulation: Option<SimulationSection>,
+    pub simulation: Option<Settings>,
     /// the `[uncertainty]` section (defaults when absent)
     pub uncertainty: UncertaintySection,
     /// true when an `[uncertainty]` section was given
@@ -999,36 +853,7 @@ impl Validator<'_> {
         })
     }
 
-    fn check_simulation(&self, s: &SimulationSection) -> Result<(), ScenarioError> {
-        let one_of = |key: &str, v: &Option<String>, allowed: &[&str]| {
-            if let Some(v) = v
-                && !allowed.contains(&v.as_str())
-            {
-                return Err(self.err(key, format!("{v:?} is not one of {}", allowed.join(", "))));
-            }
-            Ok(())
-        };
-        one_of(
-            "simulation.dynamics",
-            &s.dynamics,
-            &["underdamped", "overdamped"],
-        )?;
-        one_of(
-            "simulation.scheme",
-            &s.scheme,
-            &[
-                "baoab",
-                "baoab-memory",
-                "leimkuhler-matthews",
-                "euler-maruyama",
-            ],
-        )?;
-        one_of("simulation.start", &s.start, &["minimum", "thermal"])?;
-        one_of(
-            "simulation.method",
-            &s.method,
-            &["brute-force", "ffs", "reactive-flux", "auto"],
-        )?;
+    fn check_simulation(&self, s: &Settings) -> Result<(), ScenarioError> {
         self.positive("simulation.dt", s.dt)?;
         self.positive("simulation.max_time", s.max_time)?;
         self.positive("simulation.budget_steps", s.budget_steps)?;

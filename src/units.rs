@@ -1004,6 +1004,113 @@ pub fn read_quantity(text: &str, kind: Kind, scale: &UnitScale) -> Result<f64, U
     Ok(if neg { -x } else { x })
 }
 
+pub mod quantity {
+    //! Deserialisers of dimensioned keys: a number in the scenario's units, or a string with a
+    //! unit ("5 /ps") converted into them by [`read_quantity`] at the scale set by [`with_scale`].
+    use super::{Kind, UnitError, UnitScale, read_quantity};
+    use serde::de::{self, Deserialize, Deserializer, Visitor};
+    use std::cell::RefCell;
+    use std::fmt;
+
+    thread_local! {
+        /// The scale of the scenario being read: dimensioned keys convert unit strings on reading.
+        static SCALE: RefCell<Option<UnitScale>> = const { RefCell::new(None) };
+    }
+
+    /// Runs `f` (a deserialisation) with `scale` as the scale for unit strings.
+    pub fn with_scale<T>(scale: UnitScale, f: impl FnOnce() -> T) -> T {
+        let before = SCALE.replace(Some(scale));
+        let out = f();
+        SCALE.set(before);
+        out
+    }
+
+    /// A value as written.
+    enum Raw {
+        Number(f64),
+        Text(String),
+    }
+
+    impl<'de> Deserialize<'de> for Raw {
+        fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+            struct V;
+            impl Visitor<'_> for V {
+                type Value = Raw;
+                fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                    f.write_str("a number or a string with a unit (e.g. \"1.5 nm\")")
+                }
+                fn visit_f64<E>(self, v: f64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v))
+                }
+                fn visit_i64<E>(self, v: i64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v as f64))
+                }
+                fn visit_u64<E>(self, v: u64) -> Result<Raw, E> {
+                    Ok(Raw::Number(v as f64))
+                }
+                fn visit_str<E>(self, v: &str) -> Result<Raw, E> {
+                    Ok(Raw::Text(v.to_string()))
+                }
+            }
+            d.deserialize_any(V)
+        }
+    }
+
+    impl Raw {
+        fn value(self, kind: Kind) -> Result<f64, UnitError> {
+            match self {
+                Raw::Number(x) => Ok(x),
+                Raw::Text(t) => SCALE.with_borrow(|s| match s {
+                    Some(s) => read_quantity(&t, kind, s),
+                    None => read_quantity(&t, kind, &UnitScale::reduced()),
+                }),
+            }
+        }
+    }
+
+    fn one<'de, D: Deserializer<'de>>(d: D, kind: Kind) -> Result<Option<f64>, D::Error> {
+        Option::<Raw>::deserialize(d)?
+            .map(|r| r.value(kind).map_err(de::Error::custom))
+            .transpose()
+    }
+
+    macro_rules! kinds {
+        ($($name:ident => $kind:ident),* $(,)?) => {$(
+            #[doc = concat!("An optional ", stringify!($name), ": a number, or a string with a unit.")]
+            pub fn $name<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
+                one(d, Kind::$kind)
+            }
+        )*};
+    }
+    kinds!(
+        energy => Energy,
+        length => Length,
+        time => Time,
+        rate => Rate,
+        diffusion => Diffusion,
+        mass => Mass,
+        force => Force,
+        viscosity => Viscosity,
+        temperature => Temperature,
+    );
+
+    /// Each entry of a list of lengths ("entry 2: ..." in errors).
+    fn lengths<E: de::Error>(raw: Vec<Raw>) -> Result<Vec<f64>, E> {
+        raw.into_iter()
+            .enumerate()
+            .map(|(i, r)| {
+                r.value(Kind::Length)
+                    .map_err(|e| E::custom(format!("entry {}: {e}", i + 1)))
+            })
+            .collect()
+    }
+
+    /// An optional list of lengths, each a number or a string with a unit.
+    pub fn length_list<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
+        Option::<Vec<Raw>>::deserialize(d)?.map(lengths).transpose()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

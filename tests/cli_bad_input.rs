@@ -439,7 +439,7 @@ const CASES: &[Case] = &[
         "survey",
         "simulation_method_unknown.toml",
         "simulation.method",
-        "\"metropolis\"",
+        "unknown variant `metropolis`",
     ),
     // --- command line ---
     with_args(

@@ -18,6 +18,7 @@ pub mod flux;
 pub mod force;
 pub mod periodic;
 pub mod records;
+pub mod settings;
 pub mod transitions;
 
 use crate::potential::AnyPotential;
@@ -27,7 +28,8 @@ use crate::stats::Outcome;
 use crate::theory::TheoryReport;
 use engine::{Kind, Params, Start};
 use force::{ConstD, FastForce, GridD};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
+pub use settings::{MethodRequest, Scheme, Settings, StartRule};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::mpsc;
 use thiserror::Error;
@@ -129,7 +131,7 @@ fn key_err(key: &'static str, message: impl Into<String>) -> SimError {
 }
 
 /// Dynamics.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Dynamics {
     /// m ẍ = −U' − mγẋ + ξ
@@ -172,7 +174,7 @@ pub struct Plan {
     /// expected brute-force cost in steps (ensemble × expected escape time / dt)
     pub expected_brute_steps: f64,
     /// the `[simulation]` section as given
-    pub section: crate::scenario::SimulationSection,
+    pub section: Settings,
     /// the scenario's time unit name ("1" reduced), for record files
     pub time_unit: String,
 }
@@ -197,8 +199,8 @@ impl Plan {
         let s = m.simulation.clone().unwrap_or_default();
         let memory = m.system.memory_time;
         let l = &t.landscape;
-        let dynamics = match s.dynamics.as_deref() {
-            Some("underdamped") => Dynamics::Underdamped,
+        let dynamics = match s.dynamics {
+            Some(Dynamics::Underdamped) => Dynamics::Underdamped,
             // the generalised Langevin equation is inertial: its embedding has no overdamped form
             Some(_) if memory.is_some() => {
                 return Err(key_err(
@@ -220,36 +222,40 @@ impl Plan {
             }
             None => Dynamics::Overdamped,
         };
-        let (kind, scheme) = match (dynamics, s.scheme.as_deref()) {
-            (Dynamics::Underdamped, None | Some("baoab" | "baoab-memory")) if memory.is_some() => {
+        let (kind, scheme) = match (dynamics, s.scheme) {
+            (Dynamics::Underdamped, None | Some(Scheme::Baoab | Scheme::BaoabMemory))
+                if memory.is_some() =>
+            {
                 (Kind::BaoabMemory, "baoab-memory")
             }
-            (Dynamics::Underdamped, Some("baoab-memory")) => {
+            (Dynamics::Underdamped, Some(Scheme::BaoabMemory)) => {
                 return Err(key_err(
                     "simulation.scheme",
                     "\"baoab-memory\" needs particle.memory_time; memoryless friction uses \"baoab\"",
                 ));
             }
-            (Dynamics::Underdamped, None | Some("baoab")) => (Kind::Baoab, "baoab"),
+            (Dynamics::Underdamped, None | Some(Scheme::Baoab)) => (Kind::Baoab, "baoab"),
             (Dynamics::Underdamped, Some(other)) => {
                 return Err(key_err(
                     "simulation.scheme",
                     format!(
-                        "{other:?} is an overdamped scheme; underdamped dynamics uses \"baoab\""
+                        "{:?} is an overdamped scheme; underdamped dynamics uses \"baoab\"",
+                        other.name()
                     ),
                 ));
             }
-            (Dynamics::Overdamped, None | Some("leimkuhler-matthews")) => {
+            (Dynamics::Overdamped, None | Some(Scheme::LeimkuhlerMatthews)) => {
                 (Kind::LeimkuhlerMatthews, "leimkuhler-matthews")
             }
-            (Dynamics::Overdamped, Some("euler-maruyama")) => {
+            (Dynamics::Overdamped, Some(Scheme::EulerMaruyama)) => {
                 (Kind::EulerMaruyama, "euler-maruyama")
             }
             (Dynamics::Overdamped, Some(other)) => {
                 return Err(key_err(
                     "simulation.scheme",
                     format!(
-                        "{other:?} is an underdamped scheme; overdamped dynamics uses \"leimkuhler-matthews\" or \"euler-maruyama\""
+                        "{:?} is an underdamped scheme; overdamped dynamics uses \"leimkuhler-matthews\" or \"euler-maruyama\"",
+                        other.name()
                     ),
                 ));
             }
@@ -341,8 +347,8 @@ impl Plan {
             ));
         }
         let max_steps = max_steps_f as u64;
-        let start = match s.start.as_deref() {
-            Some("thermal") => {
+        let start = match s.start {
+            Some(StartRule::Thermal) => {
                 Start::Thermal(thermal_table(&m.system.potential, l.wall, l.barrier))
             }
             _ => Start::At(l.reactant),
@@ -398,8 +404,8 @@ impl Plan {
                 "the expected escape time".to_string()
             }
         );
-        let (method, method_reason) = match s.method.as_deref() {
-            Some("brute-force") => {
+        let (method, method_reason) = match s.method {
+            Some(MethodRequest::BruteForce) => {
                 if expected_brute_steps > REFUSE_FACTOR * budget_steps {
                     return Err(key_err(
                         "simulation.method",
@@ -410,8 +416,8 @@ impl Plan {
                 }
                 (Method::BruteForce, "requested".to_string())
             }
-            Some("ffs") => (Method::Ffs, "requested".to_string()),
-            Some("reactive-flux") => {
+            Some(MethodRequest::Ffs) => (Method::Ffs, "requested".to_string()),
+            Some(MethodRequest::ReactiveFlux) => {
                 if dynamics != Dynamics::Underdamped {
                     return Err(key_err(
                         "simulation.method",
@@ -420,7 +426,7 @@ impl Plan {
                 }
                 (Method::ReactiveFlux, "requested".to_string())
             }
-            _ => {
+            None | Some(MethodRequest::Auto) => {
                 if expected_brute_steps <= budget_steps {
                     (Method::BruteForce, format!("auto: {cost}"))
                 } else {
