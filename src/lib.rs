@@ -17,6 +17,7 @@ pub mod quad;
 pub mod report;
 pub mod scan;
 pub mod scenario;
+pub mod seed;
 pub mod simulate;
 pub mod stats;
 pub mod system;

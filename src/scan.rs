@@ -485,7 +485,7 @@ fn simulate_point(
 ) -> Result<Option<SimPoint>, ScanError> {
     use simulate::SimError::Interrupted;
     // 63 bits: TOML integers are signed
-    let seed = simulate::engine::splitmix64(master ^ (i as u64).wrapping_mul(0x9e37_79b9)) >> 1;
+    let seed = crate::seed::derive(master, (i as u64).wrapping_mul(crate::seed::SCAN_POINT)) >> 1;
     let (m, t) = match point_theory(
         file,
         base,

@@ -83,7 +83,7 @@
 use crate::landscape::{Kind, Landscape};
 use crate::potential::AnyPotential;
 use crate::potential::{Potential, Table};
-use crate::simulate::engine::stream;
+use crate::seed::stream;
 use crate::system::System;
 use crate::theory::{self, Rates, TheoryError};
 use rand::RngExt;

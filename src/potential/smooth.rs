@@ -338,8 +338,6 @@ fn inverse_band(d: &[f64], e: &[f64], f: &[f64]) -> (Vec<f64>, Vec<f64>, Vec<f64
 /// relative error (about sqrt(2/P) for Gaussian probes) moves the minimum of a flat risk curve
 /// little, few enough that a 10⁵-row table fits in about a second.
 pub const RISK_PROBES: usize = 12;
-/// Fixed seed of the probe vectors (the fit must not depend on any user seed).
-const PROBE_SEED: u64 = 0x05ee_df17;
 
 /// Probe vectors e_p in data units: σ_i times Gaussian-smoothed white noise of unit marginal
 /// variance (the profile-uncertainty model; kernel cut at 6ℓ where the weight is e^(−18)).
@@ -348,7 +346,7 @@ fn probes(x: &[f64], sigma: &[f64], ell: f64) -> Vec<Vec<f64>> {
     let n = x.len();
     (0..RISK_PROBES)
         .map(|p| {
-            let mut rng = crate::simulate::engine::stream(PROBE_SEED, p as u64);
+            let mut rng = crate::seed::stream(crate::seed::PROBES, p as u64);
             let xi: Vec<f64> = (0..n)
                 .map(|_| rng.sample::<f64, _>(rand_distr::StandardNormal))
                 .collect();

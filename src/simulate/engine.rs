@@ -48,21 +48,7 @@ pub const LANES: usize = 8;
 /// per block).
 const BLOCK: usize = 64;
 
-/// splitmix64 finaliser (Steele, Lea & Flood 2014).
-#[inline]
-pub fn splitmix64(mut z: u64) -> u64 {
-    z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
-    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-    z ^ (z >> 31)
-}
-
-/// The random stream of trajectory `index` under `seed`.
-pub fn stream(seed: u64, index: u64) -> Pcg64 {
-    let a = splitmix64(seed ^ splitmix64(index));
-    let b = splitmix64(a ^ 0x5851_f42d_4c95_7f2d);
-    Pcg64::new((u128::from(a) << 64) | u128::from(b), u128::from(index))
-}
+pub use crate::seed::{splitmix64, stream};
 
 /// Which integrator.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

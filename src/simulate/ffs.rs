@@ -26,6 +26,7 @@ use super::{Plan, SimError};
 use crate::landscape::Landscape;
 use crate::potential::{Diffusion, Potential};
 use crate::quad::log_add;
+use crate::seed;
 use rand::RngExt;
 use rayon::prelude::*;
 use serde::Serialize;
@@ -87,8 +88,9 @@ pub struct FfsResult {
 }
 
 fn tag(seed: u64, replica: u64, stage: u64) -> u64 {
-    engine::splitmix64(
-        seed ^ engine::splitmix64(0xFF5_0000 ^ (replica << 32) ^ stage.wrapping_mul(0x9e37)),
+    seed::derive(
+        seed,
+        seed::splitmix64(seed::FFS ^ (replica << 32) ^ stage.wrapping_mul(0x9e37)),
     )
 }
 

@@ -19,6 +19,7 @@ use super::engine::{self, Consts, State};
 use super::force::{Force, Mobility};
 use super::{Plan, SimError};
 use crate::landscape::Landscape;
+use crate::seed;
 use rand::RngExt;
 use rand_distr::StandardNormal;
 use rayon::prelude::*;
@@ -89,7 +90,7 @@ pub fn run<F: Force, M: Mobility>(
     let p = &plan.params;
     let c = Consts::new(p, mob);
     let stride = ((t_max / p.dt / POINTS as f64).ceil() as u64).max(1);
-    let seed = engine::splitmix64(p.seed ^ 0x00f1_0c5e_ed00_0001);
+    let seed = seed::derive(p.seed, seed::REACTIVE_FLUX);
     let lam_b = p.dir * l.barrier;
     // per trajectory: sign and θ at each grid time
     let rows: Vec<(bool, Vec<bool>)> = (0..n)

@@ -23,6 +23,7 @@
 use super::engine::{self, Consts, State};
 use super::force::{Force, Mobility};
 use super::{Plan, SimError};
+use crate::seed;
 use rayon::prelude::*;
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, StudentsT};
@@ -143,7 +144,7 @@ pub fn run<F: Force, M: Mobility>(
     // site s sits at minima[s mod k] + floor(s / k) L
     let site = |s: i64| minima[s.rem_euclid(per) as usize] + (s.div_euclid(per) as f64) * period;
     let c = Consts::new(&p, mob);
-    let seed = engine::splitmix64(p.seed ^ 0x9e71_0d1c_0000_0003);
+    let seed = seed::derive(p.seed, seed::PERIODIC);
     let rows: Vec<Row> = (0..n)
         .into_par_iter()
         .map(|j| {

@@ -24,6 +24,7 @@ use super::force::{Force, Mobility};
 use super::{Plan, SimError};
 use crate::landscape::Landscape;
 use crate::potential::Potential;
+use crate::seed;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -171,7 +172,7 @@ pub fn run<F: Force, M: Mobility>(
     } else {
         0.0
     };
-    let seed = engine::splitmix64(p.seed ^ 0x7e11_0000_0000_0002);
+    let seed = seed::derive(p.seed, seed::TRANSITIONS);
     // per trajectory: (A→B, B→A, steps last in A, steps last in B)
     let rows: Vec<(u64, u64, u64, u64)> = (0..n)
         .into_par_iter()
