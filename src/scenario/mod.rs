@@ -1,0 +1,346 @@
+//! The scenario file (TOML): reading, `--set` overrides, validation, and the reduction to a
+//! [`Model`] in internal units (kT = 1; see [`crate::units`]).
+//!
+//! Every error names the file and the line (syntax and type errors) or the key (missing,
+//! inconsistent or non-physical values). Overrides given as `section.key=value` are applied to the
+//! parsed document before validation, so they are checked exactly like values in the file.
+//! Dimensioned values may be strings with a unit ("5 /ps"), converted into the scenario's units
+//! while the file is read ([`crate::units::read_quantity`]; the `[units]` section is read first).
+//!
+//! Parts: `file` (the sections as written, serde), `validate` (checks across sections and the
+//! reduction to a [`Model`]), `potential` (the `[potential]` section: formula, family or table,
+//! domain, periodic extension).
+
+mod file;
+mod potential;
+mod validate;
+
+pub use file::{
+    ParticleSection, PotentialSection, ScenarioFile, StatesSection, UncertaintySection,
+    UnitsSection,
+};
+use validate::Validator;
+
+use crate::simulate::Settings;
+use crate::system::System;
+use crate::uncertainty::UncertaintyOptions;
+use crate::units::UnitSystem;
+use crate::units::quantity::with_scale;
+use std::path::Path;
+use thiserror::Error;
+
+/// A scenario problem, naming the file and the line or key.
+#[derive(Debug, Error)]
+#[non_exhaustive]
+pub enum ScenarioError {
+    /// The file could not be read.
+    #[error("{file}: cannot read: {message}")]
+    Io {
+        /// the file
+        file: String,
+        /// the OS message
+        message: String,
+    },
+    /// A syntax or type error at a line.
+    #[error("{file}: line {line}{key}: {message}")]
+    Line {
+        /// the file
+        file: String,
+        /// 1-based line
+        line: usize,
+        /// " (key a.b)" or empty
+        key: String,
+        /// what is wrong
+        message: String,
+    },
+    /// A missing, inconsistent or non-physical value.
+    #[error("{file}: {key}: {message}")]
+    Key {
+        /// the file (or "--set")
+        file: String,
+        /// dotted key
+        key: String,
+        /// what is wrong
+        message: String,
+    },
+    /// A bad `--set` argument.
+    #[error("--set {arg}: {message}")]
+    Override {
+        /// the argument as given
+        arg: String,
+        /// what is wrong
+        message: String,
+    },
+}
+
+/// Internal masses, frictions and diffusion coefficients must lie in this range: beyond it actions
+/// and Boltzmann factors overflow double precision in intermediate steps.
+pub const INTERNAL_RANGE: (f64, f64) = (1e-150, 1e150);
+
+/// One `--set section.key=value`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Override {
+    /// path of keys
+    pub path: Vec<String>,
+    /// the TOML value
+    pub value: toml::Value,
+    /// the argument as given
+    pub arg: String,
+}
+
+impl Override {
+    /// Parses `section.key=value`; the value is read as TOML (a number, boolean, array, quoted
+    /// string) and otherwise taken as a bare string.
+    ///
+    /// # Errors
+    /// No `=`, or an empty key part.
+    pub fn parse(arg: &str) -> Result<Self, ScenarioError> {
+        let bad = |m: &str| ScenarioError::Override {
+            arg: arg.to_string(),
+            message: m.to_string(),
+        };
+        let (k, v) = arg
+            .split_once('=')
+            .ok_or_else(|| bad("expected section.key=value"))?;
+        let path: Vec<String> = k.trim().split('.').map(|s| s.trim().to_string()).collect();
+        if path.iter().any(String::is_empty) {
+            return Err(bad("empty key name (expected section.key=value)"));
+        }
+        let v = v.trim();
+        let value = format!("v = {v}")
+            .parse::<toml::Table>()
+            .ok()
+            .and_then(|mut t| t.remove("v"))
+            .unwrap_or_else(|| toml::Value::String(v.to_string()));
+        Ok(Self {
+            path,
+            value,
+            arg: arg.to_string(),
+        })
+    }
+}
+
+/// A validated scenario in internal units (energies in kT, lengths in units.length, times in
+/// units.time, masses in kT·time²/length²).
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// the file the scenario came from (for messages)
+    pub source: String,
+    /// free text
+    pub title: Option<String>,
+    /// unit conversion
+    pub units: UnitSystem,
+    /// the physical system (potential, D, mass, friction, memory, period, start, target)
+    pub system: System,
+    /// a short description of the potential for reports
+    pub potential_label: String,
+    /// the `[simulation]` section, if any
+    pub simulation: Option<Settings>,
+    /// the `[uncertainty]` section (defaults when absent)
+    pub uncertainty: UncertaintySection,
+    /// true when an `[uncertainty]` section was given
+    pub uncertainty_given: bool,
+}
+
+impl Model {
+    /// The options of the `[uncertainty]` section (defaults where absent).
+    pub fn uncertainty_options(&self) -> UncertaintyOptions {
+        let u = &self.uncertainty;
+        let d = UncertaintyOptions::default();
+        UncertaintyOptions {
+            draws: u.draws.map_or(d.draws, |n| n as usize),
+            correlation_length: u.correlation_length,
+            seed: u.seed.unwrap_or(d.seed),
+        }
+    }
+
+    /// Reads, overrides and validates a scenario file.
+    ///
+    /// # Errors
+    /// See [`ScenarioError`]: every message names the file and the line or key.
+    pub fn load(path: &Path, overrides: &[Override]) -> Result<Self, ScenarioError> {
+        let file = path.display().to_string();
+        let bytes = std::fs::read(path).map_err(|e| ScenarioError::Io {
+            file: file.clone(),
+            message: e.to_string(),
+        })?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            let line = e.as_bytes()[..e.utf8_error().valid_up_to()]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count()
+                + 1;
+            ScenarioError::Line {
+                file: file.clone(),
+                line,
+                key: String::new(),
+                message: "the file is not UTF-8 text".into(),
+            }
+        })?;
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        Self::from_text(&text, &file, &base, overrides)
+    }
+
+    /// Validates scenario text; `base` is the folder that relative table paths start from.
+    ///
+    /// # Errors
+    /// See [`ScenarioError`].
+    pub fn from_text(
+        text: &str,
+        file: &str,
+        base: &Path,
+        overrides: &[Override],
+    ) -> Result<Self, ScenarioError> {
+        let overridden = overrides.iter().map(|o| o.path.join(".")).collect();
+        let validator = Validator {
+            file,
+            base,
+            overridden,
+        };
+        // unit strings are converted while reading, so the units (after every override) come first
+        let scale = validator.scale(text, overrides)?;
+        let sf = with_scale(scale, || -> Result<ScenarioFile, ScenarioError> {
+            let sf: ScenarioFile = toml::from_str(text).map_err(|e| toml_error(text, file, &e))?;
+            if overrides.is_empty() {
+                return Ok(sf);
+            }
+            let mut doc: toml::Table = text.parse().map_err(|e| toml_error(text, file, &e))?;
+            // check after each override, so an error names the one that caused it
+            let mut last = None;
+            for o in overrides {
+                apply_override(&mut doc, o)?;
+                let checked: ScenarioFile =
+                    doc.clone().try_into().map_err(|e: toml::de::Error| {
+                        ScenarioError::Override {
+                            arg: o.arg.clone(),
+                            message: e.message().trim().replace('\n', " "),
+                        }
+                    })?;
+                last = Some(checked);
+            }
+            Ok(last.expect("at least one override"))
+        })?;
+        validator.build(sf)
+    }
+}
+
+pub(super) fn apply_override(doc: &mut toml::Table, o: &Override) -> Result<(), ScenarioError> {
+    let mut t = doc;
+    let (last, sections) = o.path.split_last().expect("non-empty path");
+    for s in sections {
+        let entry = t
+            .entry(s.clone())
+            .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+        t = match entry {
+            toml::Value::Table(inner) => inner,
+            _ => {
+                return Err(ScenarioError::Override {
+                    arg: o.arg.clone(),
+                    message: format!("\"{s}\" is a value, not a section"),
+                });
+            }
+        };
+    }
+    t.insert(last.clone(), o.value.clone());
+    Ok(())
+}
+
+/// Turns a toml error into one line with the line number and, when the line holds `key = ...`,
+/// the dotted key.
+pub(super) fn toml_error(text: &str, file: &str, e: &toml::de::Error) -> ScenarioError {
+    let message = e.message().trim().replace('\n', " ");
+    match e.span() {
+        Some(span) => {
+            let start = span.start.min(text.len());
+            let line = text[..start].bytes().filter(|&b| b == b'\n').count() + 1;
+            ScenarioError::Line {
+                file: file.to_string(),
+                line,
+                key: key_at_line(text, line)
+                    .map(|k| format!(" (key {k})"))
+                    .unwrap_or_default(),
+                message,
+            }
+        }
+        None => ScenarioError::Key {
+            file: file.to_string(),
+            key: "(file)".into(),
+            message,
+        },
+    }
+}
+
+fn key_at_line(text: &str, line: usize) -> Option<String> {
+    let mut section = String::new();
+    for (i, l) in text.lines().enumerate() {
+        let t = l.trim();
+        if t.starts_with('[') {
+            section = t.trim_matches(|c| c == '[' || c == ']').trim().to_string();
+        }
+        if i + 1 == line {
+            let (k, _) = t.split_once('=')?;
+            let k = k.trim();
+            return Some(if section.is_empty() {
+                k.to_string()
+            } else {
+                format!("{section}.{k}")
+            });
+        }
+    }
+    None
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::potential::Potential;
+
+    fn load(text: &str) -> Result<Model, ScenarioError> {
+        Model::from_text(text, "s.toml", Path::new("."), &[])
+    }
+
+    const OK: &str = "[particle]\nmass = 1.0\nfriction = 2.0\n[potential]\nfamily = \"double-well\"\nbarrier = 5.0\nhalf_width = 1.0\n";
+
+    #[test]
+    fn loads_and_derives_diffusion() {
+        let m = load(OK).unwrap();
+        assert_eq!(m.system.diffusion.constant(), Some(0.5));
+        assert_eq!(m.system.friction, Some(2.0));
+    }
+
+    #[test]
+    fn errors_name_line_or_key() {
+        let e = load("[particle]\nmass = \"a\"\n").unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("particle.mass"), "{e}");
+        let e = load(&OK.replace("mass = 1.0", "mas = 1.0"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 2") && e.contains("mas"), "{e}");
+        let e = load(&OK.replace("friction = 2.0", "friction = -2.0"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("particle.friction"), "{e}");
+        let e = load(&format!("[units]\ntemperature = -3\n{OK}"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("units.temperature"), "{e}");
+        let e = load(&OK.replace("barrier = 5.0\n", ""))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("potential.barrier"), "{e}");
+    }
+
+    #[test]
+    fn overrides_apply_and_are_checked() {
+        let o = [Override::parse("potential.barrier=8").unwrap()];
+        let m = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap();
+        assert!((m.system.potential.u(0.0) - 8.0).abs() < 1e-12);
+        let o = [Override::parse("potential.family=cubic").unwrap()];
+        let e = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap_err();
+        assert!(e.to_string().contains("potential.half_width"), "{e}");
+        let o = [Override::parse("particle.nope=1").unwrap()];
+        let e = Model::from_text(OK, "s.toml", Path::new("."), &o).unwrap_err();
+        assert!(e.to_string().contains("--set"), "{e}");
+        assert!(Override::parse("novalue").is_err());
+    }
+}
