@@ -414,53 +414,7 @@ impl Landscape {
         }
         .ok_or(LandscapeError::NoMinimum { lo, hi })?;
         let xa = react.x;
-        let maxima_between = |a: f64, b: f64| {
-            points
-                .iter()
-                .filter(move |p| p.kind == Kind::Maximum && p.x > a.min(b) && p.x < a.max(b))
-        };
-        // direction and barrier
-        let (direction, barrier) = match target {
-            Some(t) => {
-                let dir = if t > xa { 1.0 } else { -1.0 };
-                let b = maxima_between(xa, t)
-                    .max_by(|a, b| a.u.total_cmp(&b.u))
-                    .ok_or_else(|| LandscapeError::NoBarrier {
-                        reactant: xa,
-                        towards: format!(
-                            "states.target = {t} (no maximum lies strictly between them: the target is inside the reactant well or at the barrier top)"
-                        ),
-                        target_given: true,
-                    })?;
-                (dir, *b)
-            }
-            None => {
-                let right = points.iter().find(|p| p.kind == Kind::Maximum && p.x > xa);
-                let left = points
-                    .iter()
-                    .rev()
-                    .find(|p| p.kind == Kind::Maximum && p.x < xa);
-                match (left, right) {
-                    (None, None) => {
-                        return Err(LandscapeError::NoBarrier {
-                            reactant: xa,
-                            towards: "either domain end".into(),
-                            target_given: false,
-                        });
-                    }
-                    (Some(l), None) => (-1.0, *l),
-                    (None, Some(r)) => (1.0, *r),
-                    // both sides: escape over the lower barrier (ties go right)
-                    (Some(l), Some(r)) => {
-                        if l.u < r.u {
-                            (-1.0, *l)
-                        } else {
-                            (1.0, *r)
-                        }
-                    }
-                }
-            }
-        };
+        let (direction, barrier) = escape_barrier(&points, xa, target)?;
         let xb = barrier.x;
         let ub = barrier.u;
         let product = if direction > 0.0 {
@@ -517,6 +471,42 @@ impl Landscape {
                 _ => None,
             };
         let u_target = pot.u(target_x);
+        let mut l = Self {
+            points,
+            reactant: xa,
+            barrier: xb,
+            product: product.map(|p| p.x),
+            target: target_x,
+            target_rule: rule,
+            direction,
+            wall,
+            u_reactant: ua,
+            u_barrier: ub,
+            u_product: product.map(|p| p.u),
+            u_target,
+            barrier_height: eb,
+            curvature_reactant: ka,
+            curvature_barrier: kb,
+            omega_reactant,
+            omega_barrier,
+            action,
+            action_product,
+            turning_point: turning,
+            ignored,
+            fit: pot.fit().cloned(),
+            warnings: Vec::new(),
+        };
+        l.warnings = l.notes(pot);
+        Ok(l)
+    }
+
+    /// What a user should know about this landscape: points taken for noise, a low barrier, a
+    /// target near the barrier top, and curvatures read off a coarse or noisy table.
+    fn notes(&self, pot: &dyn Potential) -> Vec<String> {
+        let (ignored, eb, rule) = (&self.ignored, self.barrier_height, self.target_rule);
+        let (xa, xb, target_x) = (self.reactant, self.barrier, self.target);
+        let (ka, kb) = (self.curvature_reactant, self.curvature_barrier);
+        let (ub, u_target) = (self.u_barrier, self.u_target);
         let mut warnings = Vec::new();
         if !ignored.is_empty() {
             let most = ignored
@@ -565,32 +555,63 @@ impl Landscape {
                 ));
             }
         }
-        Ok(Self {
-            points,
-            reactant: xa,
-            barrier: xb,
-            product: product.map(|p| p.x),
-            target: target_x,
-            target_rule: rule,
-            direction,
-            wall,
-            u_reactant: ua,
-            u_barrier: ub,
-            u_product: product.map(|p| p.u),
-            u_target,
-            barrier_height: eb,
-            curvature_reactant: ka,
-            curvature_barrier: kb,
-            omega_reactant,
-            omega_barrier,
-            action,
-            action_product,
-            turning_point: turning,
-            ignored,
-            fit: pot.fit().cloned(),
-            warnings,
-        })
+        warnings
     }
+}
+
+/// The escape direction (+1 right, −1 left) and the barrier: the highest maximum between the
+/// reactant and a given target, else the lower of the nearest maxima on either side.
+fn escape_barrier(
+    points: &[Stationary],
+    xa: f64,
+    target: Option<f64>,
+) -> Result<(f64, Stationary), LandscapeError> {
+    let maxima_between = |a: f64, b: f64| {
+        points
+            .iter()
+            .filter(move |p| p.kind == Kind::Maximum && p.x > a.min(b) && p.x < a.max(b))
+    };
+    Ok(match target {
+        Some(t) => {
+            let dir = if t > xa { 1.0 } else { -1.0 };
+            let b = maxima_between(xa, t)
+                .max_by(|a, b| a.u.total_cmp(&b.u))
+                .ok_or_else(|| LandscapeError::NoBarrier {
+                    reactant: xa,
+                    towards: format!(
+                        "states.target = {t} (no maximum lies strictly between them: the target is inside the reactant well or at the barrier top)"
+                    ),
+                    target_given: true,
+                })?;
+            (dir, *b)
+        }
+        None => {
+            let right = points.iter().find(|p| p.kind == Kind::Maximum && p.x > xa);
+            let left = points
+                .iter()
+                .rev()
+                .find(|p| p.kind == Kind::Maximum && p.x < xa);
+            match (left, right) {
+                (None, None) => {
+                    return Err(LandscapeError::NoBarrier {
+                        reactant: xa,
+                        towards: "either domain end".into(),
+                        target_given: false,
+                    });
+                }
+                (Some(l), None) => (-1.0, *l),
+                (None, Some(r)) => (1.0, *r),
+                // both sides: escape over the lower barrier (ties go right)
+                (Some(l), Some(r)) => {
+                    if l.u < r.u {
+                        (-1.0, *l)
+                    } else {
+                        (1.0, *r)
+                    }
+                }
+            }
+        }
+    })
 }
 
 #[cfg(test)]
