@@ -12,6 +12,7 @@
 
 pub mod fit;
 pub mod landscape;
+pub mod model;
 pub mod potential;
 pub mod quad;
 pub mod report;

@@ -21,10 +21,7 @@ pub use file::{
 };
 use validate::Validator;
 
-use crate::simulate::Settings;
-use crate::system::System;
-use crate::uncertainty::UncertaintyOptions;
-use crate::units::UnitSystem;
+pub use crate::model::Model;
 use crate::units::quantity::with_scale;
 use std::path::Path;
 use thiserror::Error;
@@ -120,40 +117,7 @@ impl Override {
     }
 }
 
-/// A validated scenario in internal units (energies in kT, lengths in units.length, times in
-/// units.time, masses in kT·time²/length²).
-#[derive(Debug, Clone)]
-pub struct Model {
-    /// the file the scenario came from (for messages)
-    pub source: String,
-    /// free text
-    pub title: Option<String>,
-    /// unit conversion
-    pub units: UnitSystem,
-    /// the physical system (potential, D, mass, friction, memory, period, start, target)
-    pub system: System,
-    /// a short description of the potential for reports
-    pub potential_label: String,
-    /// the `[simulation]` section, if any
-    pub simulation: Option<Settings>,
-    /// the `[uncertainty]` section (defaults when absent)
-    pub uncertainty: UncertaintySection,
-    /// true when an `[uncertainty]` section was given
-    pub uncertainty_given: bool,
-}
-
 impl Model {
-    /// The options of the `[uncertainty]` section (defaults where absent).
-    pub fn uncertainty_options(&self) -> UncertaintyOptions {
-        let u = &self.uncertainty;
-        let d = UncertaintyOptions::default();
-        UncertaintyOptions {
-            draws: u.draws.map_or(d.draws, |n| n as usize),
-            correlation_length: u.correlation_length,
-            seed: u.seed.unwrap_or(d.seed),
-        }
-    }
-
     /// Reads, overrides and validates a scenario file.
     ///
     /// # Errors

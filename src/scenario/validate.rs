@@ -8,10 +8,20 @@ use crate::potential::periodic::Periodic;
 use crate::potential::{AnyPotential, Diffusion, Family, Formula, Potential};
 use crate::simulate::Settings;
 use crate::system::System;
-use crate::uncertainty::MIN_DRAWS;
+use crate::uncertainty::{MIN_DRAWS, UncertaintyOptions};
 use crate::units::{UnitError, UnitScale, UnitSystem};
 use serde::Deserialize;
 use std::path::Path;
+
+/// The propagation settings of an `[uncertainty]` section (defaults where absent).
+fn uncertainty_options(u: &UncertaintySection) -> UncertaintyOptions {
+    let d = UncertaintyOptions::default();
+    UncertaintyOptions {
+        draws: u.draws.map_or(d.draws, |n| n as usize),
+        correlation_length: u.correlation_length,
+        seed: u.seed.unwrap_or(d.seed),
+    }
+}
 
 /// What `[particle]` (with `[units]`) gives, in internal units.
 struct ParticleValues {
@@ -176,7 +186,7 @@ impl Validator<'_> {
             units: pv.units,
             potential_label: land.label,
             simulation: sf.simulation,
-            uncertainty,
+            uncertainty: uncertainty_options(&uncertainty),
             uncertainty_given,
         })
     }
