@@ -15,7 +15,7 @@
 //! LDLᵀ factors by the recursion of Hutchinson & de Hoog, Numer. Math. 47, 99 (1985), also O(n).
 //!
 //! Choice of α. [`Rule::Risk`], the default, minimises Stein's unbiased estimate of the weighted
-//! mean squared error of the fit, E Σ (g_i − μ_i)²/σ_i² = E[χ²] − n + 2 tr(W H Σ) (Stein, Ann.
+//! mean squared error of the fit, E Σ (g_i − μ_i)²/σ_i² = E(χ²) − n + 2 tr(W H Σ) (Stein, Ann.
 //! Stat. 9, 1135 (1981); for independent rows tr(W H Σ) = tr H and this is Mallows' C_p, the
 //! UBRE of Craven & Wahba 1979). Σ is the same noise model the profile-uncertainty draws use:
 //! σ_i per row, Gaussian-smoothed white noise of correlation length ℓ. For correlated rows the
@@ -31,7 +31,7 @@
 //! too high on the example profile with 0.3 kT noise over five rows), while cross-validation takes
 //! the wiggles for signal. [`Rule::ChiSquare`] is Reinsch's own criterion: the smoothest fit whose
 //! χ² = Σ (y_i − g_i)²/σ_i² equals n. It uses the stated σ_i directly, and it keeps its meaning
-//! for noise correlated between rows, because the true profile has E[χ²] = n whatever the
+//! for noise correlated between rows, because the true profile has E(χ²) = n whatever the
 //! correlation (each term has expectation one); generalised cross-validation assumes independent
 //! rows and undersmooths correlated noise, leaving noise wiggles as features (Opsomer, Wang &
 //! Yang, Stat. Sci. 16, 134 (2001)). [`Rule::CrossValidation`] minimises the weighted GCV score
