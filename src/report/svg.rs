@@ -28,7 +28,9 @@
 //!
 //! Tick labels carry the fewest significant digits that give the tick's value ([`tick`]).
 
-use crate::scan::{Kind, RATE_KEYS, ScanReport, rate_of};
+use crate::scan::{Kind, ScanReport};
+use crate::theory::RateKey;
+use crate::theory::catalogue::{CATALOGUE, Formula};
 use plotters::coord::Shift;
 use plotters::coord::combinators::{LogCoord, WithKeyPoints};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
@@ -616,25 +618,41 @@ fn render(
 // ---------------------------------------------------------------------------------------------
 // scans
 
-/// Name, colour and marker shape of each rate (fixed per rate, so every picture agrees).
-fn style(key: &str) -> (&'static str, RGBColor, Shape) {
-    match key {
-        "tst" => ("harmonic TST", RGBColor(31, 119, 180), Shape::Square),
-        "tst_exact" => ("exact 1-D TST", RGBColor(255, 127, 14), Shape::Diamond),
-        "kramers" => ("Kramers", RGBColor(44, 160, 44), Shape::Up),
-        "smoluchowski" => ("Smoluchowski", RGBColor(214, 39, 40), Shape::Down),
-        "energy_diffusion" => ("energy diffusion", RGBColor(148, 103, 189), Shape::Right),
-        "turnover" => ("Mel'nikov-Meshkov", RGBColor(140, 86, 75), Shape::Pentagon),
-        "pgh" => (
-            "Pollak-Grabert-Hanggi",
-            RGBColor(227, 119, 194),
-            Shape::Hexagon,
-        ),
-        "mfpt" => ("1/MFPT (overdamped)", RGBColor(127, 127, 127), Shape::Star),
-        "grote_hynes" => ("Grote-Hynes", RGBColor(188, 189, 34), Shape::Left),
-        "well_to_well" => ("well-to-well", RGBColor(23, 190, 207), Shape::Circle),
-        _ => ("simulation", BLACK, Shape::Circle),
-    }
+/// Colours (the tab10 palette) and marker shapes of the rates, by place in the catalogue.
+const COLOURS: [RGBColor; 10] = [
+    RGBColor(31, 119, 180),
+    RGBColor(255, 127, 14),
+    RGBColor(44, 160, 44),
+    RGBColor(214, 39, 40),
+    RGBColor(148, 103, 189),
+    RGBColor(140, 86, 75),
+    RGBColor(227, 119, 194),
+    RGBColor(127, 127, 127),
+    RGBColor(188, 189, 34),
+    RGBColor(23, 190, 207),
+];
+const SHAPES: [Shape; 10] = [
+    Shape::Square,
+    Shape::Diamond,
+    Shape::Up,
+    Shape::Down,
+    Shape::Right,
+    Shape::Pentagon,
+    Shape::Hexagon,
+    Shape::Star,
+    Shape::Left,
+    Shape::Circle,
+];
+
+/// Colour and marker shape of each rate (fixed per rate, so every picture agrees): the i-th
+/// formula of the catalogue has colour i mod 10 and a shape shifted by i/10, so the pairs stay
+/// distinct for up to 100 formulas.
+fn style(key: RateKey) -> (RGBColor, Shape) {
+    let i = CATALOGUE
+        .iter()
+        .position(|f| f.key == key)
+        .unwrap_or_default();
+    (COLOURS[i % 10], SHAPES[(i + i / 10) % 10])
 }
 
 fn time_unit(r: &ScanReport) -> &str {
@@ -648,7 +666,7 @@ fn time_unit(r: &ScanReport) -> &str {
 /// One rate over the scan: per point (x, y, holds there), None where it is absent or off the
 /// axis.
 struct Curve {
-    key: &'static str,
+    key: RateKey,
     pts: Vec<Option<(f64, f64, bool)>>,
 }
 
@@ -672,27 +690,28 @@ pub fn scan(r: &ScanReport) -> String {
         Kind::Temperature => 1000.0 / p.value,
         _ => p.value,
     };
-    let norm = friction && r.points.iter().all(|p| p.rates.tst.is_some());
+    // normalised by harmonic TST, the friction-independent reference
+    let norm = friction && r.points.iter().all(|p| p.rates[RateKey::Tst].is_some());
     let ln_y = matches!(r.kind, Kind::Temperature | Kind::Force);
     let y_of = |p: &crate::scan::Point, k: f64| -> f64 {
         let k = if norm {
-            k / p.rates.tst.unwrap_or(1.0)
+            k / p.rates[RateKey::Tst].unwrap_or(1.0)
         } else {
             k
         };
         if ln_y { k.ln() } else { k }
     };
-    let curves: Vec<Curve> = RATE_KEYS
+    let curves: Vec<Curve> = CATALOGUE
         .iter()
-        .copied()
-        .filter(|k| !(norm && *k == "tst"))
+        .map(|f| f.key)
+        .filter(|k| !(norm && *k == RateKey::Tst))
         .map(|k| Curve {
             key: k,
             pts: r
                 .points
                 .iter()
                 .map(|p| {
-                    let y = y_of(p, rate_of(&p.rates, k)?);
+                    let y = y_of(p, p.rates[k]?);
                     y.is_finite().then(|| (x_of(p), y, p.holds.contains(&k)))
                 })
                 .collect(),
@@ -806,7 +825,7 @@ pub fn scan(r: &ScanReport) -> String {
 /// A curve: solid between points where the formula holds at both ends, dashed otherwise, broken
 /// where it is absent; a marker at every point on the axes.
 fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
-    let (_, colour, shape) = style(c.key);
+    let (colour, shape) = style(c.key);
     let mut run: Vec<(f64, f64)> = Vec::new();
     let mut run_holds = true;
     let mut flush = |run: &mut Vec<(f64, f64)>, holds: bool| {
@@ -815,7 +834,7 @@ fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
         } else {
             "curve outside"
         };
-        raw.polyline(run, colour, !holds, class, c.key);
+        raw.polyline(run, colour, !holds, class, c.key.as_str());
         run.clear();
     };
     for w in c.pts.windows(2) {
@@ -844,7 +863,7 @@ fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
             } else {
                 "marker outside"
             };
-            raw.marker(shape, px.at(x, y), colour, holds, class, c.key);
+            raw.marker(shape, px.at(x, y), colour, holds, class, c.key.as_str());
         }
     }
 }
@@ -873,9 +892,9 @@ fn scan_legend(r: &ScanReport, curves: &[Curve], sim: bool, tu: &str, lu: &str) 
     let mut entries: Vec<Entry> = curves
         .iter()
         .map(|c| {
-            let (name, colour, shape) = style(c.key);
+            let (colour, shape) = style(c.key);
             Entry {
-                text: fit_text(name, c.key),
+                text: fit_text(Formula::of(c.key).legend, c.key.as_str()),
                 colour,
                 shape: Some(shape),
                 line: true,

@@ -376,7 +376,8 @@ pub fn rate(r: &RateReport) -> String {
         u.t
     );
     if !reg.trusted.is_empty() {
-        let _ = writeln!(out, "trust here: {}", reg.trusted.join(", "));
+        let trusted: Vec<&str> = reg.trusted.iter().map(|k| k.as_str()).collect();
+        let _ = writeln!(out, "trust here: {}", trusted.join(", "));
     }
     if let Some(p) = &r.periodic {
         periodic_theory(&mut out, p, &u);
@@ -434,7 +435,7 @@ fn uncertainty(
     for i in &q.rates {
         let label = rows
             .iter()
-            .find(|r| r.key == i.key)
+            .find(|r| r.key.as_str() == i.key)
             .map_or(i.key, |r| r.label);
         t.add_row(vec![
             format!("{label} (1/{})", u.t),
@@ -977,23 +978,6 @@ pub fn merge(r: &super::MergeReport) -> String {
     out
 }
 
-/// Short heading of each rate in scan tables.
-fn rate_heading(key: &str) -> &'static str {
-    match key {
-        "tst" => "TST",
-        "tst_exact" => "exact TST",
-        "kramers" => "Kramers",
-        "smoluchowski" => "Smoluchowski",
-        "energy_diffusion" => "energy diffusion",
-        "turnover" => "turnover",
-        "pgh" => "PGH",
-        "mfpt" => "1/MFPT",
-        "grote_hynes" => "Grote-Hynes",
-        "well_to_well" => "well to well",
-        _ => "rate",
-    }
-}
-
 /// Short heading with units for the scanned value.
 fn value_heading(r: &crate::scan::ScanReport, u: &U) -> String {
     match r.key.as_str() {
@@ -1012,7 +996,7 @@ fn value_heading(r: &crate::scan::ScanReport, u: &U) -> String {
 /// regime, E_b/kT and every rate at every point. Numbers have three significant digits (the
 /// CSV and JSON keep every digit).
 pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
-    use crate::scan::{RATE_KEYS, rate_of};
+    use crate::theory::catalogue::{CATALOGUE, Formula};
     let u = U::new(&r.units);
     let mut out = String::new();
     let _ = writeln!(
@@ -1029,17 +1013,16 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
         head.push("regime".into());
         head.push("E_b/kT".into());
     }
-    let keys: Vec<&str> = RATE_KEYS
+    let formulas: Vec<&Formula> = CATALOGUE
         .iter()
-        .copied()
-        .filter(|k| {
+        .filter(|f| {
             r.points
                 .iter()
-                .any(|p| rate_of(&p.rates, k).is_some() && (all || p.holds.contains(k)))
+                .any(|p| p.rates[f.key].is_some() && (all || p.holds.contains(&f.key)))
         })
         .collect();
-    for k in &keys {
-        head.push(format!("{} (1/{})", rate_heading(k), u.t));
+    for f in &formulas {
+        head.push(format!("{} (1/{})", f.heading, u.t));
     }
     let per = r.points.iter().any(|p| p.periodic.is_some());
     if per {
@@ -1081,14 +1064,14 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             row.push(p.regime.to_string());
             row.push(short(p.barrier_height_kt));
         }
-        for k in &keys {
+        for k in formulas.iter().map(|f| f.key) {
             let ci = p
                 .uncertainty
                 .as_ref()
-                .and_then(|v| v.iter().find(|i| i.key == *k))
+                .and_then(|v| v.iter().find(|i| i.key == k.as_str()))
                 .map(|i| i.ci95);
-            let v = rate_of(&p.rates, k);
-            if all || p.holds.contains(k) {
+            let v = p.rates[k];
+            if all || p.holds.contains(&k) {
                 row.push(iv_or(v, ci));
             } else {
                 hidden |= v.is_some();
@@ -1164,7 +1147,7 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             out,
             "—: the formula does not hold at that point (--all-columns shows every rate everywhere)"
         );
-    } else if keys.is_empty() && !all {
+    } else if formulas.is_empty() && !all {
         let _ = writeln!(
             out,
             "no rate formula holds at any point of this scan (--all-columns shows them all)"
