@@ -195,7 +195,7 @@ pub struct Interval {
 /// The variance decomposition of ln k into barrier and prefactor parts (see the module doc).
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct Decomposition {
-    /// the rate's key ("mfpt" or "kramers")
+    /// the rate's key (the formulas whose catalogue entry has `decompose`: 1/MFPT, Kramers)
     pub key: &'static str,
     /// var(ln k) over the draws
     pub var_ln_k: f64,
