@@ -232,7 +232,7 @@ pub struct Point {
     /// keys of the rates that hold at this point (`theory::RegimeReport::trusted`); tables and
     /// pictures mark the others
     #[serde(skip)]
-    pub holds: Vec<&'static str>,
+    pub holds: Vec<theory::RateKey>,
     /// with --simulate: whether this point's simulation finished
     pub simulation_status: Option<SimStatus>,
 }
@@ -280,37 +280,6 @@ pub struct ScanReport {
     /// the values were spaced logarithmically (--log): the picture's x axis is logarithmic too
     #[serde(skip)]
     pub log: bool,
-}
-
-/// Rate keys in report order.
-pub const RATE_KEYS: [&str; 10] = [
-    "tst",
-    "tst_exact",
-    "kramers",
-    "smoluchowski",
-    "energy_diffusion",
-    "turnover",
-    "pgh",
-    "mfpt",
-    "grote_hynes",
-    "well_to_well",
-];
-
-/// The rate of `key` in `r`.
-pub fn rate_of(r: &Rates, key: &str) -> Option<f64> {
-    match key {
-        "tst" => r.tst,
-        "tst_exact" => r.tst_exact,
-        "kramers" => r.kramers,
-        "smoluchowski" => r.smoluchowski,
-        "energy_diffusion" => r.energy_diffusion,
-        "turnover" => r.turnover,
-        "pgh" => r.pgh,
-        "mfpt" => r.mfpt,
-        "grote_hynes" => r.grote_hynes,
-        "well_to_well" => r.well_to_well,
-        _ => None,
-    }
 }
 
 fn point_theory(
@@ -595,11 +564,11 @@ fn fits_for(
     kind: Kind,
     kt_unit: f64,
 ) -> Vec<FitOut> {
-    let mut series: Vec<(String, Vec<f64>, Option<Vec<f64>>)> = RATE_KEYS
+    let mut series: Vec<(String, Vec<f64>, Option<Vec<f64>>)> = theory::catalogue::CATALOGUE
         .iter()
-        .filter_map(|&k| {
-            let ys: Option<Vec<f64>> = points.iter().map(|p| rate_of(&p.rates, k)).collect();
-            ys.map(|y| (k.to_string(), y, None))
+        .filter_map(|f| {
+            let ys: Option<Vec<f64>> = points.iter().map(|p| p.rates[f.key]).collect();
+            ys.map(|y| (f.key.to_string(), y, None))
         })
         .collect();
     let sim: Option<Vec<&SimPoint>> = points.iter().map(|p| p.simulation.as_ref()).collect();

@@ -85,7 +85,8 @@ use crate::potential::AnyPotential;
 use crate::potential::{Potential, Table};
 use crate::seed::stream;
 use crate::system::System;
-use crate::theory::{self, Rates, TheoryError};
+use crate::theory::catalogue::CATALOGUE;
+use crate::theory::{self, RateKey, Rates, TheoryError};
 use rand::RngExt;
 use rand_distr::StandardNormal;
 use rayon::prelude::*;
@@ -194,7 +195,7 @@ pub struct Interval {
 /// The variance decomposition of ln k into barrier and prefactor parts (see the module doc).
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct Decomposition {
-    /// the rate's key ("mfpt" or "kramers")
+    /// the rate's key (the formulas whose catalogue entry has `decompose`: 1/MFPT, Kramers)
     pub key: &'static str,
     /// var(ln k) over the draws
     pub var_ln_k: f64,
@@ -236,23 +237,6 @@ pub struct UncertaintyReport {
     /// what a user should know
     pub warnings: Vec<String>,
 }
-
-/// Reads one rate out of [`Rates`].
-type Getter = fn(&Rates) -> Option<f64>;
-
-/// The rate keys reported, with their getters.
-const KEYS: [(&str, Getter); 10] = [
-    ("tst", |r| r.tst),
-    ("tst_exact", |r| r.tst_exact),
-    ("kramers", |r| r.kramers),
-    ("smoluchowski", |r| r.smoluchowski),
-    ("energy_diffusion", |r| r.energy_diffusion),
-    ("turnover", |r| r.turnover),
-    ("pgh", |r| r.pgh),
-    ("mfpt", |r| r.mfpt),
-    ("grote_hynes", |r| r.grote_hynes),
-    ("well_to_well", |r| r.well_to_well),
-];
 
 /// One draw's outcome.
 #[derive(Debug, Clone, Copy)]
@@ -544,14 +528,15 @@ pub fn propagate(
     );
     let mut rates = Vec::new();
     let mut decompositions = Vec::new();
-    for (key, get) in KEYS {
-        let Some(c) = get(&central.rates) else {
+    for f in CATALOGUE {
+        let key = f.key.as_str();
+        let Some(c) = central.rates[f.key] else {
             continue;
         };
         let pairs: Vec<(f64, f64)> = ok
             .iter()
             .filter_map(|d| {
-                get(&d.rates)
+                d.rates[f.key]
                     .filter(|r| r.is_finite() && *r > 0.0)
                     .map(|r| (d.eb, r.ln()))
             })
@@ -571,7 +556,7 @@ pub fn propagate(
         }
         let i = interval(key, c, pairs.iter().map(|p| p.1.exp()).collect(), true);
         rates.push(i);
-        if (key == "mfpt" || key == "kramers") && pairs.len() >= 2 {
+        if f.decompose && pairs.len() >= 2 {
             decompositions.push(decompose(key, &pairs));
         }
     }
@@ -587,7 +572,9 @@ pub fn propagate(
             biased.join(", ")
         ));
     }
-    let mfpt_dec = decompositions.iter().find(|d| d.key == "mfpt");
+    let mfpt_dec = decompositions
+        .iter()
+        .find(|d| d.key == RateKey::Mfpt.as_str());
     let (barrier_share, prefactor_share) =
         mfpt_dec.map_or((None, None), |d| (d.barrier_share, d.prefactor_share));
     let model_text = format!(

@@ -46,7 +46,7 @@ fn tiny_and_huge_barriers() {
             .any(|w| w.contains("no separation of time scales"))
     );
     // below 5 kT only the exact MFPT can be trusted (and only when overdamped)
-    assert!(t.regime.trusted.iter().all(|k| *k == "mfpt"));
+    assert!(t.regime.trusted.iter().all(|k| *k == theory::RateKey::Mfpt));
     let m = model(&["potential.barrier=200"]);
     let t = theory::analyse(&m.system).unwrap();
     all_rates_finite(&t);

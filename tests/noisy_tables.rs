@@ -7,7 +7,7 @@
 
 use escapade::landscape::Kind;
 use escapade::scenario::Model;
-use escapade::theory::{self, TheoryReport};
+use escapade::theory::{self, RateKey, TheoryReport};
 use rand::{RngExt, SeedableRng};
 use rand_distr::StandardNormal;
 use std::path::{Path, PathBuf};
@@ -161,7 +161,7 @@ fn noisy_example_finds_the_true_landscape() {
     // uncertainty interval reports; a bias of the fit would move the median.
     ratios.sort_by(f64::total_cmp);
     let median = 0.5 * (ratios[7] + ratios[8]);
-    let (lo, hi) = theory::accuracy_band("smoluchowski", clean.landscape.barrier_height);
+    let (lo, hi) = theory::accuracy_band(RateKey::Smoluchowski, clean.landscape.barrier_height);
     assert!(
         median >= lo && median <= hi.unwrap(),
         "median noisy/clean ratio {median} outside [{lo}, {hi:?}]: {ratios:?}"
@@ -195,7 +195,7 @@ fn interpolating_a_noisy_table_finds_noise() {
 fn umbrella_like_noise_under_a_misstated_correlation() {
     let clean_model = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
     let clean = theory::analyse(&clean_model.system).unwrap();
-    let (lo, hi) = theory::accuracy_band("smoluchowski", clean.landscape.barrier_height);
+    let (lo, hi) = theory::accuracy_band(RateKey::Smoluchowski, clean.landscape.barrier_height);
     let dir = scratch("umbrella");
     let nz = Noise {
         kt: 0.06,
@@ -254,7 +254,7 @@ fn exact_table_keeps_its_values() {
 fn disagreeing_trusted_rates_are_flagged() {
     let m = Model::load(Path::new("examples/pmf_table.toml"), &[]).unwrap();
     let t = theory::analyse(&m.system).unwrap();
-    assert_eq!(t.regime.trusted, vec!["mfpt"]);
+    assert_eq!(t.regime.trusted, vec![RateKey::Mfpt]);
     assert!(
         t.regime
             .warnings
@@ -274,7 +274,11 @@ start = -1.0
 "#;
     let m = Model::from_text(text, "dw", Path::new("."), &[]).unwrap();
     let t = theory::analyse(&m.system).unwrap();
-    assert!(t.regime.trusted.contains(&"smoluchowski"), "{:?}", t.regime);
+    assert!(
+        t.regime.trusted.contains(&RateKey::Smoluchowski),
+        "{:?}",
+        t.regime
+    );
     assert!(!t.regime.warnings.iter().any(|w| w.contains("believe")));
     // With inertia at γ/ω_b = 5 (where 1/MFPT starts to hold) Kramers keeps its transmission
     // λ₊/ω_b, 0.963 of the overdamped ω_b/γ (Kramers 1940): at 50 kT, where the finite-barrier
@@ -294,7 +298,7 @@ start = -1.0
     let t = theory::analyse(&m.system).unwrap();
     let g = t.regime.gamma_over_omega_barrier.unwrap();
     assert!((g - 5.0).abs() < 0.01, "γ/ω_b = {g}");
-    for key in ["kramers", "smoluchowski", "mfpt"] {
+    for key in [RateKey::Kramers, RateKey::Smoluchowski, RateKey::Mfpt] {
         assert!(t.regime.trusted.contains(&key), "{key}: {:?}", t.regime);
     }
 }

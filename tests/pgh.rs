@@ -207,7 +207,7 @@ fn pgh_matches_simulation_across_the_turnover() {
 // the simulation's 4σ.
 #[test]
 fn pgh_outside_the_turnover_stays_within_its_accuracy_band() {
-    let (lo, hi) = escapade::report::accuracy_band("pgh", 6.0);
+    let (lo, hi) = escapade::report::accuracy_band(escapade::theory::RateKey::Pgh, 6.0);
     let hi = hi.unwrap();
     for ratio in [0.03, 10.0] {
         let (k, rel, t) = simulated(ratio, 4000, &[]);

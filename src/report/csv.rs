@@ -2,7 +2,8 @@
 //! where a rate does not apply. Floats are written in Rust's shortest round-trip form, so a value
 //! read back is bit-identical to what `rate --json` prints for the same point.
 
-use crate::scan::{RATE_KEYS, ScanReport, rate_of};
+use crate::scan::ScanReport;
+use crate::theory::catalogue::CATALOGUE;
 use std::fmt::Write;
 
 fn f(v: Option<f64>) -> String {
@@ -17,12 +18,12 @@ pub fn scan(r: &ScanReport) -> String {
         "{},regime,gamma_over_omega_barrier,delta,barrier_height_kT",
         r.key
     );
-    for k in RATE_KEYS {
+    for k in CATALOGUE.iter().map(|f| f.key) {
         let _ = write!(out, ",{k}");
     }
     let unc = r.points.iter().any(|p| p.uncertainty.is_some());
     if unc {
-        for k in RATE_KEYS {
+        for k in CATALOGUE.iter().map(|f| f.key) {
             let _ = write!(out, ",{k}_lo95,{k}_hi95");
         }
     }
@@ -60,15 +61,15 @@ pub fn scan(r: &ScanReport) -> String {
             f(p.delta),
             p.barrier_height_kt
         );
-        for k in RATE_KEYS {
-            let _ = write!(out, ",{}", f(rate_of(&p.rates, k)));
+        for k in CATALOGUE.iter().map(|f| f.key) {
+            let _ = write!(out, ",{}", f(p.rates[k]));
         }
         if unc {
-            for k in RATE_KEYS {
+            for k in CATALOGUE.iter().map(|f| f.key) {
                 let i = p
                     .uncertainty
                     .as_ref()
-                    .and_then(|v| v.iter().find(|i| i.key == k));
+                    .and_then(|v| v.iter().find(|i| i.key == k.as_str()));
                 let _ = write!(
                     out,
                     ",{},{}",

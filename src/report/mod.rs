@@ -10,7 +10,8 @@ pub mod table;
 
 use crate::landscape::{Kind, Landscape, TargetRule};
 use crate::scenario::Model;
-use crate::theory::{RateRow, Rates, RegimeReport, TheoryReport};
+use crate::theory::catalogue::{Band, Formula, Measures};
+use crate::theory::{RateKey, RateRow, Rates, RegimeReport, TheoryReport};
 use crate::units::{UnitNames, UnitSystem};
 use serde::Serialize;
 
@@ -502,8 +503,8 @@ impl SimulationOut {
 /// One theory against the simulation.
 #[derive(Debug, Clone, Serialize)]
 pub struct ComparisonRow {
-    /// the theory's JSON key
-    pub method: &'static str,
+    /// the theory's key
+    pub method: RateKey,
     /// its readable name
     pub label: &'static str,
     /// its rate
@@ -538,13 +539,12 @@ pub fn compare_rows(
         .iter()
         .map(|r| {
             // a well-to-well rate is set against counted transitions, never against the escape
-            let (against, k_sim, [lo, hi]) = if r.key == "well_to_well" {
-                match &sim.well_to_well {
+            let (against, k_sim, [lo, hi]) = match Formula::of(r.key).measures {
+                Measures::WellToWell => match &sim.well_to_well {
                     Some(w) => ("well-to-well", w.rate, w.rate_ci95),
                     None => ("none", 0.0, [0.0, f64::INFINITY]),
-                }
-            } else {
-                ("escape", sim.rate, sim.rate_ci95)
+                },
+                Measures::Escape => ("escape", sim.rate, sim.rate_ci95),
             };
             let rate = r.rate.filter(|_| against != "none");
             let ratio = rate.filter(|_| k_sim > 0.0).map(|k| k / k_sim);
@@ -575,12 +575,13 @@ pub fn compare_rows(
     let agree: Vec<&str> = rows
         .iter()
         .filter(|r| r.agrees && r.valid)
-        .map(|r| r.method)
+        .map(|r| r.method.as_str())
         .collect();
+    let upper_bound = |k: RateKey| Formula::of(k).band == Band::UpperBound;
     let fits: Vec<&str> = rows
         .iter()
-        .filter(|r| r.consistent && !r.agrees && r.valid && !r.method.starts_with("tst"))
-        .map(|r| r.method)
+        .filter(|r| r.consistent && !r.agrees && r.valid && !upper_bound(r.method))
+        .map(|r| r.method.as_str())
         .collect();
     let verdict = if sim.rate <= 0.0 {
         "no escapes were simulated: no verdict (raise max_time or trajectories)".to_string()

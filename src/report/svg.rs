@@ -28,7 +28,9 @@
 //!
 //! Tick labels carry the fewest significant digits that give the tick's value ([`tick`]).
 
-use crate::scan::{Kind, RATE_KEYS, ScanReport, rate_of};
+use crate::scan::{Kind, ScanReport};
+use crate::theory::RateKey;
+use crate::theory::catalogue::{CATALOGUE, Formula};
 use plotters::coord::Shift;
 use plotters::coord::combinators::{LogCoord, WithKeyPoints};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
@@ -616,25 +618,41 @@ fn render(
 // ---------------------------------------------------------------------------------------------
 // scans
 
-/// Name, colour and marker shape of each rate (fixed per rate, so every picture agrees).
-fn style(key: &str) -> (&'static str, RGBColor, Shape) {
-    match key {
-        "tst" => ("harmonic TST", RGBColor(31, 119, 180), Shape::Square),
-        "tst_exact" => ("exact 1-D TST", RGBColor(255, 127, 14), Shape::Diamond),
-        "kramers" => ("Kramers", RGBColor(44, 160, 44), Shape::Up),
-        "smoluchowski" => ("Smoluchowski", RGBColor(214, 39, 40), Shape::Down),
-        "energy_diffusion" => ("energy diffusion", RGBColor(148, 103, 189), Shape::Right),
-        "turnover" => ("Mel'nikov-Meshkov", RGBColor(140, 86, 75), Shape::Pentagon),
-        "pgh" => (
-            "Pollak-Grabert-Hanggi",
-            RGBColor(227, 119, 194),
-            Shape::Hexagon,
-        ),
-        "mfpt" => ("1/MFPT (overdamped)", RGBColor(127, 127, 127), Shape::Star),
-        "grote_hynes" => ("Grote-Hynes", RGBColor(188, 189, 34), Shape::Left),
-        "well_to_well" => ("well-to-well", RGBColor(23, 190, 207), Shape::Circle),
-        _ => ("simulation", BLACK, Shape::Circle),
-    }
+/// Colours (the tab10 palette) and marker shapes of the rates, by place in the catalogue.
+const COLOURS: [RGBColor; 10] = [
+    RGBColor(31, 119, 180),
+    RGBColor(255, 127, 14),
+    RGBColor(44, 160, 44),
+    RGBColor(214, 39, 40),
+    RGBColor(148, 103, 189),
+    RGBColor(140, 86, 75),
+    RGBColor(227, 119, 194),
+    RGBColor(127, 127, 127),
+    RGBColor(188, 189, 34),
+    RGBColor(23, 190, 207),
+];
+const SHAPES: [Shape; 10] = [
+    Shape::Square,
+    Shape::Diamond,
+    Shape::Up,
+    Shape::Down,
+    Shape::Right,
+    Shape::Pentagon,
+    Shape::Hexagon,
+    Shape::Star,
+    Shape::Left,
+    Shape::Circle,
+];
+
+/// Colour and marker shape of each rate (fixed per rate, so every picture agrees): the i-th
+/// formula of the catalogue has colour i mod 10 and a shape shifted by i/10, so the pairs stay
+/// distinct for up to 100 formulas.
+fn style(key: RateKey) -> (RGBColor, Shape) {
+    let i = CATALOGUE
+        .iter()
+        .position(|f| f.key == key)
+        .unwrap_or_default();
+    (COLOURS[i % 10], SHAPES[(i + i / 10) % 10])
 }
 
 fn time_unit(r: &ScanReport) -> &str {
@@ -648,7 +666,7 @@ fn time_unit(r: &ScanReport) -> &str {
 /// One rate over the scan: per point (x, y, holds there), None where it is absent or off the
 /// axis.
 struct Curve {
-    key: &'static str,
+    key: RateKey,
     pts: Vec<Option<(f64, f64, bool)>>,
 }
 
@@ -672,27 +690,28 @@ pub fn scan(r: &ScanReport) -> String {
         Kind::Temperature => 1000.0 / p.value,
         _ => p.value,
     };
-    let norm = friction && r.points.iter().all(|p| p.rates.tst.is_some());
+    // normalised by harmonic TST, the friction-independent reference
+    let norm = friction && r.points.iter().all(|p| p.rates[RateKey::Tst].is_some());
     let ln_y = matches!(r.kind, Kind::Temperature | Kind::Force);
     let y_of = |p: &crate::scan::Point, k: f64| -> f64 {
         let k = if norm {
-            k / p.rates.tst.unwrap_or(1.0)
+            k / p.rates[RateKey::Tst].unwrap_or(1.0)
         } else {
             k
         };
         if ln_y { k.ln() } else { k }
     };
-    let curves: Vec<Curve> = RATE_KEYS
+    let curves: Vec<Curve> = CATALOGUE
         .iter()
-        .copied()
-        .filter(|k| !(norm && *k == "tst"))
+        .map(|f| f.key)
+        .filter(|k| !(norm && *k == RateKey::Tst))
         .map(|k| Curve {
             key: k,
             pts: r
                 .points
                 .iter()
                 .map(|p| {
-                    let y = y_of(p, rate_of(&p.rates, k)?);
+                    let y = y_of(p, p.rates[k]?);
                     y.is_finite().then(|| (x_of(p), y, p.holds.contains(&k)))
                 })
                 .collect(),
@@ -806,7 +825,7 @@ pub fn scan(r: &ScanReport) -> String {
 /// A curve: solid between points where the formula holds at both ends, dashed otherwise, broken
 /// where it is absent; a marker at every point on the axes.
 fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
-    let (_, colour, shape) = style(c.key);
+    let (colour, shape) = style(c.key);
     let mut run: Vec<(f64, f64)> = Vec::new();
     let mut run_holds = true;
     let mut flush = |run: &mut Vec<(f64, f64)>, holds: bool| {
@@ -815,7 +834,7 @@ fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
         } else {
             "curve outside"
         };
-        raw.polyline(run, colour, !holds, class, c.key);
+        raw.polyline(run, colour, !holds, class, c.key.as_str());
         run.clear();
     };
     for w in c.pts.windows(2) {
@@ -844,7 +863,7 @@ fn draw_curve(raw: &mut Raw, px: &Px, c: &Curve) {
             } else {
                 "marker outside"
             };
-            raw.marker(shape, px.at(x, y), colour, holds, class, c.key);
+            raw.marker(shape, px.at(x, y), colour, holds, class, c.key.as_str());
         }
     }
 }
@@ -873,9 +892,9 @@ fn scan_legend(r: &ScanReport, curves: &[Curve], sim: bool, tu: &str, lu: &str) 
     let mut entries: Vec<Entry> = curves
         .iter()
         .map(|c| {
-            let (name, colour, shape) = style(c.key);
+            let (colour, shape) = style(c.key);
             Entry {
-                text: fit_text(name, c.key),
+                text: fit_text(Formula::of(c.key).legend, c.key.as_str()),
                 colour,
                 shape: Some(shape),
                 line: true,
@@ -1039,12 +1058,48 @@ pub fn landscape(
         xdesc: &xdesc,
         ydesc: &ydesc,
     };
+    let marks = landscape_marks(l, hi - lo);
+    let legend = fit_legend(data.and(pot.fit()));
+    render(&legend, |area| {
+        let px = frame(area, &f, &|_, _| Ok(()))?;
+        let mut raw = Raw::default();
+        raw.open_data(&px);
+        let pts: Vec<(f64, f64)> = curve
+            .iter()
+            .filter(|p| p.1.is_finite())
+            .map(|&(x, y)| px.at(x, y_near(&px, y)))
+            .collect();
+        // measured rows under the curve, in grey, so the fit stays readable on dense tables
+        if let Some(d) = data {
+            measured_rows(&mut raw, &px, d, &e);
+        }
+        raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
+        raw.close();
+        // the points and their labels, placed clear of each other and of the curve
+        let centres: Vec<(f64, f64)> = marks
+            .iter()
+            .map(|&(_, x, _)| px.at(x, e(pot.u(x))))
+            .collect();
+        point_marks(&mut raw, &px, &marks, &centres, &pts);
+        // the 1 kT bar at the lower right
+        let kt = units.energy_from_kt(1.0);
+        scale_bar(&mut raw, &px, hi - 0.04 * (hi - lo), ymin + 0.1 * top, kt);
+        Ok(raw)
+    })
+}
+
+/// The marked points of a landscape picture: name, position and colour (`span` is the domain's
+/// width, to tell a product minimum apart from the target).
+fn landscape_marks(
+    l: &crate::landscape::Landscape,
+    span: f64,
+) -> Vec<(&'static str, f64, RGBColor)> {
     let mut marks = vec![
         ("reactant", l.reactant, RGBColor(44, 160, 44)),
         ("barrier", l.barrier, RGBColor(214, 39, 40)),
     ];
     match l.product {
-        Some(p) if (p - l.target).abs() > 1e-9 * (hi - lo) => {
+        Some(p) if (p - l.target).abs() > 1e-9 * span => {
             marks.push(("product", p, RGBColor(255, 127, 14)));
             marks.push(("target", l.target, RGBColor(148, 103, 189)));
         }
@@ -1055,9 +1110,14 @@ pub fn landscape(
         )),
         None => marks.push(("target", l.target, RGBColor(148, 103, 189))),
     }
-    // a fitted table: say which fit the curve is, beside its rows with their error bars
-    let entries = match (data, pot.fit()) {
-        (Some(_), Some(fit)) => vec![
+    marks
+}
+
+/// The legend of a landscape picture: for a fitted table, which fit the curve is, beside its rows
+/// with their error bars; empty otherwise.
+fn fit_legend(fit: Option<&crate::potential::FitSummary>) -> Legend {
+    let entries = match fit {
+        Some(fit) => vec![
             Entry {
                 text: match (fit.rule, fit.chi2) {
                     (Some(rule), Some(chi2)) => format!(
@@ -1079,88 +1139,83 @@ pub fn landscape(
                 sim: true,
             },
         ],
-        _ => Vec::new(),
+        None => Vec::new(),
     };
-    let legend = Legend { entries, key: None };
-    render(&legend, |area| {
-        let px = frame(area, &f, &|_, _| Ok(()))?;
-        let mut raw = Raw::default();
-        raw.open_data(&px);
-        let pts: Vec<(f64, f64)> = curve
-            .iter()
-            .filter(|p| p.1.is_finite())
-            .map(|&(x, y)| px.at(x, y_near(&px, y)))
-            .collect();
-        // measured rows under the curve, in grey, so the fit stays readable on dense tables
-        if let Some(d) = data {
-            let grey = RGBColor(150, 150, 150);
-            for p in d {
-                let (sx, sy) = px.at(p.x, e(p.u));
-                let lo = px.y_clamped(e(p.u - p.sigma));
-                let hi = px.y_clamped(e(p.u + p.sigma));
-                raw.line((sx, lo), (sx, hi), grey, 1.0, "errorbar");
-                if px.contains(p.x, e(p.u)) {
-                    let _ = writeln!(
-                        raw.0,
-                        r##"<g class="marker data" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="2" fill="#969696"/></g>"##
-                    );
-                }
-            }
-        }
-        raw.polyline(&pts, RGBColor(31, 119, 180), false, "curve", "U");
-        raw.close();
-        // the points and their labels, placed clear of each other and of the curve
-        let centres: Vec<(f64, f64)> = marks
-            .iter()
-            .map(|&(_, x, _)| px.at(x, e(pot.u(x))))
-            .collect();
-        for ((name, _, c), &(cx, cy)) in marks.iter().zip(&centres) {
+    Legend { entries, key: None }
+}
+
+/// A fitted table's rows as grey points with ±σ_U error bars; `e` turns U (kT) into the
+/// picture's energy.
+fn measured_rows(raw: &mut Raw, px: &Px, d: &[ProfilePoint], e: &dyn Fn(f64) -> f64) {
+    let grey = RGBColor(150, 150, 150);
+    for p in d {
+        let (sx, sy) = px.at(p.x, e(p.u));
+        let lo = px.y_clamped(e(p.u - p.sigma));
+        let hi = px.y_clamped(e(p.u + p.sigma));
+        raw.line((sx, lo), (sx, hi), grey, 1.0, "errorbar");
+        if px.contains(p.x, e(p.u)) {
             let _ = writeln!(
                 raw.0,
-                r#"<g class="point" data-name="{name}" transform="translate({cx:.1},{cy:.1})"><circle cx="0" cy="0" r="6" fill="{}"/></g>"#,
-                hex(*c)
+                r##"<g class="marker data" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="2" fill="#969696"/></g>"##
             );
         }
-        let names: Vec<&str> = marks.iter().map(|m| m.0).collect();
-        for (i, b) in place_labels(&names, &centres, &pts, &px)
-            .into_iter()
-            .enumerate()
-        {
-            let (cx, cy) = centres[i];
-            // a leader line when the label had to move away from its point
-            let (bx, by) = (b[0] + b[2] / 2.0, b[1] + b[3] / 2.0);
-            if (bx - cx).abs() > b[2] / 2.0 + 12.0 || (by - cy).abs() > b[3] / 2.0 + 12.0 {
-                let ty = if by < cy {
-                    b[1] + b[3] + 1.0
-                } else {
-                    b[1] - 1.0
-                };
-                raw.line((cx, cy), (bx, ty), RGBColor(120, 120, 120), 0.8, "leader");
-            }
-            raw.text(
-                (bx, b[1] + 0.8 * LABEL_FONT),
-                names[i],
-                LABEL_FONT,
-                "middle",
-                "point-label",
-            );
-        }
-        // the 1 kT bar at the lower right
-        let kt = units.energy_from_kt(1.0);
-        let xb = hi - 0.04 * (hi - lo);
-        let y0 = ymin + 0.1 * top;
-        let (bx, by0) = px.at(xb, y0);
-        let (_, by1) = px.at(xb, y0 + kt);
-        raw.line((bx, by0), (bx, by1), BLACK, 3.0, "scale-bar");
-        raw.text(
-            (bx - 8.0, (by0 + by1) / 2.0 + 5.0),
-            "1 kT",
-            15.0,
-            "end",
-            "scale-label",
+    }
+}
+
+/// The marked points at `centres` and their labels, placed clear of each other and of the curve
+/// `pts`, with a leader line where a label had to move away.
+fn point_marks(
+    raw: &mut Raw,
+    px: &Px,
+    marks: &[(&str, f64, RGBColor)],
+    centres: &[(f64, f64)],
+    pts: &[(f64, f64)],
+) {
+    for ((name, _, c), &(cx, cy)) in marks.iter().zip(centres) {
+        let _ = writeln!(
+            raw.0,
+            r#"<g class="point" data-name="{name}" transform="translate({cx:.1},{cy:.1})"><circle cx="0" cy="0" r="6" fill="{}"/></g>"#,
+            hex(*c)
         );
-        Ok(raw)
-    })
+    }
+    let names: Vec<&str> = marks.iter().map(|m| m.0).collect();
+    for (i, b) in place_labels(&names, centres, pts, px)
+        .into_iter()
+        .enumerate()
+    {
+        let (cx, cy) = centres[i];
+        // a leader line when the label had to move away from its point
+        let (bx, by) = (b[0] + b[2] / 2.0, b[1] + b[3] / 2.0);
+        if (bx - cx).abs() > b[2] / 2.0 + 12.0 || (by - cy).abs() > b[3] / 2.0 + 12.0 {
+            let ty = if by < cy {
+                b[1] + b[3] + 1.0
+            } else {
+                b[1] - 1.0
+            };
+            raw.line((cx, cy), (bx, ty), RGBColor(120, 120, 120), 0.8, "leader");
+        }
+        raw.text(
+            (bx, b[1] + 0.8 * LABEL_FONT),
+            names[i],
+            LABEL_FONT,
+            "middle",
+            "point-label",
+        );
+    }
+}
+
+/// A vertical bar `kt` (1 kT in the picture's energy) high from (x, y0), labelled "1 kT".
+fn scale_bar(raw: &mut Raw, px: &Px, x: f64, y0: f64, kt: f64) {
+    let (bx, by0) = px.at(x, y0);
+    let (_, by1) = px.at(x, y0 + kt);
+    raw.line((bx, by0), (bx, by1), BLACK, 3.0, "scale-bar");
+    raw.text(
+        (bx - 8.0, (by0 + by1) / 2.0 + 5.0),
+        "1 kT",
+        15.0,
+        "end",
+        "scale-label",
+    );
 }
 
 /// Values beyond the axis are drawn just beyond it (the clip path cuts them off cleanly).

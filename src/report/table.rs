@@ -376,7 +376,8 @@ pub fn rate(r: &RateReport) -> String {
         u.t
     );
     if !reg.trusted.is_empty() {
-        let _ = writeln!(out, "trust here: {}", reg.trusted.join(", "));
+        let trusted: Vec<&str> = reg.trusted.iter().map(|k| k.as_str()).collect();
+        let _ = writeln!(out, "trust here: {}", trusted.join(", "));
     }
     if let Some(p) = &r.periodic {
         periodic_theory(&mut out, p, &u);
@@ -434,7 +435,7 @@ fn uncertainty(
     for i in &q.rates {
         let label = rows
             .iter()
-            .find(|r| r.key == i.key)
+            .find(|r| r.key.as_str() == i.key)
             .map_or(i.key, |r| r.label);
         t.add_row(vec![
             format!("{label} (1/{})", u.t),
@@ -580,6 +581,28 @@ fn periodic_theory(out: &mut String, p: &super::PeriodicOut, u: &U) {
 }
 
 fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
+    sim_run(out, s, u);
+    if let (Some(esc), Some(cen)) = (s.escaped, s.censored) {
+        sim_ensemble(out, s, esc, cen, u);
+    }
+    if let Some(f) = &s.ffs {
+        sim_ffs(out, f, u);
+    }
+    if let Some(k) = &s.reactive_flux {
+        sim_reactive_flux(out, k, u);
+    }
+    if let Some(w) = &s.well_to_well {
+        sim_well_to_well(out, w, u);
+    }
+    if let Some(p) = &s.periodic {
+        sim_periodic(out, p, u);
+    }
+    sim_rate(out, s, u);
+    warnings(out, &s.warnings);
+}
+
+/// The run: method, dynamics, scheme, dt, seed, threads, time and steps, and why this method.
+fn sim_run(out: &mut String, s: &super::SimulationOut, u: &U) {
     let _ = writeln!(
         out,
         "simulation: {} {} ({}), dt = {} {} (default {}), seed {}, {} threads, {:.2} s, {} steps",
@@ -598,137 +621,151 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
         s.total_steps
     );
     let _ = writeln!(out, "method: {}", s.method_reason);
-    if let (Some(esc), Some(cen)) = (s.escaped, s.censored) {
-        let _ = writeln!(
-            out,
-            "{} trajectories{}, max_time = {} {}",
-            s.trajectories,
-            s.shard
-                .as_ref()
-                .map(|k| format!(" (shard {k})"))
-                .unwrap_or_default(),
-            opt(s.max_time),
-            u.t
-        );
-        let mut t = table();
-        t.set_header(vec![
-            "escaped".to_string(),
-            "censored".to_string(),
-            format!("rate (1/{})", u.t),
-            "95% interval".to_string(),
-            format!("MFPT ± se ({})", u.t),
-            format!("median ({})", u.t),
-            "CV".to_string(),
-            "KS distance (p)".to_string(),
-        ]);
+}
+
+/// The ensemble of escapes: counts, rate, MFPT and the shape of the first-passage times.
+fn sim_ensemble(out: &mut String, s: &super::SimulationOut, esc: u64, cen: u64, u: &U) {
+    let _ = writeln!(
+        out,
+        "{} trajectories{}, max_time = {} {}",
+        s.trajectories,
+        s.shard
+            .as_ref()
+            .map(|k| format!(" (shard {k})"))
+            .unwrap_or_default(),
+        opt(s.max_time),
+        u.t
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "escaped".to_string(),
+        "censored".to_string(),
+        format!("rate (1/{})", u.t),
+        "95% interval".to_string(),
+        format!("MFPT ± se ({})", u.t),
+        format!("median ({})", u.t),
+        "CV".to_string(),
+        "KS distance (p)".to_string(),
+    ]);
+    t.add_row(vec![
+        esc.to_string(),
+        cen.to_string(),
+        num(s.rate),
+        format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
+        match (s.mfpt, s.mfpt_se) {
+            (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
+            (Some(m), None) => num(m),
+            _ => "—".into(),
+        },
+        opt(s.median),
+        opt(s.cv),
+        match (s.ks_distance, s.ks_p_value) {
+            (Some(d), Some(p)) => format!("{} ({})", num(d), num(p)),
+            _ => "—".into(),
+        },
+    ]);
+    show(out, t);
+}
+
+/// Forward flux sampling: its interfaces and the stages between them.
+fn sim_ffs(out: &mut String, f: &crate::simulate::ffs::FfsResult, u: &U) {
+    let _ = writeln!(
+        out,
+        "forward flux sampling: {} interfaces ({}), {} replicas × {} trials per stage, flux through the first {} /{}",
+        f.interfaces.len(),
+        if f.interfaces_automatic {
+            "placed automatically"
+        } else {
+            "given"
+        },
+        f.replica_rates.len(),
+        f.trials_per_stage,
+        num(f.flux),
+        u.t
+    );
+    let mut t = table();
+    t.set_header(vec![
+        format!("from ({})", u.l),
+        format!("to ({})", u.l),
+        "trials".to_string(),
+        "successes".to_string(),
+        "P(next | this)".to_string(),
+    ]);
+    for st in &f.stages {
         t.add_row(vec![
-            esc.to_string(),
-            cen.to_string(),
-            num(s.rate),
-            format!("[{}, {}]", num(s.rate_ci95[0]), num(s.rate_ci95[1])),
-            match (s.mfpt, s.mfpt_se) {
-                (Some(m), Some(e)) => format!("{} ± {}", num(m), num(e)),
-                (Some(m), None) => num(m),
-                _ => "—".into(),
-            },
-            opt(s.median),
-            opt(s.cv),
-            match (s.ks_distance, s.ks_p_value) {
-                (Some(d), Some(p)) => format!("{} ({})", num(d), num(p)),
-                _ => "—".into(),
-            },
+            num(st.from),
+            num(st.to),
+            st.trials.to_string(),
+            st.successes.to_string(),
+            num(st.probability),
         ]);
-        show(out, t);
     }
-    if let Some(f) = &s.ffs {
-        let _ = writeln!(
-            out,
-            "forward flux sampling: {} interfaces ({}), {} replicas × {} trials per stage, flux through the first {} /{}",
-            f.interfaces.len(),
-            if f.interfaces_automatic {
-                "placed automatically"
-            } else {
-                "given"
-            },
-            f.replica_rates.len(),
-            f.trials_per_stage,
-            num(f.flux),
-            u.t
-        );
-        let mut t = table();
-        t.set_header(vec![
-            format!("from ({})", u.l),
-            format!("to ({})", u.l),
-            "trials".to_string(),
-            "successes".to_string(),
-            "P(next | this)".to_string(),
-        ]);
-        for st in &f.stages {
-            t.add_row(vec![
-                num(st.from),
-                num(st.to),
-                st.trials.to_string(),
-                st.successes.to_string(),
-                num(st.probability),
-            ]);
-        }
-        show(out, t);
-    }
-    if let Some(k) = &s.reactive_flux {
-        let _ = writeln!(
-            out,
-            "reactive flux: {} trajectories from the barrier top, kappa = {} [{}, {}], plateau {} (window {} {}), exact TST {} /{}",
-            k.trajectories,
-            num(k.kappa),
-            num(k.kappa_ci95[0]),
-            num(k.kappa_ci95[1]),
-            k.plateau_time
-                .map(|t| format!("from t = {} {}", num(t), u.t))
-                .unwrap_or_else(|| "not reached".into()),
-            num(k.t_max),
-            u.t,
-            num(k.tst_exact),
-            u.t
-        );
-    }
-    if let Some(w) = &s.well_to_well {
-        let _ = writeln!(
-            out,
-            "well-to-well (counted transitions, not the escape): {} trajectories × {} {}, {} forward and {} back; rate out of the reactant well {} /{}, out of the product well {} /{}\n  states: {}",
-            w.trajectories,
-            num(w.time_per_trajectory),
-            u.t,
-            w.forward,
-            w.backward,
-            with_ci(w.rate, w.rate_ci95),
-            u.t,
-            with_ci(w.rate_back, w.rate_back_ci95),
-            u.t,
-            w.rule
-        );
-    }
-    if let Some(p) = &s.periodic {
-        let _ = writeln!(
-            out,
-            "periodic landscape (long trajectories on the whole line): {} trajectories × {} blocks of {} {}; drift {} {}/{}, D_eff {} {}²/{}; hops out of the reactant well {} forward, {} back: k+ {} /{}, k− {} /{}",
-            p.trajectories,
-            p.blocks,
-            num(p.block_time),
-            u.t,
-            with_ci(p.drift, p.drift_ci95),
-            u.l,
-            u.t,
-            with_ci(p.effective_diffusion, p.effective_diffusion_ci95),
-            u.l,
-            u.t,
-            p.hops_forward,
-            p.hops_backward,
-            with_ci(p.hop_forward, p.hop_forward_ci95),
-            u.t,
-            with_ci(p.hop_backward, p.hop_backward_ci95),
-            u.t,
-        );
-    }
+    show(out, t);
+}
+
+/// The reactive-flux run: κ and its plateau.
+fn sim_reactive_flux(out: &mut String, k: &crate::simulate::flux::FluxResult, u: &U) {
+    let _ = writeln!(
+        out,
+        "reactive flux: {} trajectories from the barrier top, kappa = {} [{}, {}], plateau {} (window {} {}), exact TST {} /{}",
+        k.trajectories,
+        num(k.kappa),
+        num(k.kappa_ci95[0]),
+        num(k.kappa_ci95[1]),
+        k.plateau_time
+            .map(|t| format!("from t = {} {}", num(t), u.t))
+            .unwrap_or_else(|| "not reached".into()),
+        num(k.t_max),
+        u.t,
+        num(k.tst_exact),
+        u.t
+    );
+}
+
+/// Transitions counted between the wells of long trajectories.
+fn sim_well_to_well(out: &mut String, w: &crate::simulate::transitions::TransitionResult, u: &U) {
+    let _ = writeln!(
+        out,
+        "well-to-well (counted transitions, not the escape): {} trajectories × {} {}, {} forward and {} back; rate out of the reactant well {} /{}, out of the product well {} /{}\n  states: {}",
+        w.trajectories,
+        num(w.time_per_trajectory),
+        u.t,
+        w.forward,
+        w.backward,
+        with_ci(w.rate, w.rate_ci95),
+        u.t,
+        with_ci(w.rate_back, w.rate_back_ci95),
+        u.t,
+        w.rule
+    );
+}
+
+/// Drift, D_eff and hops from long trajectories on a periodic landscape.
+fn sim_periodic(out: &mut String, p: &crate::simulate::periodic::PeriodicSimResult, u: &U) {
+    let _ = writeln!(
+        out,
+        "periodic landscape (long trajectories on the whole line): {} trajectories × {} blocks of {} {}; drift {} {}/{}, D_eff {} {}²/{}; hops out of the reactant well {} forward, {} back: k+ {} /{}, k− {} /{}",
+        p.trajectories,
+        p.blocks,
+        num(p.block_time),
+        u.t,
+        with_ci(p.drift, p.drift_ci95),
+        u.l,
+        u.t,
+        with_ci(p.effective_diffusion, p.effective_diffusion_ci95),
+        u.l,
+        u.t,
+        p.hops_forward,
+        p.hops_backward,
+        with_ci(p.hop_forward, p.hop_forward_ci95),
+        u.t,
+        with_ci(p.hop_backward, p.hop_backward_ci95),
+        u.t,
+    );
+}
+
+/// The escape rate with its interval and how it was built.
+fn sim_rate(out: &mut String, s: &super::SimulationOut, u: &U) {
     let _ = writeln!(
         out,
         "escape rate {} /{} [{}, {}] (95%: {}){}",
@@ -746,7 +783,6 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
             String::new()
         }
     );
-    warnings(out, &s.warnings);
 }
 
 /// Renders `simulate`.
@@ -977,23 +1013,6 @@ pub fn merge(r: &super::MergeReport) -> String {
     out
 }
 
-/// Short heading of each rate in scan tables.
-fn rate_heading(key: &str) -> &'static str {
-    match key {
-        "tst" => "TST",
-        "tst_exact" => "exact TST",
-        "kramers" => "Kramers",
-        "smoluchowski" => "Smoluchowski",
-        "energy_diffusion" => "energy diffusion",
-        "turnover" => "turnover",
-        "pgh" => "PGH",
-        "mfpt" => "1/MFPT",
-        "grote_hynes" => "Grote-Hynes",
-        "well_to_well" => "well to well",
-        _ => "rate",
-    }
-}
-
 /// Short heading with units for the scanned value.
 fn value_heading(r: &crate::scan::ScanReport, u: &U) -> String {
     match r.key.as_str() {
@@ -1012,7 +1031,7 @@ fn value_heading(r: &crate::scan::ScanReport, u: &U) -> String {
 /// regime, E_b/kT and every rate at every point. Numbers have three significant digits (the
 /// CSV and JSON keep every digit).
 pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
-    use crate::scan::{RATE_KEYS, rate_of};
+    use crate::theory::catalogue::{CATALOGUE, Formula};
     let u = U::new(&r.units);
     let mut out = String::new();
     let _ = writeln!(
@@ -1029,17 +1048,16 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
         head.push("regime".into());
         head.push("E_b/kT".into());
     }
-    let keys: Vec<&str> = RATE_KEYS
+    let formulas: Vec<&Formula> = CATALOGUE
         .iter()
-        .copied()
-        .filter(|k| {
+        .filter(|f| {
             r.points
                 .iter()
-                .any(|p| rate_of(&p.rates, k).is_some() && (all || p.holds.contains(k)))
+                .any(|p| p.rates[f.key].is_some() && (all || p.holds.contains(&f.key)))
         })
         .collect();
-    for k in &keys {
-        head.push(format!("{} (1/{})", rate_heading(k), u.t));
+    for f in &formulas {
+        head.push(format!("{} (1/{})", f.heading, u.t));
     }
     let per = r.points.iter().any(|p| p.periodic.is_some());
     if per {
@@ -1081,14 +1099,14 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             row.push(p.regime.to_string());
             row.push(short(p.barrier_height_kt));
         }
-        for k in &keys {
+        for k in formulas.iter().map(|f| f.key) {
             let ci = p
                 .uncertainty
                 .as_ref()
-                .and_then(|v| v.iter().find(|i| i.key == *k))
+                .and_then(|v| v.iter().find(|i| i.key == k.as_str()))
                 .map(|i| i.ci95);
-            let v = rate_of(&p.rates, k);
-            if all || p.holds.contains(k) {
+            let v = p.rates[k];
+            if all || p.holds.contains(&k) {
                 row.push(iv_or(v, ci));
             } else {
                 hidden |= v.is_some();
@@ -1164,7 +1182,7 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             out,
             "—: the formula does not hold at that point (--all-columns shows every rate everywhere)"
         );
-    } else if keys.is_empty() && !all {
+    } else if formulas.is_empty() && !all {
         let _ = writeln!(
             out,
             "no rate formula holds at any point of this scan (--all-columns shows them all)"

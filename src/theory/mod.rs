@@ -3,6 +3,7 @@
 //! quantities here are internal (kT = 1, scenario length and time units), and rates are computed
 //! as logarithms so barriers up to hundreds of kT neither overflow nor underflow.
 
+pub mod catalogue;
 pub mod kramers;
 pub mod mfpt;
 pub mod periodic;
@@ -11,11 +12,14 @@ pub mod regime;
 pub mod tst;
 pub mod turnover;
 
-use crate::landscape::{LOW_BARRIER_KT, Landscape, LandscapeError};
+pub use catalogue::{RateKey, Rates};
+
+use crate::landscape::{Landscape, LandscapeError};
 use crate::potential::{Diffusion, Potential};
 use crate::system::System;
+use catalogue::{CATALOGUE, Formula, MfptCheck, RateContext, Value};
 use mfpt::Mfpt;
-use regime::{DELTA_ED_VALID, DELTA_SPATIAL, RegimeName};
+use regime::RegimeName;
 use serde::Serialize;
 use thiserror::Error;
 
@@ -45,53 +49,16 @@ impl TheoryError {
     }
 }
 
-/// The rates (per time unit); `None` where a formula does not apply (no mass, or no friction).
-#[derive(Debug, Clone, Copy, Default, Serialize)]
-pub struct Rates {
-    /// harmonic TST
-    pub tst: Option<f64>,
-    /// exact 1-D TST (flux over population)
-    pub tst_exact: Option<f64>,
-    /// Kramers spatial-diffusion
-    pub kramers: Option<f64>,
-    /// Smoluchowski (overdamped) limit
-    pub smoluchowski: Option<f64>,
-    /// energy-diffusion (escape from the well)
-    pub energy_diffusion: Option<f64>,
-    /// Mel'nikov–Meshkov turnover (escape from the well)
-    pub turnover: Option<f64>,
-    /// 1 / exact overdamped MFPT
-    pub mfpt: Option<f64>,
-    /// Grote–Hynes rate for memory friction (with particle.memory_time)
-    pub grote_hynes: Option<f64>,
-    /// Mel'nikov's well-to-well transition rate of a double well (not an escape rate)
-    pub well_to_well: Option<f64>,
-    /// Pollak–Grabert–Hänggi turnover rate for Ohmic friction (escape from the well)
-    pub pgh: Option<f64>,
-}
-
 /// The documented accuracy of each rate against a simulated escape rate, as the allowed range of
-/// theory/simulation: asymptotic formulas neglect finite-barrier corrections of order kT/E_b, by
-/// which they overestimate the escape rate (PHYSICS.md §2, §4: 10–15% at 7 kT); TST is an upper
-/// bound; the exact MFPT is exact for overdamped dynamics up to the time-step bias (1% at the
-/// default dt). A 3% margin on the other side covers the simulation's time-step bias. PGH can also
-/// fall short: at strong friction its energy loss stays near 0.8 E_b, so Υ = A(Δ/kT) < 1 by about
-/// 2e^{−Δ/4}/sqrt(πΔ), which is of order kT/E_b for moderate barriers (0.16 at 6 kT).
-pub fn accuracy_band(key: &str, barrier_kt: f64) -> (f64, Option<f64>) {
-    let finite = (1.0 / barrier_kt.max(1.0)).min(0.5);
-    match key {
-        "mfpt" => (1.0 / 1.01, Some(1.0 / 0.99)),
-        "tst" | "tst_exact" => (1.0 / 1.03, None),
-        "pgh" => (1.0 / (1.03 + finite), Some(1.0 / (1.0 - finite))),
-        _ => (1.0 / 1.03, Some(1.0 / (1.0 - finite))),
-    }
-}
-
-/// Whether a rate that holds here can be checked against the exact 1/MFPT: the escape rates of the
-/// spatial-diffusion family approach it (the MFPT is exact for the overdamped model); the
-/// well-to-well rate is another quantity and TST an upper bound of the inertial rate.
-fn checked_against_mfpt(key: &str) -> bool {
-    !matches!(key, "mfpt" | "well_to_well" | "tst" | "tst_exact")
+/// theory/simulation (the formula's [`catalogue::Band`]): asymptotic formulas neglect
+/// finite-barrier corrections of order kT/E_b, by which they overestimate the escape rate
+/// (PHYSICS.md §2, §4: 10–15% at 7 kT); TST is an upper bound; the exact MFPT is exact for
+/// overdamped dynamics up to the time-step bias (1% at the default dt). A 3% margin on the other
+/// side covers the simulation's time-step bias. PGH can also fall short: at strong friction its
+/// energy loss stays near 0.8 E_b, so Υ = A(Δ/kT) < 1 by about 2e^{−Δ/4}/sqrt(πΔ), which is of
+/// order kT/E_b for moderate barriers (0.16 at 6 kT).
+pub fn accuracy_band(key: RateKey, barrier_kt: f64) -> (f64, Option<f64>) {
+    Formula::of(key).band.limits(barrier_kt)
 }
 
 /// Consistency of the rates that hold: when 1/MFPT holds (overdamped dynamics, where it is exact)
@@ -101,12 +68,14 @@ fn checked_against_mfpt(key: &str) -> bool {
 /// rate to believe: 1/MFPT integrates the profile and needs no curvature, so it is robust to
 /// noise in U'' and to an anharmonic well or barrier, the two reasons a harmonic rate fails here.
 /// Skipped when the target lies close to the barrier top (then 1/MFPT itself is off by up to 2×
-/// and the landscape already warns).
+/// and the landscape already warns). Which rates are checked, and against what, is each
+/// formula's [`catalogue::MfptCheck`]: the escape rates of the spatial-diffusion family approach
+/// 1/MFPT; the well-to-well rate is another quantity and TST an upper bound of the inertial rate.
 fn check_consistency(t: &mut TheoryReport) {
     let Some(exact) = t
         .rows
         .iter()
-        .find(|r| r.key == "mfpt" && r.valid)
+        .find(|r| r.key == RateKey::Mfpt && r.valid)
         .and_then(|r| r.rate)
     else {
         return;
@@ -126,13 +95,13 @@ fn check_consistency(t: &mut TheoryReport) {
         _ => 1.0,
     };
     for r in t.rows.iter_mut() {
-        let Some(k) = r.rate.filter(|_| r.valid && checked_against_mfpt(r.key)) else {
+        let Some(k) = r.rate.filter(|_| r.valid) else {
             continue;
         };
-        let reference = if r.key == "smoluchowski" {
-            exact
-        } else {
-            exact * inertial
+        let reference = match Formula::of(r.key).mfpt_check {
+            MfptCheck::None => continue,
+            MfptCheck::Overdamped => exact,
+            MfptCheck::Inertial => exact * inertial,
         };
         let ratio = k / reference;
         let (lo, hi) = accuracy_band(r.key, eb);
@@ -152,14 +121,13 @@ fn check_consistency(t: &mut TheoryReport) {
             r.label
         ));
     }
-    t.regime.trusted = t.rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
 }
 
 /// One rate with its standing in this regime.
 #[derive(Debug, Clone, Serialize)]
 pub struct RateRow {
-    /// the JSON key
-    pub key: &'static str,
+    /// the formula
+    pub key: RateKey,
     /// a readable name
     pub label: &'static str,
     /// the rate (per time unit), if it applies
@@ -182,7 +150,7 @@ pub struct RegimeReport {
     /// E_b / kT
     pub barrier_kt: f64,
     /// keys of the rates that hold here
-    pub trusted: Vec<&'static str>,
+    pub trusted: Vec<RateKey>,
     /// everything a user should know
     pub warnings: Vec<String>,
 }
@@ -406,53 +374,51 @@ pub fn analyse_periodic(
     )?)
 }
 
-/// Adds the Grote–Hynes rate k_GH = (λ_r/ω_b) k_TST for an exponential memory kernel of memory
-/// time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715 (1980)) and marks the memoryless
-/// friction-dependent rates as not holding; PGH was computed for the same kernel by
-/// [`rates_for`].
-fn apply_memory(t: &mut TheoryReport, tau: f64) {
-    let (Some(g), Some(wb), Some(tst)) = (t.friction, t.landscape.omega_barrier, t.rates.tst)
-    else {
-        return;
-    };
-    let k = kramers::lambda_grote_hynes(g, wb, tau) / wb * tst;
-    t.rates.grote_hynes = Some(k);
-    if let Some(r) = t.rows.iter_mut().find(|r| r.key == "pgh" && r.valid) {
-        r.note = "holds at all frictions, exponential memory (finite-barrier error ~kT/E_b)".into();
-    }
-    let high = t.landscape.barrier_height >= LOW_BARRIER_KT;
-    let row = RateRow {
-        key: "grote_hynes",
-        label: "Grote-Hynes (memory friction)",
-        rate: Some(k),
-        valid: high && t.regime.delta.is_none_or(|d| d >= DELTA_SPATIAL),
-        note: if high {
-            "memory friction, spatial-diffusion regime (delta >= 10)".into()
-        } else {
-            "barrier below 5 kT: asymptotic formula unreliable".into()
-        },
-    };
-    // the friction-dependent memoryless formulas do not hold with memory
-    for r in t.rows.iter_mut().filter(|r| {
-        matches!(
-            r.key,
-            "kramers" | "smoluchowski" | "energy_diffusion" | "turnover" | "well_to_well" | "mfpt"
-        )
-    }) {
+/// Marks the memoryless friction-dependent rates as not holding when the friction has an
+/// exponential memory kernel of memory time `tau` (Grote & Hynes, J. Chem. Phys. 73, 2715
+/// (1980)); the Grote–Hynes rate and PGH for the same kernel hold instead.
+fn apply_memory(rows: &mut [RateRow], warnings: &mut Vec<String>, tau: f64) {
+    for r in rows.iter_mut().filter(|r| Formula::of(r.key).memoryless) {
         if r.valid {
             r.valid = false;
             r.note = "assumes memoryless friction (memory_time is set)".into();
         }
     }
-    t.rows.push(row);
-    t.regime.trusted = t.rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
-    t.regime.warnings.push(format!(
+    warnings.push(format!(
         "memory friction (tau = {tau:.4e}): the Grote-Hynes rate applies at strong friction and PGH (with the same kernel) at all frictions; Kramers, Mel'nikov-Meshkov and the MFPT assume memoryless friction"
     ));
 }
 
-/// Computes the rates for an analysed landscape; with a `memory_time` the friction has the
-/// exponential kernel, which brings in Grote–Hynes and PGH for that kernel.
+/// The rate table: one row per formula of the [catalogue](catalogue::CATALOGUE) (a formula that
+/// does not apply has a row unless it is one that only exists with a memory time), with its
+/// validity here.
+fn rows_for(c: &RateContext, rates: &Rates) -> Vec<RateRow> {
+    let mut formulas: Vec<&Formula> = CATALOGUE.iter().collect();
+    formulas.sort_by_key(|f| f.row);
+    formulas
+        .into_iter()
+        .filter_map(|f| {
+            let rate = rates[f.key];
+            let (valid, note) = match rate {
+                Some(_) => (f.holds)(c),
+                None if !f.row_when_absent => return None,
+                None if c.mass.is_none() => (false, "needs particle.mass"),
+                None => (false, (f.absent)(c)),
+            };
+            Some(RateRow {
+                key: f.key,
+                label: f.label,
+                rate,
+                valid,
+                note: note.into(),
+            })
+        })
+        .collect()
+}
+
+/// Computes the rates for an analysed landscape, formula by formula in catalogue order; with a
+/// `memory_time` the friction has the exponential kernel, which brings in Grote–Hynes and PGH
+/// for that kernel.
 pub fn rates_for(
     pot: &dyn Potential,
     diffusion: &Diffusion,
@@ -475,9 +441,6 @@ pub fn rates_for(
             m.last_change
         ));
     }
-    let ln_tst = l.omega_reactant.map(|w| tst::ln_harmonic(w, eb));
-    let extra_b = between(&l, l.wall, l.barrier);
-    let ln_tst_exact = mass.map(|m| tst::ln_exact(pot, m, l.wall, l.barrier, &extra_b));
     let transmission = match (gamma, l.omega_barrier) {
         (Some(g), Some(wb)) => Some(kramers::lambda_plus(g, wb) / wb),
         _ => None,
@@ -494,196 +457,46 @@ pub fn rates_for(
         );
     }
     let ln_a = delta.map(turnover::ln_depopulation);
-    let ln_kramers = ln_tst.zip(transmission).map(|(k, t)| k + t.ln());
-    let ln_smol = Some(kramers::ln_smoluchowski(
-        d_b,
-        l.curvature_reactant,
-        l.curvature_barrier,
-        eb,
-    ));
-    let ln_ed = ln_tst.zip(delta).map(|(k, d)| k + d.ln());
-    let ln_mm = ln_kramers.zip(ln_a).map(|(k, a)| k + a);
-    // PGH: the energy loss along the unstable normal mode replaces γ I_b
-    // its prefactor rate (λ‡/ω_b) k_TST is Kramers', or Grote–Hynes' with memory
-    let ln_pgh_prefactor = match (memory_time, gamma, l.omega_barrier, ln_tst) {
-        (Some(tau), Some(g), Some(wb), Some(k)) => {
-            Some(k + (kramers::lambda_grote_hynes(g, wb, tau) / wb).ln())
-        }
-        _ => ln_kramers,
-    };
-    let pgh = match (mass, gamma, ln_pgh_prefactor) {
-        (Some(m), Some(g), Some(k)) => pgh_rate(pot, m, g, memory_time, &l, k, &mut warnings),
-        _ => None,
-    };
-    let ln_pgh = pgh.map(|(_, k)| k);
-    let pgh = pgh.map(|(p, _)| p);
     // well-to-well (double wells with a product minimum): δ₂ from the product-side orbit
     let delta2 = match (gamma, l.action_product) {
         (Some(g), Some(i)) => Some(g * i).filter(|d| d.is_finite() && *d > 0.0),
         _ => None,
     };
-    let ln_ww = match (ln_kramers, delta, delta2) {
-        (Some(k), Some(d1), Some(d2)) => Some(k + turnover::ln_well_to_well(d1, d2)),
-        _ => None,
-    };
-
     let g_over_wb = gamma.zip(l.omega_barrier).map(|(g, w)| g / w);
     let name = regime::classify(g_over_wb, delta);
-    let high = eb >= LOW_BARRIER_KT;
-    let over = name == RegimeName::Overdamped;
-    let exp = |v: Option<f64>| v.map(f64::exp);
-    let rates = Rates {
-        tst: exp(ln_tst),
-        tst_exact: exp(ln_tst_exact),
-        kramers: exp(ln_kramers),
-        smoluchowski: exp(ln_smol),
-        energy_diffusion: exp(ln_ed),
-        turnover: exp(ln_mm),
-        mfpt: Some((-m.ln_time).exp()),
-        grote_hynes: None,
-        well_to_well: exp(ln_ww),
-        pgh: exp(ln_pgh),
-    };
-    let low_note = "barrier below 5 kT: asymptotic formula unreliable";
-    let pick = |ok: bool, good: &str, bad: &str| -> (bool, String) {
-        if !high {
-            (false, low_note.to_string())
-        } else if ok {
-            (true, good.to_string())
-        } else {
-            (false, bad.to_string())
-        }
-    };
-    let d_ok = delta.is_some_and(|d| d >= DELTA_SPATIAL) || (over && delta.is_none());
-    let mut rows = vec![
-        RateRow {
-            key: "tst",
-            label: "harmonic TST",
-            rate: rates.tst,
-            valid: false,
-            note: "upper bound: no recrossing, harmonic well".into(),
-        },
-        RateRow {
-            key: "tst_exact",
-            label: "exact 1-D TST",
-            rate: rates.tst_exact,
-            valid: false,
-            note: "upper bound: no recrossing".into(),
-        },
-    ];
-    let (v, n) = pick(
-        d_ok,
-        "holds: strong enough friction (delta >= 10)",
-        "needs delta >= 10 (energy supply limits the rate here)",
-    );
-    rows.push(RateRow {
-        key: "kramers",
-        label: "Kramers (spatial diffusion)",
-        rate: rates.kramers,
-        valid: v && rates.kramers.is_some(),
-        note: n,
-    });
-    let (v, n) = pick(
-        over,
-        if g_over_wb.is_some() {
-            "holds: overdamped (gamma/omega_b >= 5)"
-        } else {
-            "holds: overdamped input (D only)"
-        },
-        "needs gamma/omega_b >= 5",
-    );
-    rows.push(RateRow {
-        key: "smoluchowski",
-        label: "Smoluchowski limit",
-        rate: rates.smoluchowski,
-        valid: v,
-        note: n,
-    });
-    let (v, n) = pick(
-        delta.is_some_and(|d| d < DELTA_ED_VALID),
-        "holds: weak friction (delta < 0.02)",
-        "needs delta < 0.02 (within ~12% of the turnover rate)",
-    );
-    rows.push(RateRow {
-        key: "energy_diffusion",
-        label: "energy diffusion (escape)",
-        rate: rates.energy_diffusion,
-        valid: v && rates.energy_diffusion.is_some(),
-        note: n,
-    });
-    let (v, n) = pick(
-        true,
-        "holds at all frictions (finite-barrier error ~10% at weak friction)",
-        "",
-    );
-    rows.push(RateRow {
-        key: "turnover",
-        label: "Mel'nikov-Meshkov (escape)",
-        rate: rates.turnover,
-        valid: v && rates.turnover.is_some(),
-        note: n,
-    });
-    let (v, n) = pick(
-        true,
-        "holds at all frictions, Ohmic (finite-barrier error ~kT/E_b)",
-        "",
-    );
-    rows.push(RateRow {
-        key: "pgh",
-        label: "Pollak-Grabert-Hanggi (escape)",
-        rate: rates.pgh,
-        valid: v && rates.pgh.is_some(),
-        note: n,
-    });
-    let (v, n) = pick(
-        true,
-        "transitions between the wells (Mel'nikov 1991), not the first escape",
-        "",
-    );
-    rows.push(RateRow {
-        key: "well_to_well",
-        label: "well-to-well (Mel'nikov)",
-        rate: rates.well_to_well,
-        valid: v && rates.well_to_well.is_some(),
-        note: n,
-    });
-    rows.push(RateRow {
-        key: "mfpt",
-        label: "1/MFPT (exact overdamped)",
-        rate: rates.mfpt,
-        valid: over,
-        note: if over {
-            "exact for overdamped dynamics, any barrier".into()
-        } else {
-            "exact for the overdamped model only; inertia matters here".into()
-        },
-    });
-    let has_product = l.product.is_some();
-    for r in rows.iter_mut().filter(|r| r.rate.is_none()) {
-        r.valid = false;
-        r.note = if mass.is_none() {
-            "needs particle.mass".into()
-        } else if r.key == "well_to_well" && !has_product {
-            "no product well (a metastable well has only an escape rate)".into()
-        } else if r.key == "pgh" && gamma.is_some() && ln_kramers.is_some() {
-            "the unstable mode's orbit could not be followed (see the warnings)".into()
-        } else {
-            "needs a friction".into()
-        };
+
+    let mut c = RateContext::new(pot, diffusion, mass, memory_time, &l, &m, gamma, d_b);
+    c.delta = delta;
+    c.delta_product = delta2;
+    c.ln_depopulation = ln_a;
+    c.transmission = transmission;
+    c.gamma_over_omega_barrier = g_over_wb;
+    c.regime = name;
+    c.warnings = warnings;
+    let mut rates = Rates::default();
+    for f in CATALOGUE {
+        let v = (f.rate)(&mut c);
+        c.set(f.key, v);
+        rates[f.key] = v.map(Value::rate);
     }
+    let mut rows = rows_for(&c, &rates);
+    let (pgh, mut warnings) = (c.pgh, c.warnings);
     if diffusion.constant().is_none() {
         warnings.push(format!(
             "D depends on x: the Smoluchowski and friction-dependent rates use D at the barrier top, D(x_b) = {d_b:.4}; the MFPT uses D(x) exactly"
         ));
     }
-    let trusted = rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
+    // the memory kernel applies where its Grote–Hynes rate does
+    if let Some(tau) = memory_time.filter(|_| rates[RateKey::GroteHynes].is_some()) {
+        apply_memory(&mut rows, &mut warnings, tau);
+    }
     let mut t = TheoryReport {
         regime: RegimeReport {
             name,
             gamma_over_omega_barrier: g_over_wb,
             delta,
             barrier_kt: eb,
-            trusted,
+            trusted: Vec::new(),
             warnings,
         },
         landscape: l,
@@ -696,9 +509,7 @@ pub fn rates_for(
         pgh,
         periodic: None,
     };
-    if let Some(tau) = memory_time {
-        apply_memory(&mut t, tau);
-    }
     check_consistency(&mut t);
+    t.regime.trusted = t.rows.iter().filter(|r| r.valid).map(|r| r.key).collect();
     t
 }
