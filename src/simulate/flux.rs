@@ -21,7 +21,6 @@ use super::{Plan, SimError};
 use crate::landscape::Landscape;
 use crate::seed;
 use rand::RngExt;
-use rand_distr::StandardNormal;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -105,18 +104,7 @@ pub fn run<F: Force, M: Mobility>(
             // Rayleigh speed for kT = 1: |v| = sqrt(-2 ln(1-u) / m)
             let speed = (-2.0 * (-u).ln_1p() / p.mass).sqrt();
             let v = if forward { speed } else { -speed } * p.dir;
-            let z = if p.kind == engine::Kind::BaoabMemory {
-                engine::memory_force_sd(p) * rng.sample::<f64, _>(StandardNormal)
-            } else {
-                0.0
-            };
-            let mut s = State {
-                x: l.barrier,
-                v,
-                z,
-                f: force.force(l.barrier),
-                r: 0.0,
-            };
+            let mut s = State::with_velocity(p, force, l.barrier, v, &mut rng);
             let mut th = Vec::with_capacity(POINTS);
             for _ in 0..POINTS {
                 for _ in 0..stride {
