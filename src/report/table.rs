@@ -640,7 +640,7 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
         ]);
         show(out, t);
     }
-    if let Some(f) = &s.ffs {
+    if let Some(f) = &s.details.ffs {
         let _ = writeln!(
             out,
             "forward flux sampling: {} interfaces ({}), {} replicas × {} trials per stage, flux through the first {} /{}",
@@ -674,7 +674,7 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
         }
         show(out, t);
     }
-    if let Some(k) = &s.reactive_flux {
+    if let Some(k) = &s.details.reactive_flux {
         let _ = writeln!(
             out,
             "reactive flux: {} trajectories from the barrier top, kappa = {} [{}, {}], plateau {} (window {} {}), exact TST {} /{}",
