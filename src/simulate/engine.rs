@@ -22,6 +22,11 @@
 //!   D(x)); Euler–Maruyama: x' = x + dt (D F + D') + sqrt(2 D dt) R (Ermak & McCammon, J. Chem.
 //!   Phys. 69, 1352 (1978) for the Itô drift D').
 //!
+//! Each integrator is one move function (up to the new force, `Kind::advance`) and a closing
+//! half kick (`Kind::close`); the lanes and the one-trajectory `step` (FFS, reactive flux,
+//! long runs, [`first_passage`]) both use them, and every trajectory starts from
+//! [`State::fresh`], so a trajectory's outcome is the same bits whichever path runs it.
+//!
 //! Each trajectory owns one PCG stream seeded from (seed, index) only, and a trajectory never
 //! interacts with its neighbours in the lane block, so every outcome depends on the seed and its
 //! index alone: any thread count, chunking, shard or resume point gives the same numbers.
@@ -466,7 +471,7 @@ pub fn sample_states<F: Force, M: Mobility>(
     out
 }
 
-/// The first-passage trajectory `index` run alone, one [`step`] at a time: the outcome the lanes
+/// The first-passage trajectory `index` run alone, one `step` at a time: the outcome the lanes
 /// give it (tests hold the two paths to the same bits).
 pub fn first_passage<F: Force, M: Mobility>(p: &Params, force: &F, mob: &M, index: u64) -> Outcome {
     let c = Consts::new(p, mob);
