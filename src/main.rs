@@ -7,11 +7,11 @@ mod cli;
 use clap::Parser;
 use cli::{Cli, Command, Common, SimOpts};
 use escapade::report::{
-    CompareReport, RateReport, SimulateReport, SimulationOut, SurveyReport, compare_rows, json,
-    table,
+    CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table,
 };
 use escapade::scenario::{Model, Override};
-use escapade::simulate::{self, Plan, RunOptions, records};
+use escapade::simulate::session::{Phase, SessionError, SessionOptions};
+use escapade::simulate::{self, Plan, SimError, records};
 use escapade::{landscape::Landscape, stats, theory};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -272,6 +272,60 @@ fn write_file(path: &Path, text: &str) -> Result<(), Failure> {
         .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))
 }
 
+/// A session's notes and progress bar on stderr.
+struct Notes {
+    /// print a line as each phase starts
+    notes: bool,
+    /// show a progress bar during a brute-force run
+    bar: bool,
+    progress: Option<Progress>,
+}
+
+impl simulate::session::Observer for Notes {
+    fn phase(&mut self, plan: &Plan, phase: Phase) {
+        // a finished phase's bar is cleared before the next note
+        self.progress = None;
+        let dt = plan.params.dt;
+        let line = match phase {
+            Phase::BruteForce { trajectories } => {
+                self.progress = Some(Progress {
+                    show: self.bar,
+                    start: std::time::Instant::now(),
+                    bar: None,
+                    total: trajectories,
+                    escaped: 0,
+                    steps: 0,
+                    dt,
+                });
+                let given = if plan.dt_given {
+                    "given"
+                } else {
+                    "default from the landscape"
+                };
+                format!(
+                    "simulating {trajectories} trajectories by brute force, dt = {dt:.4e} ({given})"
+                )
+            }
+            Phase::Rare => format!(
+                "estimating the rate by {}, dt = {dt:.4e} ({})",
+                plan.method.as_str(),
+                plan.method_reason
+            ),
+            Phase::WellToWell => "counting well-to-well transitions in long trajectories".into(),
+            Phase::Periodic => "measuring drift, diffusion and hopping in long trajectories".into(),
+        };
+        if self.notes {
+            eprintln!("{line}");
+        }
+    }
+
+    fn finished(&mut self, o: &stats::Outcome, done: usize) {
+        if let Some(p) = &mut self.progress {
+            p.update(o, done);
+        }
+    }
+}
+
 fn simulate_cmd(
     file: Option<&Path>,
     quiet: bool,
@@ -282,115 +336,58 @@ fn simulate_cmd(
 ) -> Result<Done, Failure> {
     let m = load(file, common)?;
     let t = theory_of(&m)?;
-    let plan = Plan::new(&m, &t).map_err(|e| Failure::user(format!("{}: {e}", m.source)))?;
+    let settings = m.simulation.clone().unwrap_or_default();
+    let plan = Plan::new(&m.system, &settings, &m.units.names.time, &t)
+        .map_err(|e| Failure::user(format!("{}: {e}", m.source)))?;
     let shard = sim
         .shard
         .as_deref()
         .map(simulate::parse_shard)
         .transpose()
         .map_err(Failure::user)?;
-    let (threads, thread_warning) = simulate::effective_threads(sim.threads);
     // a second Ctrl-C falls through to the default (the first one already asked for a stop)
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
-    let (out, interrupted) = if plan.method == simulate::Method::BruteForce {
-        let opts = RunOptions {
-            threads,
-            shard,
-            records: sim.records.clone(),
-            resume: sim.resume,
-        };
-        let show = !quiet && std::io::stderr().is_terminal() && !json_to_pipe(common);
-        let mut progress = Progress {
-            show,
-            start: std::time::Instant::now(),
-            bar: None,
-            total: simulate::shard_range(plan.trajectories, shard).count() as u64,
-            escaped: 0,
-            steps: 0,
-            dt: plan.params.dt,
-        };
-        // record-file problems first, before any note
-        let open =
-            simulate::open_records(&plan, &opts).map_err(|e| Failure::user(e.to_string()))?;
-        if !quiet && !common.json {
-            eprintln!(
-                "simulating {} trajectories by brute force, dt = {:.4e} ({})",
-                progress.total,
-                plan.params.dt,
-                if plan.dt_given {
-                    "given"
-                } else {
-                    "default from the landscape"
-                }
-            );
-        }
-        let result = simulate::run_opened(&plan, &opts, open, &STOP, |o, n| progress.update(o, n))
-            .map_err(|e| Failure::user(e.to_string()))?;
-        drop(progress);
-        if let Some(path) = plot {
-            let s =
-                escapade::stats::summarise(&result.outcomes, plan.params.dt, plan.params.max_steps);
-            let tu = if m.units.names.time == "1" {
-                "τ"
-            } else {
-                &m.units.names.time
-            };
-            write_file(
-                path,
-                &escapade::report::svg::survival(&result.outcomes, plan.params.dt, s.rate, tu),
-            )?;
-        }
-        (
-            SimulationOut::new(&plan, &result, shard),
-            result.interrupted,
-        )
-    } else {
-        if sim.records.is_some() || shard.is_some() {
-            return Err(Failure::user(format!(
-                "{}: --records, --resume and --shard apply to brute-force runs; simulation.method is {}",
-                m.source,
-                plan.method.as_str()
-            )));
-        }
-        if !quiet && !common.json {
-            eprintln!(
-                "estimating the rate by {}, dt = {:.4e} ({})",
-                plan.method.as_str(),
-                plan.params.dt,
-                plan.method_reason
-            );
-        }
-        match simulate::run_rare(&plan, &m, &t, threads, &STOP) {
-            Ok((r, wall, threads)) => (SimulationOut::rare(&plan, r, wall, threads), false),
-            Err(simulate::SimError::Interrupted) => {
-                return Err(Failure {
-                    message: format!("{}: {}", m.source, simulate::SimError::Interrupted),
-                    code: 130,
-                });
-            }
-            Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
-        }
+    let opts = SessionOptions {
+        threads: sim.threads,
+        shard,
+        records: sim.records.clone(),
+        resume: sim.resume,
     };
-    let mut out = out;
-    out.warnings.extend(thread_warning);
-    let mut interrupted = interrupted;
-    if shard.is_some() {
-        if plan.section.well_to_well == Some(true) || t.periodic.is_some() {
-            out.warnings.push(
-                "the long-trajectory measurements (well-to-well count; periodic drift, diffusion and hopping) are not split into shards: run them without --shard".into(),
-            );
+    let mut notes = Notes {
+        notes: !quiet && !common.json,
+        bar: !quiet && std::io::stderr().is_terminal() && !json_to_pipe(common),
+        progress: None,
+    };
+    let session = simulate::session::run(&plan, &m.system, &t, &opts, &STOP, &mut notes);
+    drop(notes);
+    let session = match session {
+        Ok(s) => s,
+        Err(SessionError::Records(e)) => return Err(Failure::user(e.to_string())),
+        Err(SessionError::Sim(SimError::Interrupted)) => {
+            return Err(Failure {
+                message: format!("{}: {}", m.source, SimError::Interrupted),
+                code: 130,
+            });
         }
-    } else if !interrupted {
-        long_runs(
-            &m,
-            &t,
-            &plan,
-            !quiet && !common.json,
-            threads,
-            &mut out,
-            &mut interrupted,
+        Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
+    };
+    if let Some(path) = plot
+        && plan.method == simulate::Method::BruteForce
+    {
+        let (dt, max_steps) = (plan.params.dt, plan.params.max_steps);
+        let s = escapade::stats::summarise(&session.outcomes, dt, max_steps);
+        let tu = if m.units.names.time == "1" {
+            "τ"
+        } else {
+            &m.units.names.time
+        };
+        write_file(
+            path,
+            &escapade::report::svg::survival(&session.outcomes, dt, s.rate, tu),
         )?;
     }
+    let interrupted = session.interrupted;
+    let mut out = session.simulation;
     let code = if interrupted { 130 } else { 0 };
     let text = if with_theory {
         let mut theory = RateReport::new(&m, &t);
@@ -432,64 +429,6 @@ fn simulate_cmd(
                 .into()
         }),
     })
-}
-
-/// The long-trajectory measurements after the escape run: the well-to-well count (when asked
-/// for) and, for periodic landscapes, drift, diffusion and hopping (when the cost fits the budget).
-/// Sets `interrupted` on Ctrl-C; `notes` prints what runs on stderr.
-fn long_runs(
-    m: &Model,
-    t: &theory::TheoryReport,
-    plan: &Plan,
-    notes: bool,
-    threads: usize,
-    out: &mut SimulationOut,
-    interrupted: &mut bool,
-) -> Result<(), Failure> {
-    if plan.section.well_to_well == Some(true) {
-        if notes {
-            eprintln!("counting well-to-well transitions in long trajectories");
-        }
-        match simulate::run_transitions(plan, m, t, threads, &STOP) {
-            Ok((w, wall)) => {
-                out.total_steps += w.total_steps;
-                out.wall_seconds += wall;
-                out.well_to_well = Some(w);
-            }
-            Err(simulate::SimError::Interrupted) => *interrupted = true,
-            // too long for the budget: the escape results still stand
-            Err(e) => out
-                .warnings
-                .push(format!("well-to-well count not run: {e}")),
-        }
-    }
-    if !*interrupted && let Some(h) = t.periodic.as_ref().and_then(|p| p.hopping.as_ref()) {
-        let (_, _, _, steps) = simulate::periodic_size(
-            plan,
-            simulate::periodic_rate(t).unwrap_or(h.forward + h.backward),
-        );
-        if steps > plan.budget_steps {
-            out.warnings.push(format!(
-                "periodic landscape: measuring drift and diffusion would take about {steps:.2e} steps, over simulation.budget_steps = {:.2e}; raise the budget to run it",
-                plan.budget_steps
-            ));
-        } else {
-            if notes {
-                eprintln!("measuring drift, diffusion and hopping in long trajectories");
-            }
-            match simulate::run_periodic_for(plan, t, threads, &STOP) {
-                Ok(Some((p, wall))) => {
-                    out.total_steps += p.total_steps;
-                    out.wall_seconds += wall;
-                    out.periodic = Some(p);
-                }
-                Ok(None) => {}
-                Err(simulate::SimError::Interrupted) => *interrupted = true,
-                Err(e) => return Err(Failure::user(format!("{}: {e}", m.source))),
-            }
-        }
-    }
-    Ok(())
 }
 
 fn merge_cmd(files: &[PathBuf], as_json: bool, output: Option<&Path>) -> Result<Done, Failure> {

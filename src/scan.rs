@@ -14,7 +14,8 @@
 
 use crate::fit::{self, Line};
 use crate::scenario::{Model, Override, ScenarioError};
-use crate::simulate::{self, Method, Plan, RunOptions};
+use crate::simulate::session::{self, SessionError, SessionOptions};
+use crate::simulate::{Plan, SimError};
 use crate::theory::{self, Rates};
 use crate::units::K_B;
 use serde::Serialize;
@@ -302,6 +303,21 @@ fn point_theory(
     Ok((m, t))
 }
 
+/// What a scan carries from point to point: where it is read from, the first point's facts, the
+/// notes so far and whether a stop came.
+struct Scan<'a> {
+    file: &'a Path,
+    base: &'a [Override],
+    spec: &'a Spec,
+    simulate: bool,
+    threads: usize,
+    stop: &'a AtomicBool,
+    /// unit names, kT in the energy unit, action and ω_b at the first point
+    first: Option<(crate::units::UnitNames, f64, Option<f64>, Option<f64>)>,
+    notes: Vec<String>,
+    interrupted: bool,
+}
+
 /// Runs the scan of `file` (with `base` overrides); with `simulate`, every point is also
 /// simulated (method auto, its own seed, `threads` threads).
 ///
@@ -316,66 +332,41 @@ pub fn run(
     stop: &AtomicBool,
 ) -> Result<ScanReport, ScanError> {
     let values = spec.values()?;
-    let kind = Kind::of(&spec.key);
+    let mut scan = Scan {
+        file,
+        base,
+        spec,
+        simulate,
+        threads,
+        stop,
+        first: None,
+        notes: Vec::new(),
+        interrupted: false,
+    };
     let mut points = Vec::with_capacity(values.len());
-    let mut units = None;
-    let mut kt_unit = 1.0;
-    let mut action_first = None;
-    let mut omega_first = None;
-    let mut skipped: Vec<String> = Vec::new();
-    let mut interrupted = false;
     for (i, &v) in values.iter().enumerate() {
-        let (m, t) = match point_theory(file, base, &spec.key, v, &[])? {
+        points.push(scan.point(i, v)?);
+    }
+    Ok(scan.finish(points))
+}
+
+impl Scan<'_> {
+    /// The theory at point `i` (value `v`) and, with `--simulate`, its simulation.
+    fn point(&mut self, i: usize, v: f64) -> Result<Point, ScanError> {
+        let (m, t) = match point_theory(self.file, self.base, &self.spec.key, v, &[])? {
             (m, theory::Analysis::Full(t)) => (m, *t),
-            // past the critical tilt: no well and no rate, only the sliding particle's drift
-            (m, theory::Analysis::Running(p)) => {
-                if units.is_none() {
-                    units = Some(m.units.names.clone());
-                    kt_unit = m.units.kt_in_energy_unit;
-                }
-                skipped.push(format!(
-                    "{} = {v}: running state (past the critical tilt): no rates, drift and D_eff only{}",
-                    spec.key,
-                    if simulate { "; not simulated" } else { "" }
-                ));
-                points.push(Point {
-                    value: v,
-                    regime: "running",
-                    gamma_over_omega_barrier: None,
-                    delta: None,
-                    barrier_height_kt: 0.0,
-                    rates: Rates::default(),
-                    periodic: Some(PeriodicPoint::theory(&p)),
-                    uncertainty: None,
-                    simulation: None,
-                    holds: Vec::new(),
-                    simulation_status: simulate.then_some(SimStatus::NotSimulated),
-                });
-                continue;
-            }
+            (m, theory::Analysis::Running(p)) => return Ok(self.running_point(&m, v, &p)),
         };
-        if units.is_none() {
-            units = Some(m.units.names.clone());
-            kt_unit = m.units.kt_in_energy_unit;
-            action_first = t.landscape.action;
-            omega_first = t.landscape.omega_barrier;
+        if self.first.is_none() {
+            self.first = Some((
+                m.units.names.clone(),
+                m.units.kt_in_energy_unit,
+                t.landscape.action,
+                t.landscape.omega_barrier,
+            ));
         }
-        let (simulation, simulation_status) = if !simulate {
-            (None, None)
-        } else if interrupted || stop.load(Ordering::Relaxed) {
-            interrupted = true;
-            (None, Some(SimStatus::Interrupted))
-        } else {
-            let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
-            match simulate_point(file, base, spec, i, v, master, threads, stop, &mut skipped)? {
-                Some(p) => (Some(p), Some(SimStatus::Complete)),
-                None => {
-                    interrupted = true;
-                    (None, Some(SimStatus::Interrupted))
-                }
-            }
-        };
-        points.push(Point {
+        let (simulation, simulation_status) = self.simulation(&m, i, v)?;
+        Ok(Point {
             value: v,
             regime: t.regime.name.as_str(),
             gamma_over_omega_barrier: t.regime.gamma_over_omega_barrier,
@@ -383,58 +374,139 @@ pub fn run(
             barrier_height_kt: t.landscape.barrier_height,
             rates: t.rates,
             periodic: t.periodic.as_ref().map(PeriodicPoint::theory),
-            uncertainty: if m.uncertainty_given {
-                let opts = m.uncertainty_options();
-                crate::uncertainty::propagate(&m.system, &opts)
-                    .map_err(|e| ScanError::Point {
-                        file: file.display().to_string(),
-                        key: spec.key.clone(),
-                        value: v,
-                        message: format!("{}: {e}", e.key()),
-                    })?
-                    .map(|u| u.rates)
-            } else {
-                None
-            },
+            uncertainty: self.uncertainty(&m, v)?,
             simulation,
             holds: t.regime.trusted.clone(),
             simulation_status,
-        });
+        })
     }
-    let units = units.expect("at least two points");
-    let mut notes = skipped;
-    if interrupted {
-        let n = points
-            .iter()
-            .filter(|p| p.simulation_status == Some(SimStatus::Interrupted))
-            .count();
-        notes.push(format!(
-            "interrupted: {n} of {} points not simulated to the end (their simulated values are null; the theory is complete)",
-            points.len()
-        ));
-    }
-    let fits = match kind {
-        Kind::Temperature => {
-            notes.push(
-                "for Kramers-type rates the apparent activation energy differs from E_b: the prefactor depends on T through the friction and D, and E_b/kT itself changes with T".into(),
-            );
-            fits_for(&points, &units, kind, kt_unit)
+
+    /// Past the critical tilt: no well and no rate, only the sliding particle's drift.
+    fn running_point(
+        &mut self,
+        m: &Model,
+        v: f64,
+        p: &crate::theory::periodic::PeriodicTheory,
+    ) -> Point {
+        if self.first.is_none() {
+            self.first = Some((m.units.names.clone(), m.units.kt_in_energy_unit, None, None));
         }
-        Kind::Force => fits_for(&points, &units, kind, kt_unit),
-        _ => Vec::new(),
-    };
-    Ok(ScanReport {
-        key: spec.key.clone(),
-        kind,
-        units,
-        points,
-        fits,
-        notes,
-        interrupted,
-        action_first,
-        omega_barrier_first: omega_first,
-        log: spec.log,
-    })
+        self.notes.push(format!(
+            "{} = {v}: running state (past the critical tilt): no rates, drift and D_eff only{}",
+            self.spec.key,
+            if self.simulate { "; not simulated" } else { "" }
+        ));
+        Point {
+            value: v,
+            regime: "running",
+            gamma_over_omega_barrier: None,
+            delta: None,
+            barrier_height_kt: 0.0,
+            rates: Rates::default(),
+            periodic: Some(PeriodicPoint::theory(p)),
+            uncertainty: None,
+            simulation: None,
+            holds: Vec::new(),
+            simulation_status: self.simulate.then_some(SimStatus::NotSimulated),
+        }
+    }
+
+    /// The simulation of point `i` with `--simulate` (none after a stop).
+    fn simulation(
+        &mut self,
+        m: &Model,
+        i: usize,
+        v: f64,
+    ) -> Result<(Option<SimPoint>, Option<SimStatus>), ScanError> {
+        if !self.simulate {
+            return Ok((None, None));
+        }
+        if self.interrupted || self.stop.load(Ordering::Relaxed) {
+            self.interrupted = true;
+            return Ok((None, Some(SimStatus::Interrupted)));
+        }
+        let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
+        let (file, base, spec) = (self.file, self.base, self.spec);
+        let (threads, stop) = (self.threads, self.stop);
+        Ok(
+            match simulate_point(
+                file,
+                base,
+                spec,
+                i,
+                v,
+                master,
+                threads,
+                stop,
+                &mut self.notes,
+            )? {
+                Some(p) => (Some(p), Some(SimStatus::Complete)),
+                None => {
+                    self.interrupted = true;
+                    (None, Some(SimStatus::Interrupted))
+                }
+            },
+        )
+    }
+
+    /// The rates' intervals from the profile's sigma_U (with an `[uncertainty]` section).
+    fn uncertainty(
+        &self,
+        m: &Model,
+        v: f64,
+    ) -> Result<Option<Vec<crate::uncertainty::Interval>>, ScanError> {
+        if !m.uncertainty_given {
+            return Ok(None);
+        }
+        let opts = m.uncertainty_options();
+        Ok(crate::uncertainty::propagate(&m.system, &opts)
+            .map_err(|e| ScanError::Point {
+                file: self.file.display().to_string(),
+                key: self.spec.key.clone(),
+                value: v,
+                message: format!("{}: {e}", e.key()),
+            })?
+            .map(|u| u.rates))
+    }
+
+    /// The report: notes on interrupted points and the fits of the scan's kind.
+    fn finish(self, points: Vec<Point>) -> ScanReport {
+        let kind = Kind::of(&self.spec.key);
+        let (units, kt_unit, action_first, omega_first) = self.first.expect("at least two points");
+        let mut notes = self.notes;
+        if self.interrupted {
+            let n = points
+                .iter()
+                .filter(|p| p.simulation_status == Some(SimStatus::Interrupted))
+                .count();
+            notes.push(format!(
+                "interrupted: {n} of {} points not simulated to the end (their simulated values are null; the theory is complete)",
+                points.len()
+            ));
+        }
+        let fits = match kind {
+            Kind::Temperature => {
+                notes.push(
+                    "for Kramers-type rates the apparent activation energy differs from E_b: the prefactor depends on T through the friction and D, and E_b/kT itself changes with T".into(),
+                );
+                fits_for(&points, &units, kind, kt_unit)
+            }
+            Kind::Force => fits_for(&points, &units, kind, kt_unit),
+            _ => Vec::new(),
+        };
+        ScanReport {
+            key: self.spec.key.clone(),
+            kind,
+            units,
+            points,
+            fits,
+            notes,
+            interrupted: self.interrupted,
+            action_first,
+            omega_barrier_first: omega_first,
+            log: self.spec.log,
+        }
+    }
 }
 
 /// Simulates point `i` (value `v`) of a scan with its own seed from `master`; `None` when `stop`
@@ -452,7 +524,6 @@ fn simulate_point(
     stop: &AtomicBool,
     skipped: &mut Vec<String>,
 ) -> Result<Option<SimPoint>, ScanError> {
-    use simulate::SimError::Interrupted;
     // 63 bits: TOML integers are signed
     let seed = crate::seed::derive(master, (i as u64).wrapping_mul(crate::seed::SCAN_POINT)) >> 1;
     let (m, t) = match point_theory(
@@ -479,66 +550,43 @@ fn simulate_point(
         value: v,
         message: e,
     };
-    let plan = Plan::new(&m, &t).map_err(|e| bad(e.to_string()))?;
-    let out = if plan.method == Method::BruteForce {
-        let opts = RunOptions {
-            threads,
-            ..RunOptions::default()
-        };
-        let r = simulate::run_ensemble(&plan, &opts, stop, |_, _| {})
-            .map_err(|e| bad(e.to_string()))?;
-        if r.interrupted {
-            return Ok(None);
-        }
-        crate::report::SimulationOut::new(&plan, &r, None)
-    } else {
-        match simulate::run_rare(&plan, &m, &t, threads, stop) {
-            Ok((r, wall, th)) => crate::report::SimulationOut::rare(&plan, r, wall, th),
-            Err(Interrupted) => return Ok(None),
-            Err(e) => return Err(bad(e.to_string())),
-        }
+    let settings = m.simulation.clone().unwrap_or_default();
+    let plan =
+        Plan::new(&m.system, &settings, &m.units.names.time, &t).map_err(|e| bad(e.to_string()))?;
+    let opts = SessionOptions {
+        threads,
+        ..SessionOptions::default()
     };
-    // the long-trajectory measurements as in `compare`: skipped (with a note) when they
-    // do not fit the step budget, never a reason to stop the scan
-    let ww = if plan.section.well_to_well == Some(true) {
-        match simulate::run_transitions(&plan, &m, &t, threads, stop) {
-            Ok((w, _)) => Some(w),
-            Err(Interrupted) => return Ok(None),
-            Err(e) => {
-                skipped.push(format!(
-                    "{} = {v}: well-to-well count not run: {e}",
-                    spec.key
-                ));
-                None
-            }
-        }
-    } else {
-        None
+    // the long-trajectory measurements run as in `compare`: skipped (with a note) when they do
+    // not fit the step budget, never a reason to stop the scan
+    let r = match session::run(&plan, &m.system, &t, &opts, stop, &mut ()) {
+        Ok(r) => r,
+        Err(SessionError::Sim(SimError::Interrupted)) => return Ok(None),
+        Err(e) => return Err(bad(e.to_string())),
     };
-    let fits = simulate::periodic_rate(&t)
-        .is_some_and(|r| simulate::periodic_size(&plan, r).3 <= plan.budget_steps);
-    let per = if fits {
-        match simulate::run_periodic_for(&plan, &t, threads, stop) {
-            Ok(p) => p.map(|(p, _)| p),
-            Err(Interrupted) => return Ok(None),
-            Err(e) => return Err(bad(e.to_string())),
-        }
-    } else {
-        if t.periodic.is_some() {
-            skipped.push(format!(
-                "{} = {v}: periodic drift and diffusion not simulated (over simulation.budget_steps)",
-                spec.key
-            ));
-        }
-        None
-    };
+    if let Some(e) = &r.well_to_well_error {
+        skipped.push(format!(
+            "{} = {v}: well-to-well count not run: {e}",
+            spec.key
+        ));
+    }
+    if r.interrupted {
+        return Ok(None);
+    }
+    let out = r.simulation;
+    if t.periodic.is_some() && out.periodic.is_none() {
+        skipped.push(format!(
+            "{} = {v}: periodic drift and diffusion not simulated (over simulation.budget_steps)",
+            spec.key
+        ));
+    }
     Ok(Some(SimPoint {
         method: out.method,
         rate: out.rate,
         rate_ci95: out.rate_ci95,
-        well_to_well: ww.as_ref().map(|w| w.rate),
-        well_to_well_ci95: ww.as_ref().map(|w| w.rate_ci95),
-        periodic: per.as_ref().map(|p| PeriodicPoint {
+        well_to_well: out.well_to_well.as_ref().map(|w| w.rate),
+        well_to_well_ci95: out.well_to_well.as_ref().map(|w| w.rate_ci95),
+        periodic: out.periodic.as_ref().map(|p| PeriodicPoint {
             drift: p.drift,
             drift_ci95: Some(p.drift_ci95),
             effective_diffusion: Some(p.effective_diffusion),
@@ -546,9 +594,7 @@ fn simulate_point(
             hop_forward: Some(p.hop_forward),
             hop_backward: Some(p.hop_backward),
         }),
-        total_steps: out.total_steps
-            + ww.as_ref().map_or(0, |w| w.total_steps)
-            + per.as_ref().map_or(0, |p| p.total_steps),
+        total_steps: out.total_steps,
         seed,
     }))
 }

@@ -9,6 +9,15 @@ use escapade::theory;
 use std::path::Path;
 use std::sync::atomic::AtomicBool;
 
+/// The simulation plan of a scenario, as the commands build it.
+fn plan_of(
+    m: &Model,
+    t: &escapade::theory::TheoryReport,
+) -> Result<Plan, escapade::simulate::SimError> {
+    let settings = m.simulation.clone().unwrap_or_default();
+    Plan::new(&m.system, &settings, &m.units.names.time, t)
+}
+
 const DW: &str = "[particle]\nmass = 1.0\nfriction = 1.0\n[potential]\nfamily = \"double-well\"\nbarrier = 5.0\nhalf_width = 1.0\n[states]\nstart = -1.0\n";
 
 fn model(sets: &[&str]) -> Model {
@@ -54,7 +63,7 @@ fn tiny_and_huge_barriers() {
     // brute force asked for explicitly is refused, naming the cost and FFS
     let m = model(&["potential.barrier=200", "simulation.method=brute-force"]);
     let t = theory::analyse(&m.system).unwrap();
-    let e = Plan::new(&m, &t).unwrap_err().to_string();
+    let e = plan_of(&m, &t).unwrap_err().to_string();
     assert!(e.contains("refused") && e.contains("ffs"), "{e}");
 }
 
@@ -75,7 +84,7 @@ fn frictions_over_eight_decades_in_theory_and_short_simulations() {
             "simulation.max_time=2.0",
         ]);
         let t = theory::analyse(&m.system).unwrap();
-        let plan = Plan::new(&m, &t).unwrap();
+        let plan = plan_of(&m, &t).unwrap();
         let r = run_ensemble(
             &plan,
             &RunOptions::default(),
@@ -94,7 +103,7 @@ fn frictions_over_eight_decades_in_theory_and_short_simulations() {
         "simulation.max_time=1",
     ]);
     let t = theory::analyse(&m.system).unwrap();
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = plan_of(&m, &t).unwrap();
     assert!(
         plan.warnings
             .iter()

@@ -25,7 +25,7 @@ fn model(text: &str, sets: &[String]) -> (Model, TheoryReport) {
 }
 
 fn brute(m: &Model, t: &TheoryReport, threads: usize) -> (Plan, Vec<Outcome>) {
-    let plan = Plan::new(m, t).unwrap();
+    let plan = common::plan(m, t).unwrap();
     let opts = RunOptions {
         threads,
         ..RunOptions::default()
@@ -95,12 +95,12 @@ fn reactive_flux_transmission_matches_grote_hynes() {
             "simulation.method=reactive-flux".to_string(),
         ];
         let (m, t) = model(DW, &sets);
-        let plan = Plan::new(&m, &t).unwrap();
+        let plan = common::plan(&m, &t).unwrap();
         assert_eq!(plan.scheme, "baoab-memory");
         let (r, wall, threads) =
-            simulate::run_rare(&plan, &m, &t, 0, &AtomicBool::new(false)).unwrap();
+            simulate::run_rare(&plan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
         let s = SimulationOut::rare(&plan, r, wall, threads);
-        let k = s.reactive_flux.as_ref().unwrap();
+        let k = s.details.reactive_flux.as_ref().unwrap();
         assert!(k.plateau_reached, "gamma/wb {g}, tau wb {tw}: plateau");
         assert_eq!(t.landscape.omega_barrier.unwrap(), wb);
         let gh = theory::kramers::lambda_grote_hynes(g * wb, wb, tw / wb) / wb;
@@ -161,9 +161,9 @@ fn brute_force_rate_matches_grote_hynes_at_6_kt() {
     fsets[2] = "simulation.method=reactive-flux".to_string();
     fsets.push("simulation.trajectories=20000".to_string());
     let (m, t) = model(UD, &fsets);
-    let fplan = Plan::new(&m, &t).unwrap();
+    let fplan = common::plan(&m, &t).unwrap();
     let (res, wall, threads) =
-        simulate::run_rare(&fplan, &m, &t, 0, &AtomicBool::new(false)).unwrap();
+        simulate::run_rare(&fplan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
     let f = SimulationOut::rare(&fplan, res, wall, threads);
     let fse = (f.rate_ci95[1] - f.rate_ci95[0]) / (2.0 * 1.96);
     println!(
@@ -182,11 +182,11 @@ fn brute_force_rate_matches_grote_hynes_at_6_kt() {
     ssets[2] = "simulation.method=ffs".to_string();
     ssets.push("simulation.trials=5000".to_string());
     let (m, t) = model(UD, &ssets);
-    let splan = Plan::new(&m, &t).unwrap();
+    let splan = common::plan(&m, &t).unwrap();
     let (res, wall, threads) =
-        simulate::run_rare(&splan, &m, &t, 0, &AtomicBool::new(false)).unwrap();
+        simulate::run_rare(&splan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
     let ffs = SimulationOut::rare(&splan, res, wall, threads);
-    let reps = ffs.ffs.as_ref().unwrap().replica_rates.len() as f64;
+    let reps = ffs.details.ffs.as_ref().unwrap().replica_rates.len() as f64;
     let tq = StudentsT::new(0.0, 1.0, reps - 1.0)
         .unwrap()
         .inverse_cdf(0.975);
@@ -256,13 +256,13 @@ fn memory_plan_rules() {
         "simulation.method=auto".to_string(),
     ];
     let (m, t) = model(UD, &high);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     assert_eq!(plan.scheme, "baoab-memory");
     assert_eq!(plan.params.memory_time, 1.0);
     let mut od = high.to_vec();
     od.push("simulation.dynamics=overdamped".to_string());
     let (m, t) = model(UD, &od);
-    match Plan::new(&m, &t) {
+    match common::plan(&m, &t) {
         Err(SimError::Key { key, message }) => {
             assert_eq!(key, "simulation.dynamics");
             assert!(message.contains("memory_time") && !message.contains('\n'));
@@ -273,6 +273,6 @@ fn memory_plan_rules() {
         UD,
         &[high[0].clone(), "particle.memory_time=1.5".to_string()],
     );
-    let plan2 = Plan::new(&m2, &t2).unwrap();
+    let plan2 = common::plan(&m2, &t2).unwrap();
     assert_ne!(plan.fingerprint, plan2.fingerprint);
 }

@@ -8,7 +8,7 @@ mod common;
 
 use assert_cmd::Command;
 use escapade::scan::{self, SimStatus, Spec};
-use escapade::simulate::{self, Plan, records};
+use escapade::simulate::{self, records};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Output, Stdio};
@@ -243,7 +243,7 @@ fn merge_refuses_a_trajectory_in_two_files_naming_the_line() {
 fn second_writer_on_a_records_file_is_refused() {
     let d = dir("lock-lib");
     let (m, t) = common::model(WELL, &["simulation.trajectories=10"]);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let rec = d.join("r.csv");
     let first = records::resume(&rec, &plan).unwrap();
     let e = records::resume(&rec, &plan).err().expect("refused");
@@ -361,7 +361,7 @@ fn cost_message_matches_its_formula() {
         &["simulation.trajectories=500", "simulation.max_time=50"][..],
     ] {
         let (m, t) = common::model(WELL, sets);
-        let plan = Plan::new(&m, &t).unwrap();
+        let plan = common::plan(&m, &t).unwrap();
         let s = &plan.method_reason;
         let cost = number_before(s, " steps (");
         let n = number_before(s, " trajectories ×");

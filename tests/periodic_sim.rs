@@ -5,7 +5,7 @@
 mod common;
 use common::model;
 
-use escapade::simulate::{self, Plan};
+use escapade::simulate;
 use std::sync::atomic::AtomicBool;
 
 /// I0(x) by its power series Σ (x/2)^{2k}/(k!)² (Abramowitz & Stegun 9.6.10); 40 terms reach
@@ -29,7 +29,7 @@ const WB: &str = "[particle]\ndiffusion = 1.0\n[potential]\nfamily = \"washboard
 #[test]
 fn untilted_washboard_effective_diffusion_matches_lifson_jackson() {
     let (m, t) = model(WB, &[]);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let k_total = 2.0 * t.rates.mfpt.unwrap();
     let (r, _) = simulate::run_periodic(
         &plan,
@@ -73,7 +73,7 @@ fn untilted_washboard_effective_diffusion_matches_lifson_jackson() {
 #[test]
 fn periodic_runs_do_not_depend_on_threads() {
     let (m, t) = model(WB, &["simulation.long_trajectories=4"]);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let k = 2.0 * t.rates.mfpt.unwrap();
     let stop = AtomicBool::new(false);
     let (a, _) = simulate::run_periodic(&plan, &[0.0], -0.5, 1.0, k, 1, &stop).unwrap();
@@ -101,7 +101,7 @@ fn two_wells_per_period_match_the_exact_theory() {
     let p = t.periodic.as_ref().unwrap();
     let h = p.hopping.as_ref().unwrap();
     assert_eq!(h.period_minima.len(), 2, "{:?}", h.period_minima);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let (r, _) = simulate::run_periodic_for(&plan, &t, 0, &AtomicBool::new(false))
         .unwrap()
         .unwrap();

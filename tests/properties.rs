@@ -10,6 +10,15 @@ use proptest::prelude::*;
 use std::path::Path;
 use std::sync::atomic::AtomicBool;
 
+/// The simulation plan of a scenario, as the commands build it.
+fn plan_of(
+    m: &Model,
+    t: &escapade::theory::TheoryReport,
+) -> Result<Plan, escapade::simulate::SimError> {
+    let settings = m.simulation.clone().unwrap_or_default();
+    Plan::new(&m.system, &settings, &m.units.names.time, t)
+}
+
 fn dw(eb: f64, a: f64, m: f64, g: f64) -> theory::TheoryReport {
     let text = format!(
         "[particle]\nmass = {m:?}\nfriction = {g:?}\n[potential]\nfamily = \"double-well\"\nbarrier = {eb:?}\nhalf_width = {a:?}\n[states]\nstart = {:?}\n",
@@ -68,7 +77,7 @@ proptest! {
         let text = "[particle]\nmass = 1.0\nfriction = 3.0\n[potential]\nfamily = \"double-well\"\nbarrier = 2.0\nhalf_width = 1.0\n[states]\nstart = -1.0\n[simulation]\ntrajectories = 90\nseed = 4\n";
         let m = Model::from_text(text, "p", Path::new("."), &[Override::parse("simulation.seed=4").unwrap()]).unwrap();
         let t = theory::analyse(&m.system).unwrap();
-        let plan = Plan::new(&m, &t).unwrap();
+        let plan = plan_of(&m, &t).unwrap();
         let dir = std::env::temp_dir().join(format!("escapade-prop-{}-{:?}", std::process::id(), perm));
         let _ = std::fs::remove_dir_all(&dir);
         std::fs::create_dir_all(&dir).unwrap();

@@ -7,21 +7,22 @@ use common::{brute_force_rate, model};
 
 use escapade::report::SimulationOut;
 use escapade::scenario::Model;
-use escapade::simulate::{self, Method, Plan};
+use escapade::simulate::{self, Method};
 use escapade::theory::TheoryReport;
 use statrs::distribution::{ContinuousCDF, StudentsT};
 use std::sync::atomic::AtomicBool;
 
 fn rare(m: &Model, t: &TheoryReport) -> SimulationOut {
-    let plan = Plan::new(m, t).unwrap();
+    let plan = common::plan(m, t).unwrap();
     assert_ne!(plan.method, Method::BruteForce);
-    let (r, wall, threads) = simulate::run_rare(&plan, m, t, 0, &AtomicBool::new(false)).unwrap();
+    let (r, wall, threads) =
+        simulate::run_rare(&plan, &m.system, t, 0, &AtomicBool::new(false)).unwrap();
     SimulationOut::rare(&plan, r, wall, threads)
 }
 
 /// Standard error of an FFS rate from its replica spread (the 95% half-width over the t quantile).
 fn ffs_se(s: &SimulationOut) -> f64 {
-    let r = s.ffs.as_ref().unwrap().replica_rates.len() as f64;
+    let r = s.details.ffs.as_ref().unwrap().replica_rates.len() as f64;
     let tq = StudentsT::new(0.0, 1.0, r - 1.0)
         .unwrap()
         .inverse_cdf(0.975);
@@ -78,8 +79,8 @@ fn ffs_does_not_depend_on_the_interfaces() {
         ],
     );
     let given = rare(&m2, &t2);
-    let n_auto = auto.ffs.as_ref().unwrap().interfaces.len();
-    let n_given = given.ffs.as_ref().unwrap().interfaces.len();
+    let n_auto = auto.details.ffs.as_ref().unwrap().interfaces.len();
+    let n_given = given.details.ffs.as_ref().unwrap().interfaces.len();
     assert_ne!(n_auto, n_given);
     let se = (ffs_se(&auto).powi(2) + ffs_se(&given).powi(2)).sqrt();
     assert!(
@@ -121,7 +122,7 @@ fn reactive_flux_transmission_matches_kramers() {
     for g in ["5", "15"] {
         let (m, t) = model(text, &[&format!("particle.friction={g}")]);
         let s = rare(&m, &t);
-        let k = s.reactive_flux.as_ref().unwrap();
+        let k = s.details.reactive_flux.as_ref().unwrap();
         assert!(k.plateau_reached, "gamma {g}: plateau");
         let wb = t.landscape.omega_barrier.unwrap();
         let gamma: f64 = g.parse().unwrap();
@@ -145,11 +146,11 @@ fn brute_force_beyond_the_budget_is_refused() {
         OD,
         &["potential.barrier=25", "simulation.method=brute-force"],
     );
-    let e = Plan::new(&m, &t).unwrap_err().to_string();
+    let e = common::plan(&m, &t).unwrap_err().to_string();
     assert!(
         e.contains("expected brute-force cost") && e.contains("ffs"),
         "{e}"
     );
     let (m, t) = model(OD, &["potential.barrier=3"]);
-    assert_eq!(Plan::new(&m, &t).unwrap().method, Method::BruteForce);
+    assert_eq!(common::plan(&m, &t).unwrap().method, Method::BruteForce);
 }

@@ -22,7 +22,7 @@ fn model(text: &str, sets: &[&str]) -> Model {
 
 fn run(m: &Model, threads: usize) -> (Plan, Vec<Outcome>) {
     let t = theory::analyse(&m.system).unwrap();
-    let plan = Plan::new(m, &t).unwrap();
+    let plan = common::plan(m, &t).unwrap();
     let never = AtomicBool::new(false);
     let opts = RunOptions {
         threads,
@@ -260,7 +260,7 @@ fn tmp(name: &str) -> std::path::PathBuf {
 fn shards_merged_and_resumed_runs_equal_one_run() {
     let m = model(SMALL, &[]);
     let t = theory::analyse(&m.system).unwrap();
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let never = AtomicBool::new(false);
     let whole = run_ensemble(&plan, &RunOptions::default(), &never, |_, _| {})
         .unwrap()
@@ -318,7 +318,7 @@ fn shards_merged_and_resumed_runs_equal_one_run() {
     assert_eq!(records::read(&f).unwrap().outcomes, whole);
     // a record file of another scenario is refused
     let other = model(SMALL, &["simulation.seed=100"]);
-    let plan2 = Plan::new(&other, &theory::analyse(&other.system).unwrap()).unwrap();
+    let plan2 = common::plan(&other, &theory::analyse(&other.system).unwrap()).unwrap();
     assert!(
         run_ensemble(
             &plan2,

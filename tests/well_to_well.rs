@@ -8,7 +8,7 @@ mod common;
 use common::{brute_force_rate, model};
 
 use escapade::scenario::Model;
-use escapade::simulate::{self, Plan};
+use escapade::simulate;
 use escapade::theory::TheoryReport;
 use std::sync::atomic::AtomicBool;
 
@@ -16,8 +16,9 @@ const DW: &str = "[particle]\nmass = 1.0\nfriction = 0.05\n[potential]\nfamily =
 
 /// Well-to-well rate (transition count) and its standard error.
 fn well_to_well(m: &Model, t: &TheoryReport) -> (f64, f64, u64) {
-    let plan = Plan::new(m, t).unwrap();
-    let (r, _) = simulate::run_transitions(&plan, m, t, 0, &AtomicBool::new(false)).unwrap();
+    let plan = common::plan(m, t).unwrap();
+    let (r, _) =
+        simulate::run_transitions(&plan, &m.system, t, 0, &AtomicBool::new(false)).unwrap();
     (r.rate, r.rate / (r.forward as f64).sqrt(), r.forward)
 }
 
@@ -88,10 +89,10 @@ fn simulated_well_to_well_equals_escape_at_strong_friction() {
 #[test]
 fn transition_counts_do_not_depend_on_threads() {
     let (m, t) = model(DW, &["simulation.transitions=60"]);
-    let plan = Plan::new(&m, &t).unwrap();
+    let plan = common::plan(&m, &t).unwrap();
     let stop = AtomicBool::new(false);
-    let (a, _) = simulate::run_transitions(&plan, &m, &t, 1, &stop).unwrap();
-    let (b, _) = simulate::run_transitions(&plan, &m, &t, 2, &stop).unwrap();
+    let (a, _) = simulate::run_transitions(&plan, &m.system, &t, 1, &stop).unwrap();
+    let (b, _) = simulate::run_transitions(&plan, &m.system, &t, 2, &stop).unwrap();
     assert_eq!((a.forward, a.backward), (b.forward, b.backward));
     assert_eq!(a.time_reactant.to_bits(), b.time_reactant.to_bits());
 }

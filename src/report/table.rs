@@ -585,10 +585,10 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
     if let (Some(esc), Some(cen)) = (s.escaped, s.censored) {
         sim_ensemble(out, s, esc, cen, u);
     }
-    if let Some(f) = &s.ffs {
+    if let Some(f) = &s.details.ffs {
         sim_ffs(out, f, u);
     }
-    if let Some(k) = &s.reactive_flux {
+    if let Some(k) = &s.details.reactive_flux {
         sim_reactive_flux(out, k, u);
     }
     if let Some(w) = &s.well_to_well {

@@ -22,6 +22,11 @@
 //!   D(x)); Euler–Maruyama: x' = x + dt (D F + D') + sqrt(2 D dt) R (Ermak & McCammon, J. Chem.
 //!   Phys. 69, 1352 (1978) for the Itô drift D').
 //!
+//! Each integrator is one move function (up to the new force, `Kind::advance`) and a closing
+//! half kick (`Kind::close`); the lanes and the one-trajectory `step` (FFS, reactive flux,
+//! long runs, [`first_passage`]) both use them, and every trajectory starts from
+//! [`State::fresh`], so a trajectory's outcome is the same bits whichever path runs it.
+//!
 //! Each trajectory owns one PCG stream seeded from (seed, index) only, and a trajectory never
 //! interacts with its neighbours in the lane block, so every outcome depends on the seed and its
 //! index alone: any thread count, chunking, shard or resume point gives the same numbers.
@@ -156,8 +161,6 @@ pub(crate) struct Consts {
     l11: f64,
     l21: f64,
     l22: f64,
-    /// memory: the stationary standard deviation of z, sqrt(mγkT/τ)
-    z_sd: f64,
 }
 
 type M2 = [[f64; 2]; 2];
@@ -229,7 +232,7 @@ impl Consts {
     pub(crate) fn new<M: Mobility>(p: &Params, mob: &M) -> Self {
         let dt = p.dt;
         let d0 = mob.d(0.0).0;
-        let (mut e, mut l11, mut l21, mut l22, mut z_sd) = ([[0.0; 2]; 2], 0.0, 0.0, 0.0, 0.0);
+        let (mut e, mut l11, mut l21, mut l22) = ([[0.0; 2]; 2], 0.0, 0.0, 0.0);
         if p.kind == Kind::BaoabMemory {
             let (m, g, tau) = (p.mass, p.gamma, p.memory_time);
             let a = [[0.0, 1.0 / m], [-m * g / tau, -1.0 / tau]];
@@ -240,7 +243,6 @@ impl Consts {
             l11 = sig[0][0].max(0.0).sqrt();
             l21 = if l11 > 0.0 { sig[1][0] / l11 } else { 0.0 };
             l22 = (sig[1][1] - l21 * l21).max(0.0).sqrt();
-            z_sd = memory_force_sd(p);
         }
         Self {
             hdt_m: 0.5 * dt / p.mass,
@@ -253,13 +255,147 @@ impl Consts {
             l11,
             l21,
             l22,
-            z_sd,
         }
     }
 }
 
-/// One integrator step of one trajectory (its state: x, v, z, the force at x, the previous Gaussian
-/// for Leimkuhler–Matthews), with reflection at the walls.
+/// The variables a step reads and writes, one lane's or one trajectory's: position, velocity,
+/// memory force and the previous Gaussian (Leimkuhler–Matthews). Passed and returned by value, so
+/// the lanes keep them in registers (and the compiler may vectorise across lanes).
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Vars {
+    x: f64,
+    v: f64,
+    z: f64,
+    r: f64,
+}
+
+/// BAOAB up to the new force: B (half kick with the old force), A, O, A, reflection.
+#[inline(always)]
+fn baoab_move(p: &Params, c: &Consts, mut s: Vars, f: f64, g: f64) -> Vars {
+    let dt = p.dt;
+    let mut vv = s.v + c.hdt_m * f;
+    s.x += 0.5 * dt * vv;
+    vv = c.c1 * vv + c.c2 * g;
+    s.x += 0.5 * dt * vv;
+    reflect(&mut s.x, &mut vv, p.lo, p.hi);
+    s.v = vv;
+    s
+}
+
+/// BAOAB with memory up to the new force: as [`baoab_move`] with the exact O-step of the (v, z)
+/// block, which takes two Gaussians.
+#[inline(always)]
+fn baoab_memory_move(p: &Params, c: &Consts, mut s: Vars, f: f64, g1: f64, g2: f64) -> Vars {
+    let dt = p.dt;
+    let mut vv = s.v + c.hdt_m * f;
+    s.x += 0.5 * dt * vv;
+    (vv, s.z) = o_memory(c, vv, s.z, g1, g2);
+    s.x += 0.5 * dt * vv;
+    reflect(&mut s.x, &mut vv, p.lo, p.hi);
+    s.v = vv;
+    s
+}
+
+/// The overdamped update x += dt (D F + w D') + sqrt(2 D dt) kick, then reflection; D' carries the
+/// Itô weight `w` of the scheme ([`LM_ITO_DRIFT`] or 1).
+#[inline(always)]
+fn overdamped_move<M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    mob: &M,
+    x: f64,
+    f: f64,
+    kick: f64,
+    w: f64,
+) -> f64 {
+    let dt = p.dt;
+    let (d, dd, noise) = if M::CONSTANT {
+        (c.d0, 0.0, c.noise0)
+    } else {
+        let (d, dd) = mob.d(x);
+        (d, dd * w, (2.0 * d * dt).sqrt())
+    };
+    let mut x = x + (dt * (d * f + dd) + noise * kick);
+    let mut vv = 0.0;
+    reflect(&mut x, &mut vv, p.lo, p.hi);
+    x
+}
+
+/// Leimkuhler–Matthews: the kick is the mean of the previous and this step's Gaussian.
+#[inline(always)]
+fn leimkuhler_matthews_move<M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    mob: &M,
+    mut s: Vars,
+    f: f64,
+    g: f64,
+) -> Vars {
+    let kick = 0.5 * (s.r + g);
+    s.r = g;
+    s.x = overdamped_move(p, c, mob, s.x, f, kick, LM_ITO_DRIFT);
+    s
+}
+
+/// Euler–Maruyama: the kick is this step's Gaussian.
+#[inline(always)]
+fn euler_maruyama_move<M: Mobility>(
+    p: &Params,
+    c: &Consts,
+    mob: &M,
+    mut s: Vars,
+    f: f64,
+    g: f64,
+) -> Vars {
+    s.x = overdamped_move(p, c, mob, s.x, f, g, 1.0);
+    s
+}
+
+impl Kind {
+    /// Gaussians one step draws: the memory O-step needs two.
+    #[inline(always)]
+    pub fn gaussians(self) -> usize {
+        if self == Self::BaoabMemory { 2 } else { 1 }
+    }
+
+    /// The integrator's move up to the new force, given the force `f` at the old position and the
+    /// step's Gaussians (`g2` is read by the memory integrator only). Every path that steps a
+    /// trajectory goes through here: the lanes (with `self` a constant, so the match folds away)
+    /// and the single-trajectory runners.
+    #[inline(always)]
+    #[allow(clippy::too_many_arguments)] // one step's full context
+    pub(crate) fn advance<M: Mobility>(
+        self,
+        p: &Params,
+        c: &Consts,
+        mob: &M,
+        s: Vars,
+        f: f64,
+        g1: f64,
+        g2: f64,
+    ) -> Vars {
+        match self {
+            Self::Baoab => baoab_move(p, c, s, f, g1),
+            Self::BaoabMemory => baoab_memory_move(p, c, s, f, g1, g2),
+            Self::LeimkuhlerMatthews => leimkuhler_matthews_move(p, c, mob, s, f, g1),
+            Self::EulerMaruyama => euler_maruyama_move(p, c, mob, s, f, g1),
+        }
+    }
+
+    /// The end of a step once the force `f` at the new position is known: the closing half kick
+    /// (underdamped).
+    #[inline(always)]
+    pub(crate) fn close(self, c: &Consts, v: f64, f: f64) -> f64 {
+        if self.underdamped() {
+            v + c.hdt_m * f
+        } else {
+            v
+        }
+    }
+}
+
+/// One integrator step of one trajectory, drawing its Gaussians from `rng`.
 #[inline(always)]
 fn step<F: Force, M: Mobility>(
     p: &Params,
@@ -269,57 +405,22 @@ fn step<F: Force, M: Mobility>(
     st: &mut State,
     rng: &mut Pcg64,
 ) {
-    let dt = p.dt;
-    match p.kind {
-        Kind::Baoab => {
-            let mut vv = st.v + c.hdt_m * st.f;
-            st.x += 0.5 * dt * vv;
-            let rr: f64 = rng.sample(StandardNormal);
-            vv = c.c1 * vv + c.c2 * rr;
-            st.x += 0.5 * dt * vv;
-            reflect(&mut st.x, &mut vv, p.lo, p.hi);
-            let ff = force.force(st.x);
-            st.v = vv + c.hdt_m * ff;
-            st.f = ff;
-        }
-        Kind::BaoabMemory => {
-            let mut vv = st.v + c.hdt_m * st.f;
-            st.x += 0.5 * dt * vv;
-            let r1: f64 = rng.sample(StandardNormal);
-            let r2: f64 = rng.sample(StandardNormal);
-            (vv, st.z) = o_memory(c, vv, st.z, r1, r2);
-            st.x += 0.5 * dt * vv;
-            reflect(&mut st.x, &mut vv, p.lo, p.hi);
-            let ff = force.force(st.x);
-            st.v = vv + c.hdt_m * ff;
-            st.f = ff;
-        }
-        Kind::LeimkuhlerMatthews | Kind::EulerMaruyama => {
-            let rr: f64 = rng.sample(StandardNormal);
-            let (d, dd, noise) = if M::CONSTANT {
-                (c.d0, 0.0, c.noise0)
-            } else {
-                let (d, dd) = mob.d(st.x);
-                let lm = p.kind == Kind::LeimkuhlerMatthews;
-                (
-                    d,
-                    dd * if lm { LM_ITO_DRIFT } else { 1.0 },
-                    (2.0 * d * dt).sqrt(),
-                )
-            };
-            let kick = if p.kind == Kind::LeimkuhlerMatthews {
-                let k = 0.5 * (st.r + rr);
-                st.r = rr;
-                k
-            } else {
-                rr
-            };
-            st.x += dt * (d * st.f + dd) + noise * kick;
-            let mut vv = 0.0;
-            reflect(&mut st.x, &mut vv, p.lo, p.hi);
-            st.f = force.force(st.x);
-        }
-    }
+    let g1: f64 = rng.sample(StandardNormal);
+    let g2: f64 = if p.kind.gaussians() == 2 {
+        rng.sample(StandardNormal)
+    } else {
+        0.0
+    };
+    let vars = Vars {
+        x: st.x,
+        v: st.v,
+        z: st.z,
+        r: st.r,
+    };
+    let n = p.kind.advance(p, c, mob, vars, st.f, g1, g2);
+    st.f = force.force(n.x);
+    (st.x, st.z, st.r) = (n.x, n.z, n.r);
+    st.v = p.kind.close(c, n.v, st.f);
 }
 
 /// The exact O-step of the memory integrator on one (v, z) pair.
@@ -330,7 +431,6 @@ fn o_memory(c: &Consts, v: f64, z: f64, r1: f64, r2: f64) -> (f64, f64) {
         c.e[1][0] * v + c.e[1][1] * z + c.l21 * r1 + c.l22 * r2,
     )
 }
-
 /// One trajectory of `steps` steps with no absorbing target (for stationary and diffusion checks),
 /// returning (x, v) every `every` steps, starting from `x0` with a Maxwell velocity.
 pub fn sample_path<F: Force, M: Mobility>(
@@ -360,24 +460,7 @@ pub fn sample_states<F: Force, M: Mobility>(
 ) -> Vec<State> {
     let c = Consts::new(p, mob);
     let mut rng = stream(p.seed, index);
-    let v = if p.kind.underdamped() {
-        rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
-    } else {
-        0.0
-    };
-    let z = if p.kind == Kind::BaoabMemory {
-        c.z_sd * rng.sample::<f64, _>(StandardNormal)
-    } else {
-        0.0
-    };
-    let r: f64 = rng.sample(StandardNormal);
-    let mut st = State {
-        x: x0,
-        v,
-        z,
-        f: force.force(x0),
-        r,
-    };
+    let mut st = State::fresh(p, force, x0, &mut rng);
     let mut out = Vec::with_capacity((steps / every.max(1)) as usize);
     for s in 1..=steps {
         step(p, &c, force, mob, &mut st, &mut rng);
@@ -386,6 +469,28 @@ pub fn sample_states<F: Force, M: Mobility>(
         }
     }
     out
+}
+
+/// The first-passage trajectory `index` run alone, one `step` at a time: the outcome the lanes
+/// give it (tests hold the two paths to the same bits).
+pub fn first_passage<F: Force, M: Mobility>(p: &Params, force: &F, mob: &M, index: u64) -> Outcome {
+    let c = Consts::new(p, mob);
+    let (mut s, mut rng) = start_trajectory(p, force, index);
+    for n in 1..=p.max_steps {
+        step(p, &c, force, mob, &mut s, &mut rng);
+        if p.dir * (s.x - p.target) >= 0.0 {
+            return Outcome {
+                index,
+                steps: n,
+                escaped: true,
+            };
+        }
+    }
+    Outcome {
+        index,
+        steps: p.max_steps,
+        escaped: false,
+    }
 }
 
 /// Runs the trajectories `indices`, calling `done` for each finished one. Stops early (dropping the
@@ -416,12 +521,23 @@ const LM: u8 = 1;
 const EM: u8 = 2;
 const GLE: u8 = 3;
 
+/// The integrator of a lane loop's constant.
+const fn kind_of(k: u8) -> Kind {
+    match k {
+        BAOAB => Kind::Baoab,
+        LM => Kind::LeimkuhlerMatthews,
+        EM => Kind::EulerMaruyama,
+        _ => Kind::BaoabMemory,
+    }
+}
+
 /// The lock-step loop for one integrator (a compile-time constant, so the step has no branch on
-/// it). Each block first draws [`BLOCK`] Gaussians per lane (two per step with memory) from the lane's own stream (independent
-/// streams interleave, hiding the generator's latency), then advances all lanes [`BLOCK`] steps,
-/// noting each lane's first crossing. A lane that crossed mid-block keeps integrating to the block
-/// end; those steps and their draws are discarded, so each trajectory still sees exactly its own
-/// stream in order and its outcome is that of a one-at-a-time run.
+/// it). Each block first draws [`BLOCK`] Gaussians per lane (two per step with memory) from the
+/// lane's own stream (independent streams interleave, hiding the generator's latency), then
+/// advances all lanes [`BLOCK`] steps with the integrator's [`Kind::advance`] and
+/// [`Kind::close`], noting each lane's first crossing. A lane that crossed mid-block keeps
+/// integrating to the block end; those steps and their draws are discarded, so each trajectory
+/// still sees exactly its own stream in order and its outcome is that of [`first_passage`].
 fn lanes<F: Force, M: Mobility, const K: u8>(
     p: &Params,
     force: &F,
@@ -431,6 +547,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
     stop: &AtomicBool,
     done: &mut dyn FnMut(Outcome),
 ) {
+    let kind = const { kind_of(K) };
     let c = Consts::new(p, mob);
     let mut x = [0.0f64; LANES];
     let mut v = [0.0f64; LANES];
@@ -442,10 +559,8 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
     let mut index = [0u64; LANES];
     let mut active = [false; LANES];
     let mut rng: [Pcg64; LANES] = std::array::from_fn(|_| stream(0, 0));
-    // Gaussians per step: the memory O-step needs two
-    let draws: usize = if K == GLE { 2 } else { 1 };
+    let draws = kind.gaussians();
     let mut gauss = [[0.0f64; LANES]; 2 * BLOCK];
-    let inv_sqrt_m = 1.0 / p.mass.sqrt();
     let start = |k: usize,
                  x: &mut [f64; LANES],
                  v: &mut [f64; LANES],
@@ -455,24 +570,8 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
                  rng: &mut [Pcg64; LANES]|
      -> Option<u64> {
         let i = *indices.get(next.fetch_add(1, Ordering::Relaxed))?;
-        let mut g = stream(p.seed, i);
-        x[k] = p.start.draw(&mut g);
-        f[k] = force.force(x[k]);
-        v[k] = if K == BAOAB || K == GLE {
-            inv_sqrt_m * g.sample::<f64, _>(StandardNormal)
-        } else {
-            0.0
-        };
-        zf[k] = if K == GLE {
-            c.z_sd * g.sample::<f64, _>(StandardNormal)
-        } else {
-            0.0
-        };
-        r[k] = if K == LM {
-            g.sample(StandardNormal)
-        } else {
-            0.0
-        };
+        let (s, g) = start_trajectory(p, force, i);
+        (x[k], v[k], zf[k], f[k], r[k]) = (s.x, s.v, s.z, s.f, s.r);
         rng[k] = g;
         Some(i)
     };
@@ -483,7 +582,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
             active[k] = true;
         }
     }
-    let (lo, hi, target, dir, dt) = (p.lo, p.hi, p.target, p.dir, p.dt);
+    let (target, dir) = (p.target, p.dir);
     while active.iter().any(|&a| a) {
         if stop.load(Ordering::Relaxed) {
             return;
@@ -495,58 +594,25 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
         }
         let mut first = [u32::MAX; LANES];
         for s in 0..BLOCK {
-            let zs = &gauss[draws * s];
-            // Three passes over the lanes (move, force, check) put the lanes' independent force
-            // evaluations next to each other, so their latencies overlap.
+            // Three passes over the lanes (move, force, close and check) put the lanes'
+            // independent force evaluations next to each other, so their latencies overlap.
+            let (g1s, g2s) = (&gauss[draws * s], &gauss[2 * s + 1]);
             for k in 0..LANES {
-                let mut xk = x[k];
-                let rr = zs[k];
-                if K == BAOAB {
-                    let mut vk = v[k] + c.hdt_m * f[k];
-                    xk += 0.5 * dt * vk;
-                    vk = c.c1 * vk + c.c2 * rr;
-                    xk += 0.5 * dt * vk;
-                    reflect(&mut xk, &mut vk, lo, hi);
-                    v[k] = vk;
-                } else if K == GLE {
-                    let mut vk = v[k] + c.hdt_m * f[k];
-                    xk += 0.5 * dt * vk;
-                    (vk, zf[k]) = o_memory(&c, vk, zf[k], rr, gauss[2 * s + 1][k]);
-                    xk += 0.5 * dt * vk;
-                    reflect(&mut xk, &mut vk, lo, hi);
-                    v[k] = vk;
-                } else {
-                    let (d, dd, noise) = if M::CONSTANT {
-                        (c.d0, 0.0, c.noise0)
-                    } else {
-                        let (d, dd) = mob.d(xk);
-                        let lm = K == LM;
-                        (
-                            d,
-                            dd * if lm { LM_ITO_DRIFT } else { 1.0 },
-                            (2.0 * d * dt).sqrt(),
-                        )
-                    };
-                    let kick = if K == LM {
-                        let kk = 0.5 * (r[k] + rr);
-                        r[k] = rr;
-                        kk
-                    } else {
-                        rr
-                    };
-                    xk += dt * (d * f[k] + dd) + noise * kick;
-                    let mut vk = 0.0;
-                    reflect(&mut xk, &mut vk, lo, hi);
-                }
-                x[k] = xk;
+                let g2 = if draws == 2 { g2s[k] } else { 0.0 };
+                let vars = Vars {
+                    x: x[k],
+                    v: v[k],
+                    z: zf[k],
+                    r: r[k],
+                };
+                let n = kind.advance(p, &c, mob, vars, f[k], g1s[k], g2);
+                (x[k], v[k], zf[k], r[k]) = (n.x, n.v, n.z, n.r);
             }
             for k in 0..LANES {
                 f[k] = force.force(x[k]);
             }
             for k in 0..LANES {
-                if K == BAOAB || K == GLE {
-                    v[k] += c.hdt_m * f[k];
-                }
+                v[k] = kind.close(&c, v[k], f[k]);
                 let hit = dir * (x[k] - target) >= 0.0;
                 first[k] = if hit & (first[k] == u32::MAX) {
                     s as u32
@@ -603,15 +669,30 @@ pub struct State {
     pub r: f64,
 }
 
+/// The start of first-passage trajectory `index`: its stream, a start position drawn from it and
+/// a [`State::fresh`] there. The lanes and [`first_passage`] both start here.
+#[inline]
+pub fn start_trajectory<F: Force>(p: &Params, force: &F, index: u64) -> (State, Pcg64) {
+    let mut rng = stream(p.seed, index);
+    let x = p.start.draw(&mut rng);
+    (State::fresh(p, force, x, &mut rng), rng)
+}
+
 impl State {
-    /// A fresh state at `x` with a Maxwell velocity (underdamped), a memory force from its
-    /// stationary law N(0, mγkT/τ) (memory) and a first Gaussian (Leimkuhler–Matthews).
+    /// A fresh state at `x`: a Maxwell velocity (underdamped), then as [`State::with_velocity`].
+    /// Every trajectory, walker and long run starts from here, so all draw in the same order.
     pub fn fresh<F: Force>(p: &Params, force: &F, x: f64, rng: &mut Pcg64) -> Self {
         let v = if p.kind.underdamped() {
             rng.sample::<f64, _>(StandardNormal) / p.mass.sqrt()
         } else {
             0.0
         };
+        Self::with_velocity(p, force, x, v, rng)
+    }
+
+    /// A state at `x` with velocity `v`, a memory force from its stationary law N(0, mγkT/τ)
+    /// (memory) and a first Gaussian (Leimkuhler–Matthews), drawn in that order.
+    pub fn with_velocity<F: Force>(p: &Params, force: &F, x: f64, v: f64, rng: &mut Pcg64) -> Self {
         let z = if p.kind == Kind::BaoabMemory {
             memory_force_sd(p) * rng.sample::<f64, _>(StandardNormal)
         } else {

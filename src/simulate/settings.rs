@@ -42,19 +42,7 @@ pub enum StartRule {
     Thermal,
 }
 
-/// The estimation method asked for.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum MethodRequest {
-    /// brute force within the step budget, else forward flux sampling
-    Auto,
-    /// an ensemble of first passages
-    BruteForce,
-    /// forward flux sampling
-    Ffs,
-    /// reactive flux from the barrier top
-    ReactiveFlux,
-}
+pub use super::methods::MethodRequest;
 
 /// The `[simulation]` section (range-checked by the scenario module).
 #[derive(Debug, Clone, Default, Deserialize)]

@@ -2,7 +2,7 @@
 #![allow(dead_code)]
 
 use escapade::scenario::{Model, Override};
-use escapade::simulate::{Plan, RunOptions, run_ensemble};
+use escapade::simulate::{Plan, RunOptions, SimError, run_ensemble};
 use escapade::stats::summarise;
 use escapade::theory::{self, TheoryReport};
 use std::path::Path;
@@ -14,6 +14,12 @@ pub fn model(text: &str, sets: &[&str]) -> (Model, TheoryReport) {
     let m = Model::from_text(text, "test", Path::new("."), &o).unwrap();
     let t = theory::analyse(&m.system).unwrap();
     (m, t)
+}
+
+/// The simulation plan of a scenario, as the commands build it.
+pub fn plan(m: &Model, t: &TheoryReport) -> Result<Plan, SimError> {
+    let settings = m.simulation.clone().unwrap_or_default();
+    Plan::new(&m.system, &settings, &m.units.names.time, t)
 }
 
 /// Runs the binary with `args` and parses its JSON output (the run must succeed).
@@ -57,7 +63,7 @@ pub fn batch_mean(xs: &[f64]) -> (f64, f64) {
 
 /// The brute-force escape rate of a scenario and its standard error k/sqrt(escapes) (Poisson).
 pub fn brute_force_rate(m: &Model, t: &TheoryReport) -> (f64, f64) {
-    let plan = Plan::new(m, t).unwrap();
+    let plan = plan(m, t).unwrap();
     let run = run_ensemble(
         &plan,
         &RunOptions::default(),

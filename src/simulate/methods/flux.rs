@@ -15,17 +15,19 @@
 //! last fifth, and the plateau is reached at the first time after which κ stays within three
 //! standard errors of that value. Reported as reached when that happens before 60% of t_max.
 
-use super::engine::{self, Consts, State};
-use super::force::{Force, Mobility};
-use super::{Plan, SimError};
+use super::{Context, RareSummary};
 use crate::landscape::Landscape;
 use crate::seed;
+use crate::simulate::engine::{self, Consts, Kind, State};
+use crate::simulate::force::{Force, Mobility};
+use crate::simulate::{Plan, REFUSE_FACTOR, SimError, key_err, with_force};
 use rand::RngExt;
-use rand_distr::StandardNormal;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::sync::atomic::{AtomicBool, Ordering};
 
+/// Default reactive-flux ensemble.
+pub const DEFAULT_FLUX_TRAJECTORIES: u64 = 20_000;
 /// Points on the κ(t) grid.
 const POINTS: usize = 200;
 /// z for a two-sided 95% interval.
@@ -56,6 +58,66 @@ pub struct FluxResult {
     pub total_steps: u64,
     /// κ(t) on the grid: (t, κ)
     pub kappa_curve: Vec<(f64, f64)>,
+}
+
+impl FluxResult {
+    /// The part every method's record shows.
+    pub fn summary(&self) -> RareSummary {
+        let mut warnings = Vec::new();
+        if !self.plateau_reached {
+            warnings.push(format!(
+                "kappa(t) had not settled well inside the window t_max = {:.4e}: raise simulation.flux_time",
+                self.t_max
+            ));
+        }
+        RareSummary {
+            trajectories: self.trajectories,
+            rate: self.rate,
+            rate_ci95: self.rate_ci95,
+            rate_ci_method: "normal interval of the plateau transmission coefficient, times the exact TST rate",
+            total_steps: self.total_steps,
+            warnings,
+        }
+    }
+}
+
+/// Reactive flux for a plan: `simulation.trajectories` (default [`DEFAULT_FLUX_TRAJECTORIES`])
+/// over the window `simulation.flux_time` (default [`default_window`], or
+/// [`default_window_memory`] with memory friction).
+///
+/// # Errors
+/// No mass (no TST rate), a run beyond [`REFUSE_FACTOR`] × the step budget, or an interruption.
+pub fn run_for(ctx: &Context<'_>) -> Result<FluxResult, SimError> {
+    let plan = ctx.plan;
+    let l = &ctx.theory.landscape;
+    let tst = ctx.theory.rates.tst_exact.ok_or_else(|| {
+        key_err(
+            "particle.mass",
+            "reactive flux needs a mass for the TST rate",
+        )
+    })?;
+    let n = plan
+        .settings
+        .trajectories
+        .unwrap_or(DEFAULT_FLUX_TRAJECTORIES);
+    let window = plan.settings.flux_time.unwrap_or_else(|| {
+        if plan.params.kind == Kind::BaoabMemory {
+            default_window_memory(l, plan.params.gamma, plan.params.memory_time)
+        } else {
+            default_window(l, plan.params.gamma)
+        }
+    });
+    let steps = n as f64 * (window / plan.params.dt).ceil();
+    if steps > REFUSE_FACTOR * plan.budget_steps {
+        return Err(key_err(
+            "simulation.flux_time",
+            format!(
+                "reactive flux over a window of {window:.3e} needs about {steps:.2e} steps ({n} trajectories), more than {REFUSE_FACTOR}x simulation.budget_steps = {:.2e}: shorten flux_time, use fewer trajectories or raise the budget",
+                plan.budget_steps
+            ),
+        ));
+    }
+    with_force!(plan, |f, mb| run(plan, f, mb, l, tst, n, window, ctx.stop))
 }
 
 /// The default window: 20 barrier-crossing times 1/λ₊, and at least 5 well periods.
@@ -105,18 +167,7 @@ pub fn run<F: Force, M: Mobility>(
             // Rayleigh speed for kT = 1: |v| = sqrt(-2 ln(1-u) / m)
             let speed = (-2.0 * (-u).ln_1p() / p.mass).sqrt();
             let v = if forward { speed } else { -speed } * p.dir;
-            let z = if p.kind == engine::Kind::BaoabMemory {
-                engine::memory_force_sd(p) * rng.sample::<f64, _>(StandardNormal)
-            } else {
-                0.0
-            };
-            let mut s = State {
-                x: l.barrier,
-                v,
-                z,
-                f: force.force(l.barrier),
-                r: 0.0,
-            };
+            let mut s = State::with_velocity(p, force, l.barrier, v, &mut rng);
             let mut th = Vec::with_capacity(POINTS);
             for _ in 0..POINTS {
                 for _ in 0..stride {

@@ -20,13 +20,14 @@
 //! Every basin walker and trial has its own PCG stream from (seed, replica, stage, index), and
 //! trials run in parallel but are collected in index order: the result depends on the seed only.
 
-use super::engine::{self, Consts, Exit, State};
-use super::force::{Force, Mobility};
-use super::{Plan, SimError};
+use super::{Context, RareSummary};
 use crate::landscape::Landscape;
 use crate::potential::{Diffusion, Potential};
 use crate::quad::log_add;
 use crate::seed;
+use crate::simulate::engine::{self, Consts, Exit, State};
+use crate::simulate::force::{Force, Mobility};
+use crate::simulate::{Plan, SimError, key_err, with_force};
 use rand::RngExt;
 use rayon::prelude::*;
 use serde::Serialize;
@@ -41,6 +42,8 @@ pub const TARGET_REL_ERROR: f64 = 0.012;
 pub const STAGE_PROBABILITY: f64 = 0.25;
 /// Basin walkers per replica.
 const BASIN_WALKERS: usize = 16;
+/// Planned stage probability for user-given interfaces (unknown in advance).
+const STAGE_GUESS: f64 = 0.2;
 /// A trial that neither succeeds nor falls back within this many steps counts as a failure
 /// (and is reported).
 const TRIAL_LIMIT: u64 = 100_000_000;
@@ -85,6 +88,67 @@ pub struct FfsResult {
     pub total_steps: u64,
     /// warnings
     pub warnings: Vec<String>,
+}
+
+impl FfsResult {
+    /// The part every method's record shows.
+    pub fn summary(&self) -> RareSummary {
+        let trials = self.stages.iter().map(|s| s.trials).sum();
+        RareSummary {
+            trajectories: trials,
+            rate: self.rate,
+            rate_ci95: self.rate_ci95,
+            rate_ci_method: self.interval_method,
+            total_steps: self.total_steps,
+            warnings: self.warnings.clone(),
+        }
+    }
+}
+
+/// Forward flux sampling for a plan: the interfaces given in `simulation.interfaces` (checked,
+/// the target appended) or placed automatically, and the trials per stage for
+/// [`TARGET_REL_ERROR`] unless `simulation.trials` is given.
+///
+/// # Errors
+/// Interfaces out of order or outside the reactant–target range, or an interruption.
+pub fn run_for(ctx: &Context<'_>) -> Result<FfsResult, SimError> {
+    let plan = ctx.plan;
+    let l = &ctx.theory.landscape;
+    let replicas = plan.settings.replicas.map_or(REPLICAS, |r| r as usize);
+    let (ifs, automatic, probs) = match &plan.settings.interfaces {
+        Some(given) => {
+            let mut v = given.clone();
+            let d = l.direction;
+            let ok = v.windows(2).all(|w| d * w[1] > d * w[0])
+                && d * v[0] > d * l.reactant
+                && d * v[v.len() - 1] <= d * l.target;
+            if !ok {
+                return Err(key_err(
+                    "simulation.interfaces",
+                    format!(
+                        "must increase from the reactant (x = {}) towards the target (x = {}), beyond the reactant and not beyond the target",
+                        l.reactant, l.target
+                    ),
+                ));
+            }
+            if d * v[v.len() - 1] < d * l.target {
+                v.push(l.target);
+            }
+            let n = v.len() - 1;
+            (v, false, vec![STAGE_GUESS; n])
+        }
+        None => {
+            let (v, p) = place_interfaces(&ctx.system.potential, &ctx.system.diffusion, l);
+            (v, true, p)
+        }
+    };
+    let trials = plan
+        .settings
+        .trials
+        .unwrap_or_else(|| trials_for(&probs, TARGET_REL_ERROR, replicas));
+    with_force!(plan, |f, mb| run(
+        plan, f, mb, l, &ifs, automatic, trials, replicas, ctx.stop
+    ))
 }
 
 fn tag(seed: u64, replica: u64, stage: u64) -> u64 {
