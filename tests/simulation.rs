@@ -297,11 +297,26 @@ fn shards_merged_and_resumed_runs_equal_one_run() {
         }
     })
     .unwrap();
-    assert!(first.interrupted && first.outcomes.len() < whole.len());
+    // how far the run got before a worker saw the flag depends on scheduling; what it reports
+    // must match what it did, and each finished trajectory must equal its twin in the whole run
+    assert_eq!(first.interrupted, first.outcomes.len() < whole.len());
+    for o in &first.outcomes {
+        assert!(whole.contains(o), "{o:?}");
+    }
+    // keep 40 records at most, whatever the scheduler allowed, so the resume below always has
+    // work to do; then a torn last line as a crash leaves it
     {
-        use std::io::Write;
-        let mut h = std::fs::OpenOptions::new().append(true).open(&f).unwrap();
-        h.write_all(b"123,45").unwrap();
+        let text = std::fs::read_to_string(&f).unwrap();
+        let mut data = 0;
+        let kept: Vec<&str> = text
+            .lines()
+            .filter(|l| {
+                let header = l.starts_with('#') || l.starts_with("index");
+                data += usize::from(!header);
+                header || data <= 40
+            })
+            .collect();
+        std::fs::write(&f, kept.join("\n") + "\n123,45").unwrap();
     }
     let resumed = run_ensemble(
         &plan,
