@@ -173,8 +173,17 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             if simulate {
                 let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
             }
-            let mut r = escapade::scan::run(&file, &overrides, &spec, simulate, threads, &STOP)
-                .map_err(|e| Failure::user(e.to_string()))?;
+            let mut r = escapade::scan::run(
+                &escapade::scenario::FileVariants {
+                    file: &file,
+                    base: &overrides,
+                },
+                &spec,
+                simulate,
+                threads,
+                &STOP,
+            )
+            .map_err(|e| Failure::user(e.to_string()))?;
             if simulate && let Some(w) = thread_warning {
                 r.notes.push(w);
             }

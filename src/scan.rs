@@ -13,13 +13,12 @@
 //! simulated values (a partial ensemble is not a result), while the theory is still given for all.
 
 use crate::fit::{self, Line};
-use crate::scenario::{Model, Override, ScenarioError};
+use crate::model::Model;
 use crate::simulate::session::{self, SessionError, SessionOptions};
 use crate::simulate::{Plan, SimError};
 use crate::theory::{self, Rates};
 use crate::units::K_B;
 use serde::Serialize;
-use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
 use thiserror::Error;
 
@@ -30,9 +29,9 @@ pub enum ScanError {
     /// Bad range or key.
     #[error("{0}")]
     Spec(String),
-    /// The scenario at some point.
-    #[error("{0}")]
-    Scenario(#[from] ScenarioError),
+    /// The study at some point could not be made (the scenario file's own error, one line).
+    #[error(transparent)]
+    Study(Box<dyn std::error::Error + Send + Sync>),
     /// Landscape or theory at some point.
     #[error("{file}: {key} = {value}: {message}")]
     Point {
@@ -283,19 +282,27 @@ pub struct ScanReport {
     pub log: bool,
 }
 
+/// Where a scan's points come from: the study with the scanned key set to a value. The scenario
+/// module gives one for a scenario file and its `--set` overrides; the scan never reads files.
+pub trait Variants: Sync {
+    /// The study with `key` = `value`, and the simulation's master seed set to `seed` when given.
+    ///
+    /// # Errors
+    /// [`ScanError::Study`] with the source's own one-line message.
+    fn at(&self, key: &str, value: f64, seed: Option<u64>) -> Result<Model, ScanError>;
+    /// The source named in messages (the scenario file).
+    fn source(&self) -> String;
+}
+
 fn point_theory(
-    file: &Path,
-    base: &[Override],
+    src: &dyn Variants,
     key: &str,
     v: f64,
-    extra: &[Override],
+    seed: Option<u64>,
 ) -> Result<(Model, theory::Analysis), ScanError> {
-    let mut o = base.to_vec();
-    o.push(Override::parse(&format!("{key}={v:?}"))?);
-    o.extend_from_slice(extra);
-    let m = Model::load(file, &o)?;
+    let m = src.at(key, v, seed)?;
     let t = theory::analyse_or_running(&m.system).map_err(|e| ScanError::Point {
-        file: file.display().to_string(),
+        file: src.source(),
         key: key.to_string(),
         value: v,
         message: format!("{}: {e}", e.key()),
@@ -306,8 +313,7 @@ fn point_theory(
 /// What a scan carries from point to point: where it is read from, the first point's facts, the
 /// notes so far and whether a stop came.
 struct Scan<'a> {
-    file: &'a Path,
-    base: &'a [Override],
+    src: &'a dyn Variants,
     spec: &'a Spec,
     simulate: bool,
     threads: usize,
@@ -318,14 +324,13 @@ struct Scan<'a> {
     interrupted: bool,
 }
 
-/// Runs the scan of `file` (with `base` overrides); with `simulate`, every point is also
+/// Runs the scan over the studies `src` gives; with `simulate`, every point is also
 /// simulated (method auto, its own seed, `threads` threads).
 ///
 /// # Errors
 /// A bad spec, a scenario error at some point (naming it), or a simulation set-up error.
 pub fn run(
-    file: &Path,
-    base: &[Override],
+    src: &dyn Variants,
     spec: &Spec,
     simulate: bool,
     threads: usize,
@@ -333,8 +338,7 @@ pub fn run(
 ) -> Result<ScanReport, ScanError> {
     let values = spec.values()?;
     let mut scan = Scan {
-        file,
-        base,
+        src,
         spec,
         simulate,
         threads,
@@ -353,7 +357,7 @@ pub fn run(
 impl Scan<'_> {
     /// The theory at point `i` (value `v`) and, with `--simulate`, its simulation.
     fn point(&mut self, i: usize, v: f64) -> Result<Point, ScanError> {
-        let (m, t) = match point_theory(self.file, self.base, &self.spec.key, v, &[])? {
+        let (m, t) = match point_theory(self.src, &self.spec.key, v, None)? {
             (m, theory::Analysis::Full(t)) => (m, *t),
             (m, theory::Analysis::Running(p)) => return Ok(self.running_point(&m, v, &p)),
         };
@@ -426,20 +430,10 @@ impl Scan<'_> {
             return Ok((None, Some(SimStatus::Interrupted)));
         }
         let master = m.simulation.as_ref().and_then(|s| s.seed).unwrap_or(1);
-        let (file, base, spec) = (self.file, self.base, self.spec);
+        let (src, spec) = (self.src, self.spec);
         let (threads, stop) = (self.threads, self.stop);
         Ok(
-            match simulate_point(
-                file,
-                base,
-                spec,
-                i,
-                v,
-                master,
-                threads,
-                stop,
-                &mut self.notes,
-            )? {
+            match simulate_point(src, spec, i, v, master, threads, stop, &mut self.notes)? {
                 Some(p) => (Some(p), Some(SimStatus::Complete)),
                 None => {
                     self.interrupted = true;
@@ -461,7 +455,7 @@ impl Scan<'_> {
         let opts = m.uncertainty_options();
         Ok(crate::uncertainty::propagate(&m.system, &opts)
             .map_err(|e| ScanError::Point {
-                file: self.file.display().to_string(),
+                file: self.src.source(),
                 key: self.spec.key.clone(),
                 value: v,
                 message: format!("{}: {e}", e.key()),
@@ -514,8 +508,7 @@ impl Scan<'_> {
 /// that do not fit the budget are skipped with a note in `skipped`.
 #[allow(clippy::too_many_arguments)] // the point's full context
 fn simulate_point(
-    file: &Path,
-    base: &[Override],
+    src: &dyn Variants,
     spec: &Spec,
     i: usize,
     v: f64,
@@ -526,18 +519,12 @@ fn simulate_point(
 ) -> Result<Option<SimPoint>, ScanError> {
     // 63 bits: TOML integers are signed
     let seed = crate::seed::derive(master, (i as u64).wrapping_mul(crate::seed::SCAN_POINT)) >> 1;
-    let (m, t) = match point_theory(
-        file,
-        base,
-        &spec.key,
-        v,
-        &[Override::parse(&format!("simulation.seed={seed}"))?],
-    )? {
+    let (m, t) = match point_theory(src, &spec.key, v, Some(seed))? {
         (m, theory::Analysis::Full(t)) => (m, *t),
         // the same point gave a well a moment ago: only a changed file can do this
         (_, theory::Analysis::Running(_)) => {
             return Err(ScanError::Point {
-                file: file.display().to_string(),
+                file: src.source(),
                 key: spec.key.clone(),
                 value: v,
                 message: "the scenario changed during the scan".into(),
@@ -545,7 +532,7 @@ fn simulate_point(
         }
     };
     let bad = |e: String| ScanError::Point {
-        file: file.display().to_string(),
+        file: src.source(),
         key: spec.key.clone(),
         value: v,
         message: e,

@@ -130,7 +130,17 @@ fn scan_stopped_marks_every_simulated_point_interrupted() {
         log: false,
     };
     let stop = AtomicBool::new(true);
-    let r = scan::run(&f, &[], &spec, true, 1, &stop).unwrap();
+    let r = scan::run(
+        &escapade::scenario::FileVariants {
+            file: &f,
+            base: &[],
+        },
+        &spec,
+        true,
+        1,
+        &stop,
+    )
+    .unwrap();
     assert!(r.interrupted);
     for p in &r.points {
         assert!(p.simulation.is_none());

@@ -172,7 +172,17 @@ fn scan_pictures_are_well_formed_with_labels_and_markers() {
 fn arrhenius_fit_recovers_an_exact_arrhenius_rate() {
     let f = example("isomerization_kjmol.toml");
     let spec = spec("units.temperature", 250.0, 400.0, 7, false);
-    let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
+    let r = scan::run(
+        &escapade::scenario::FileVariants {
+            file: &f,
+            base: &[],
+        },
+        &spec,
+        false,
+        1,
+        &AtomicBool::new(false),
+    )
+    .unwrap();
     let fit = r.fits.iter().find(|x| x.rate == "tst").unwrap();
     let m = Model::load(&f, &[Override::parse("units.temperature=300").unwrap()]).unwrap();
     let t = theory::analyse(&m.system).unwrap();
@@ -221,7 +231,17 @@ fn arrhenius_fit_recovers_an_exact_arrhenius_rate() {
 fn friction_scan_turnover_maximum_is_where_theory_puts_it() {
     let f = example("double_well_reduced.toml");
     let spec = spec("particle.friction", 0.01, 100.0, 25, true);
-    let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
+    let r = scan::run(
+        &escapade::scenario::FileVariants {
+            file: &f,
+            base: &[],
+        },
+        &spec,
+        false,
+        1,
+        &AtomicBool::new(false),
+    )
+    .unwrap();
     let ks: Vec<f64> = r.points.iter().map(|p| p.rates.turnover.unwrap()).collect();
     let i = (0..ks.len())
         .max_by(|&a, &b| ks[a].total_cmp(&ks[b]))
@@ -311,7 +331,17 @@ fn survey_survival_and_force_pictures_are_well_formed() {
 fn force_fit_gives_the_distance_to_the_barrier() {
     let f = example("hopping_washboard.toml");
     let spec = spec("potential.tilt", 0.0, 2.0, 5, false);
-    let r = scan::run(&f, &[], &spec, false, 1, &AtomicBool::new(false)).unwrap();
+    let r = scan::run(
+        &escapade::scenario::FileVariants {
+            file: &f,
+            base: &[],
+        },
+        &spec,
+        false,
+        1,
+        &AtomicBool::new(false),
+    )
+    .unwrap();
     let fit = r.fits.iter().find(|x| x.rate == "mfpt").unwrap();
     assert!((fit.value / 0.5 - 1.0).abs() < 0.05, "x‡ = {}", fit.value);
 }

@@ -9,7 +9,7 @@ pub mod svg;
 pub mod table;
 
 use crate::landscape::{Kind, Landscape, TargetRule};
-use crate::scenario::Model;
+use crate::model::Model;
 use crate::theory::catalogue::{Band, Formula, Measures};
 use crate::theory::{RateKey, RateRow, Rates, RegimeReport, TheoryReport};
 use crate::units::{UnitNames, UnitSystem};

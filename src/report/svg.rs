@@ -977,7 +977,7 @@ const MAX_DRAWN_ROWS: usize = 120;
 /// The rows of a fitted (noisy) table as measured points for [`landscape`]: x, U and σ_U in kT,
 /// thinned to at most [`MAX_DRAWN_ROWS`]; None for formulas, families, periodic profiles and exact
 /// tables (whose curve passes through every row).
-pub fn fitted_rows(m: &crate::scenario::Model) -> Option<Vec<ProfilePoint>> {
+pub fn fitted_rows(m: &crate::model::Model) -> Option<Vec<ProfilePoint>> {
     use crate::potential::Potential;
     let crate::potential::AnyPotential::Table(t) = &m.system.potential else {
         return None;
@@ -1004,7 +1004,7 @@ pub fn fitted_rows(m: &crate::scenario::Model) -> Option<Vec<ProfilePoint>> {
 /// titled with the scenario's title (or its file name); `data`, when given, adds measured
 /// points with error bars.
 pub fn landscape(
-    m: &crate::scenario::Model,
+    m: &crate::model::Model,
     l: &crate::landscape::Landscape,
     data: Option<&[ProfilePoint]>,
 ) -> String {
@@ -1402,7 +1402,7 @@ mod tests {
     // picture's energy scale (U − U(reactant))
     #[test]
     fn survey_draws_measured_points_with_error_bars() {
-        let m = crate::scenario::Model::from_text(
+        let m = crate::model::Model::from_text(
             "[particle]\ndiffusion = 1.0\n[potential]\nexpr = \"6*(x^2 - 1)^2\"\ndomain = [-2.0, 2.0]\n[states]\nstart = -1.0\n",
             "w.toml",
             std::path::Path::new("."),

@@ -117,6 +117,37 @@ impl Override {
     }
 }
 
+/// A scenario file with its `--set` overrides as the source of a scan's points: each point is
+/// the file read again with the scanned key (and the point's seed) set after the overrides.
+#[derive(Debug, Clone, Copy)]
+pub struct FileVariants<'a> {
+    /// the scenario file
+    pub file: &'a Path,
+    /// the `--set` overrides, applied first
+    pub base: &'a [Override],
+}
+
+impl crate::scan::Variants for FileVariants<'_> {
+    fn at(
+        &self,
+        key: &str,
+        value: f64,
+        seed: Option<u64>,
+    ) -> Result<Model, crate::scan::ScanError> {
+        let study = |e: ScenarioError| crate::scan::ScanError::Study(Box::new(e));
+        let mut o = self.base.to_vec();
+        o.push(Override::parse(&format!("{key}={value:?}")).map_err(study)?);
+        if let Some(seed) = seed {
+            o.push(Override::parse(&format!("simulation.seed={seed}")).map_err(study)?);
+        }
+        Model::load(self.file, &o).map_err(study)
+    }
+
+    fn source(&self) -> String {
+        self.file.display().to_string()
+    }
+}
+
 impl Model {
     /// Reads, overrides and validates a scenario file.
     ///
