@@ -3,6 +3,7 @@
 //! `--all-columns` shows every rate. Headings are short, carry units and wrap only at spaces.
 //! Common practice, no source.
 
+use escapade::theory::catalogue::CATALOGUE;
 use std::path::Path;
 
 mod common;
@@ -75,18 +76,13 @@ fn holding(file: &Path, set: &str) -> Vec<String> {
 }
 
 /// The heading of each rate column (reduced units: rates per τ).
-const HEADINGS: [(&str, &str); 10] = [
-    ("tst", "TST (1/τ)"),
-    ("tst_exact", "exact TST (1/τ)"),
-    ("kramers", "Kramers (1/τ)"),
-    ("smoluchowski", "Smoluchowski (1/τ)"),
-    ("energy_diffusion", "energy diffusion (1/τ)"),
-    ("turnover", "turnover (1/τ)"),
-    ("pgh", "PGH (1/τ)"),
-    ("mfpt", "1/MFPT (1/τ)"),
-    ("grote_hynes", "Grote-Hynes (1/τ)"),
-    ("well_to_well", "well to well (1/τ)"),
-];
+/// (JSON key, scan-table heading in reduced units) of every rate formula, from the catalogue.
+fn headings() -> Vec<(&'static str, String)> {
+    CATALOGUE
+        .iter()
+        .map(|f| (f.key.as_str(), format!("{} (1/τ)", f.heading)))
+        .collect()
+}
 
 fn is_number(s: &str) -> bool {
     s.parse::<f64>().is_ok()
@@ -126,12 +122,12 @@ fn the_friction_scan_table_fits_100_columns() {
         .map(|v| holding(&f, &format!("particle.friction={v}")))
         .collect();
     let mut want = vec!["γ (1/τ)".to_string()];
-    let shown: Vec<&str> = HEADINGS
-        .iter()
+    let shown: Vec<&str> = headings()
+        .into_iter()
         .filter(|(k, _)| holds.iter().any(|h| h.iter().any(|x| x == k)))
         .map(|(k, h)| {
-            want.push(h.to_string());
-            *k
+            want.push(h);
+            k
         })
         .collect();
     want.push("sim. (1/τ)".into());
@@ -172,7 +168,7 @@ fn the_friction_scan_table_fits_100_columns() {
     all.push("--all-columns");
     let text = run(&all);
     let (head, _, _) = first_table(&text);
-    for (_, h) in HEADINGS.iter().filter(|(k, _)| *k != "grote_hynes") {
+    for (_, h) in headings().iter().filter(|(k, _)| *k != "grote_hynes") {
         assert!(head.iter().any(|x| x == h), "{h} missing: {head:?}");
     }
     assert!(head.iter().any(|x| x == "regime"));
@@ -200,7 +196,9 @@ fn a_temperature_scan_table_fits_100_columns() {
     assert_eq!(rows.len(), 7);
     for h in &head[1..] {
         assert!(
-            HEADINGS.iter().any(|(_, x)| *x == h.replace("1/ps", "1/τ")),
+            headings()
+                .iter()
+                .any(|(_, x)| *x == h.replace("1/ps", "1/τ")),
             "{h}"
         );
     }

@@ -85,21 +85,16 @@ fn zero_sigma_collapses_every_interval() {
     let m = quartic(0.0);
     let r = run(&m, 40, None, 3);
     assert_eq!(r.failed, 0);
+    // an interval for every rate the central analysis gives, in catalogue order
+    let central = escapade::theory::analyse(&m.system).unwrap();
+    let want: Vec<&str> = escapade::theory::catalogue::CATALOGUE
+        .iter()
+        .filter(|f| central.rates.get(f.key).is_some())
+        .map(|f| f.key.as_str())
+        .collect();
     let keys: Vec<&str> = r.rates.iter().map(|i| i.key).collect();
-    assert_eq!(
-        keys,
-        [
-            "tst",
-            "tst_exact",
-            "kramers",
-            "smoluchowski",
-            "energy_diffusion",
-            "turnover",
-            "pgh",
-            "mfpt",
-            "well_to_well"
-        ]
-    );
+    assert_eq!(keys, want);
+    assert!(keys.contains(&"mfpt") && keys.contains(&"pgh"));
     for i in r.rates.iter().chain([&r.barrier]) {
         assert!(collapsed(i, 1e-12), "{i:?}");
     }
