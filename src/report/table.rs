@@ -1159,9 +1159,19 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             "rates with an interval: 95% interval from the profile's sigma_U"
         );
     }
+    scan_legend(&mut out, &sims, hidden, formulas.is_empty() && !all);
+    scan_fits(&mut out, r, &u);
+    for n in &r.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
+    out
+}
+
+/// What the scan table's marks mean: the simulation methods used, hidden rates, no rate holding.
+fn scan_legend(out: &mut String, sims: &[&crate::scan::SimPoint], hidden: bool, none_hold: bool) {
     if !sims.is_empty() {
         let mut methods: Vec<(&str, usize)> = Vec::new();
-        for s in &sims {
+        for s in sims {
             match methods.iter_mut().find(|(m, _)| *m == s.method) {
                 Some(e) => e.1 += 1,
                 None => methods.push((s.method, 1)),
@@ -1182,12 +1192,16 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
             out,
             "—: the formula does not hold at that point (--all-columns shows every rate everywhere)"
         );
-    } else if formulas.is_empty() && !all {
+    } else if none_hold {
         let _ = writeln!(
             out,
             "no rate formula holds at any point of this scan (--all-columns shows them all)"
         );
     }
+}
+
+/// The fits of a scan (apparent activation energy, or distance to the barrier), as a table.
+fn scan_fits(out: &mut String, r: &crate::scan::ScanReport, u: &U) {
     if !r.fits.is_empty() {
         let (what, unit, pre) = match r.kind {
             crate::scan::Kind::Temperature => ("apparent E_a", u.e.to_string(), "prefactor A"),
@@ -1214,10 +1228,6 @@ pub fn scan(r: &crate::scan::ScanReport, all: bool) -> String {
                 ),
             ]);
         }
-        show(&mut out, f);
+        show(out, f);
     }
-    for n in &r.notes {
-        let _ = writeln!(out, "note: {n}");
-    }
-    out
 }
