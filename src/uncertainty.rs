@@ -6,7 +6,7 @@
 //! white noise smoothed over a correlation length ℓ and normalised so that every knot keeps its own
 //! marginal standard deviation σ_i exactly (Var δU_i = σ_i² Σ_j w_ij²/Σ_j w_ij² = σ_i²). For ℓ
 //! well above the spacing the correlation between knots a distance r apart is ≈ exp(−r²/(4ℓ²)).
-//! Draw k takes its ξ from `engine::stream(seed, k)`; draws run in parallel (rayon) and are
+//! Draw k takes its ξ from `seed::stream(seed, k)`; draws run in parallel (rayon) and are
 //! collected in draw order, so a report depends on the seed only, never on the thread count. Default
 //! ℓ = the median knot spacing (neighbouring rows of a free-energy profile are correlated because
 //! the same samples feed them); ℓ = 0 makes the knots independent. The kernel is cut at
@@ -115,7 +115,7 @@ pub struct UncertaintyOptions {
     pub draws: usize,
     /// ℓ in the scenario's length unit; `None` = the median knot spacing, 0 = independent knots
     pub correlation_length: Option<f64>,
-    /// master seed; draw k uses `engine::stream(seed, k)`
+    /// master seed; draw k uses `seed::stream(seed, k)`
     pub seed: u64,
 }
 

@@ -217,7 +217,7 @@ fn analytic_shift_of_ln_mfpt_rate() {
     assert!(d.prefactor_share.unwrap() < 0.05);
 }
 
-// Determinism: draw k uses engine::stream(seed, k) and results are collected in draw order, so the
+// Determinism: draw k uses seed::stream(seed, k) and results are collected in draw order, so the
 // report is identical for any thread count (the project's reproducibility rule, DEVELOPERS.md).
 #[test]
 fn same_seed_same_report_for_one_and_two_threads() {

@@ -34,6 +34,7 @@
 //! first step that reaches it.
 
 use super::force::{Force, Mobility};
+use crate::seed::stream;
 use crate::stats::Outcome;
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -52,8 +53,6 @@ pub const LANES: usize = 8;
 /// Steps per lock-step block (Gaussians are drawn a block at a time; the stop flag is polled once
 /// per block).
 const BLOCK: usize = 64;
-
-pub use crate::seed::{splitmix64, stream};
 
 /// Which integrator.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -148,7 +148,7 @@ pub fn run<F: Force, M: Mobility>(
     let rows: Vec<Row> = (0..n)
         .into_par_iter()
         .map(|j| {
-            let mut rng = engine::stream(seed, j);
+            let mut rng = seed::stream(seed, j);
             let mut s = State::fresh(&p, force, x_a, &mut rng);
             let mut cur: i64 = 0;
             let (mut up, mut down) = (site(1), site(-1));

@@ -458,7 +458,6 @@ fn fingerprint(system: &System, p: &Params, n: u64) -> u64 {
 mod tests {
     use super::*;
     use crate::potential::{AnyPotential, Family, Potential};
-    use crate::simulate::engine;
 
     // Thermal starts follow exp(−U/kT) on the reactant side: the mean and variance of 20 000 draws
     // match the Boltzmann moments (computed here by a fine trapezoid sum, common practice, no
@@ -475,7 +474,7 @@ mod tests {
         let n = 20_000;
         let mut xs = Vec::with_capacity(n);
         for i in 0..n as u64 {
-            xs.push(start.draw_for_test(&mut engine::stream(3, i)));
+            xs.push(start.draw_for_test(&mut crate::seed::stream(3, i)));
         }
         let mean = xs.iter().sum::<f64>() / n as f64;
         let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64;

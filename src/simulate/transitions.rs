@@ -177,7 +177,7 @@ pub fn run<F: Force, M: Mobility>(
     let rows: Vec<(u64, u64, u64, u64)> = (0..n)
         .into_par_iter()
         .map(|j| {
-            let mut rng = engine::stream(seed, j);
+            let mut rng = seed::stream(seed, j);
             let mut s = State::fresh(p, force, l.reactant, &mut rng);
             let (mut fwd, mut back, mut in_a, mut in_b) = (0u64, 0u64, 0u64, 0u64);
             let mut last_a = true;

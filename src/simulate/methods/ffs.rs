@@ -257,7 +257,7 @@ pub fn run<F: Force, M: Mobility>(
         let basin: Vec<(Vec<State>, u64)> = (0..BASIN_WALKERS as u64)
             .into_par_iter()
             .map(|w| {
-                let mut rng = engine::stream(t0, w);
+                let mut rng = seed::stream(t0, w);
                 engine::run_basin(
                     p,
                     &c,
@@ -289,7 +289,7 @@ pub fn run<F: Force, M: Mobility>(
             let results: Vec<(Option<State>, u64, bool)> = (0..trials)
                 .into_par_iter()
                 .map(|j| {
-                    let mut rng = engine::stream(ti, j);
+                    let mut rng = seed::stream(ti, j);
                     let mut s = from[rng.random_range(0..from.len())];
                     let (exit, n) = engine::run_between(
                         p,

@@ -161,7 +161,7 @@ pub fn run<F: Force, M: Mobility>(
             if stop.load(Ordering::Relaxed) {
                 return (j % 2 == 0, Vec::new());
             }
-            let mut rng = engine::stream(seed, j);
+            let mut rng = seed::stream(seed, j);
             let forward = j % 2 == 0;
             let u: f64 = rng.random();
             // Rayleigh speed for kT = 1: |v| = sqrt(-2 ln(1-u) / m)
