@@ -24,6 +24,8 @@ use std::path::{Path, PathBuf};
 
 /// Samples per chunk handed to the accumulators.
 pub const CHUNK: usize = 4096;
+/// The chunk buffer never reserves more than this many samples up front.
+const CHUNK_CAP: usize = 1 << 16;
 /// Allowed relative deviation of a time interval from the first one.
 pub const TIME_TOL: f64 = 0.01;
 /// A trajectory needs at least this many samples (one interval).
@@ -167,7 +169,7 @@ pub fn stream<S: Sink + ?Sized>(
     chunk: usize,
     sink: &mut S,
 ) -> Result<FileInfo, ObserveError> {
-    let mut buf = Vec::with_capacity(chunk);
+    let mut buf = Vec::with_capacity(chunk.min(CHUNK_CAP));
     let (name, clock) = match source {
         Source::Samples { name, values, dt } => {
             let mut clock = Clock::new(Some(*dt));
