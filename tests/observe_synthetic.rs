@@ -34,12 +34,12 @@ fn well() -> Family {
 fn trajectory(index: u64) -> Vec<f64> {
     let mut rng = seed::stream(2024, index);
     let s = (2.0 * DT).sqrt();
-    let mut x = if index % 2 == 0 { -1.0 } else { 1.0 };
+    let mut x = if index.is_multiple_of(2) { -1.0 } else { 1.0 };
     let mut out = Vec::with_capacity((STEPS / EVERY) as usize);
     for k in 1..=STEPS {
         let f = -4.0 * EB * x * (x * x - 1.0);
         x += f * DT + s * rng.sample::<f64, _>(StandardNormal);
-        if k % EVERY == 0 {
+        if k.is_multiple_of(EVERY) {
             out.push(x);
         }
     }
@@ -93,7 +93,10 @@ fn observed_rate_matches_exact_mfpt_rate() {
             "{est} ± {se} vs exact {exact}"
         );
         // the exact rate also lies inside the reported 95% interval widened by the same 3% bias
-        assert!(ci[0] < exact * 1.03 && exact < ci[1] * 1.03, "{ci:?} vs {exact}");
+        assert!(
+            ci[0] < exact * 1.03 && exact < ci[1] * 1.03,
+            "{ci:?} vs {exact}"
+        );
     }
     // exponential dwell times for a Markovian crossing: CV = 1 with standard error ~1/sqrt(n)
     // (for an exponential, var of the sample sd/mean ≈ 1/n; common practice, no source); 4 of them

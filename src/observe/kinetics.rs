@@ -16,8 +16,9 @@
 //! Kolmogorov–Smirnov distance to the exponential of the same mean ([`crate::stats`]).
 //!
 //! Automatic cores: around the deepest bin of U and the deepest other local minimum (lowest U
-//! among bins no higher than their two neighbours on each side) separated from it by a barrier of
-//! at least [`MIN_SEPARATION_KT`]; each core is the run of contiguous bins around its minimum
+//! among bins no higher than their two neighbours on each side) lying at least
+//! [`MIN_SEPARATION_KT`] below the highest observed bin between the two, after subtracting twice
+//! their combined σ_U (so that a noisy, sparsely visited tail bin is no minimum); each core is the run of contiguous bins around its minimum
 //! within [`CORE_DEPTH_KT`] of it (it cannot cross the barrier, which is higher). A is the core at
 //! smaller x. Boundary dependence: the rates are recomputed with both cores grown and shrunk at
 //! each edge by [`BOUNDARY_FRACTION`] of the gap between them (shrinking by at most a quarter of
@@ -113,21 +114,20 @@ pub fn auto_cores(fe: &FreeEnergy) -> Result<[Interval; 2], ObserveError> {
     let g = (0..b.len())
         .min_by(|&i, &j| b[i].u.total_cmp(&b[j].u))
         .expect("bins checked above");
-    let barrier = |i: usize, j: usize| {
-        let (l, r) = (i.min(j), i.max(j));
-        if (l..r).all(joined) {
-            b[l..=r]
-                .iter()
-                .map(|x| x.u)
-                .fold(f64::NEG_INFINITY, f64::max)
-        } else {
-            f64::INFINITY
-        }
+    let sigma = |i: usize| b[i].sigma_u.unwrap_or(0.0);
+    // depth of minimum j below the highest observed bin between it and g, less 2 combined σ_U
+    // (an unobserved gap is no evidence of a barrier)
+    let depth = |j: usize| {
+        let (l, r) = (g.min(j), g.max(j));
+        let top = (l..=r)
+            .max_by(|&p, &q| b[p].u.total_cmp(&b[q].u))
+            .expect("non-empty range");
+        b[top].u - b[j].u - 2.0 * sigma(top).hypot(sigma(j))
     };
     let local_min =
         |j: usize| (j.saturating_sub(2)..=(j + 2).min(b.len() - 1)).all(|k| b[j].u <= b[k].u);
     let second = (0..b.len())
-        .filter(|&j| j != g && local_min(j) && barrier(g, j) - b[j].u >= MIN_SEPARATION_KT)
+        .filter(|&j| j != g && local_min(j) && depth(j) >= MIN_SEPARATION_KT)
         .min_by(|&i, &j| b[i].u.total_cmp(&b[j].u))
         .ok_or_else(|| {
             err(format!(
