@@ -172,6 +172,12 @@ pub fn stream<S: Sink + ?Sized>(
     let mut buf = Vec::with_capacity(chunk.min(CHUNK_CAP));
     let (name, clock) = match source {
         Source::Samples { name, values, dt } => {
+            if !(dt.is_finite() && *dt > 0.0) {
+                return Err(ObserveError::File {
+                    file: name.clone(),
+                    message: format!("the sampling interval must be positive, not {dt}"),
+                });
+            }
             let mut clock = Clock::new(Some(*dt));
             for (i, &x) in values.iter().enumerate() {
                 if !x.is_finite() {
