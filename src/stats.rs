@@ -83,6 +83,27 @@ pub fn kolmogorov_q(lambda: f64) -> f64 {
     (2.0 * s).clamp(0.0, 1.0)
 }
 
+/// The Kolmogorov–Smirnov distance of `n` sorted samples from a continuous distribution;
+/// `cdf(i)` is its CDF at the i-th smallest sample.
+pub fn ks_distance(n: usize, cdf: impl Fn(usize) -> f64) -> f64 {
+    let nf = n as f64;
+    let mut d: f64 = 0.0;
+    for i in 0..n {
+        let f = cdf(i);
+        let lo_e = i as f64 / nf;
+        let hi_e = (i + 1) as f64 / nf;
+        d = d.max((f - lo_e).abs()).max((hi_e - f).abs());
+    }
+    d
+}
+
+/// The asymptotic p-value of KS distance `d` from `n` samples, with Stephens' correction (see the
+/// module comment).
+pub fn ks_p_value(d: f64, n: u64) -> f64 {
+    let sn = (n as f64).sqrt();
+    kolmogorov_q((sn + 0.12 + 0.11 / sn) * d)
+}
+
 /// The 95% interval [χ²_{2n}(0.025), χ²_{2n+2}(0.975)] / (2 T) of a Poisson rate with `n` events
 /// in exposure `exposure` (Garwood's limits; see the module comment).
 pub fn poisson_interval(n: u64, exposure: f64) -> [f64; 2] {
@@ -149,16 +170,9 @@ pub fn summarise(outcomes: &[Outcome], dt: f64, max_steps: u64) -> Summary {
         } else {
             1.0
         };
-        let mut d: f64 = 0.0;
-        for (i, &s) in esc.iter().enumerate() {
-            let f = -(-rate * s as f64 * dt).exp_m1() / norm;
-            let lo_e = i as f64 / nf;
-            let hi_e = (i + 1) as f64 / nf;
-            d = d.max((f - lo_e).abs()).max((hi_e - f).abs());
-        }
+        let d = ks_distance(esc.len(), |i| -(-rate * esc[i] as f64 * dt).exp_m1() / norm);
         ksd = Some(d);
-        let sn = nf.sqrt();
-        ksp = Some(kolmogorov_q((sn + 0.12 + 0.11 / sn) * d));
+        ksp = Some(ks_p_value(d, n));
     }
     let censored = n_all - n;
     let mut warnings = Vec::new();

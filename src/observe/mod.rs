@@ -1,0 +1,272 @@
+//! Observed trajectories: what a user's own time series of one coordinate says about the
+//! landscape and the kinetics, without a model.
+//!
+//! The module owns reading trajectory files ([`read`]: plain-text columns and NumPy `.npy`),
+//! the streamed accumulators fed from them, the integrated autocorrelation time
+//! ([`correlation`]), the Boltzmann-inverted free energy with its block-bootstrap σ_U
+//! ([`free_energy`]) and the core-to-core kinetics ([`kinetics`]). Everything is streamed: each
+//! pass reads every file once and feeds fixed-size accumulators, so memory does not grow with the
+//! length of a trajectory.
+//!
+//! [`analyse`] makes three passes over the sources:
+//! 1. moments, range and the multiple-tau autocorrelation of the position (→ τ_int);
+//! 2. the histogram, kept per block of ≥ [`free_energy::BLOCK_TAU`] τ_int samples (→ U, σ_U);
+//! 3. the transition counters for the cores (given, or placed from U) and their shrunk and grown
+//!    variants.
+//!
+//! Units: positions and times are taken as they are in the files (the caller converts to the
+//! scenario's units); energies are in kT.
+
+pub mod correlation;
+pub mod free_energy;
+pub mod kinetics;
+pub mod read;
+
+use serde::Serialize;
+use thiserror::Error;
+
+pub use free_energy::{FreeEnergy, write_profile};
+pub use kinetics::{Interval, Kinetics};
+pub use read::{ColumnRef, Columns, FileInfo, Source};
+
+/// An error in reading or analysing observed trajectories; every message names its file (and the
+/// line or row) or the option at fault.
+#[derive(Debug, Error)]
+pub enum ObserveError {
+    /// The file could not be opened or read.
+    #[error("{file}: cannot read: {message}")]
+    Io {
+        /// the file
+        file: String,
+        /// the system's message
+        message: String,
+    },
+    /// A problem at one place of a file (a line of a text file, a row of a .npy array).
+    #[error("{file}: {place}: {message}")]
+    At {
+        /// the file
+        file: String,
+        /// "line 12" or "row 12"
+        place: String,
+        /// what is wrong
+        message: String,
+    },
+    /// A problem with a file as a whole (its header, its length).
+    #[error("{file}: {message}")]
+    File {
+        /// the file
+        file: String,
+        /// what is wrong
+        message: String,
+    },
+    /// An inconsistent or impossible option.
+    #[error("{option}: {message}")]
+    Option {
+        /// the option's name
+        option: &'static str,
+        /// what is wrong
+        message: String,
+    },
+}
+
+/// A consumer of the samples of one trajectory after another, fed in chunks. Accumulators process
+/// sample by sample, so their state never depends on how the chunks are cut.
+pub trait Sink {
+    /// The next samples of the current trajectory.
+    fn feed(&mut self, xs: &[f64]);
+    /// The current trajectory ended; `dt` is its sampling interval.
+    fn end(&mut self, dt: f64);
+}
+
+impl<A: Sink, B: Sink> Sink for (A, B) {
+    fn feed(&mut self, xs: &[f64]) {
+        self.0.feed(xs);
+        self.1.feed(xs);
+    }
+    fn end(&mut self, dt: f64) {
+        self.0.end(dt);
+        self.1.end(dt);
+    }
+}
+
+impl<S: Sink> Sink for [S] {
+    fn feed(&mut self, xs: &[f64]) {
+        for s in self.iter_mut() {
+            s.feed(xs);
+        }
+    }
+    fn end(&mut self, dt: f64) {
+        for s in self.iter_mut() {
+            s.end(dt);
+        }
+    }
+}
+
+/// Default number of bootstrap resamples: the Monte Carlo error of a standard deviation from B
+/// resamples is about 1/sqrt(2B), 5% at 200.
+pub const DEFAULT_RESAMPLES: usize = 200;
+
+/// What to read and how to analyse it.
+#[derive(Debug, Clone)]
+pub struct Options {
+    /// which columns hold the position and the time
+    pub columns: Columns,
+    /// a fixed sampling interval (when the files have no time column)
+    pub dt: Option<f64>,
+    /// histogram bin width (default: Scott's rule, see [`free_energy::binning`])
+    pub bin_width: Option<f64>,
+    /// the cores [A, B] (default: placed around the two deepest minima of U)
+    pub cores: Option<[Interval; 2]>,
+    /// seed of the bootstrap
+    pub seed: u64,
+    /// bootstrap resamples
+    pub resamples: usize,
+    /// samples per chunk handed to the accumulators (results do not depend on it)
+    pub chunk: usize,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Self {
+            columns: Columns::default(),
+            dt: None,
+            bin_width: None,
+            cores: None,
+            seed: 1,
+            resamples: DEFAULT_RESAMPLES,
+            chunk: read::CHUNK,
+        }
+    }
+}
+
+/// Fewer samples than this over all trajectories is an error: no histogram or correlation time
+/// can be estimated from them.
+pub const MIN_SAMPLES: u64 = 100;
+
+/// The position's summary over all trajectories.
+#[derive(Debug, Clone, Serialize)]
+pub struct PositionSummary {
+    /// smallest position
+    pub min: f64,
+    /// largest position
+    pub max: f64,
+    /// mean
+    pub mean: f64,
+    /// standard deviation
+    pub sd: f64,
+}
+
+/// Everything the trajectories say, in the files' length and time units (energies in kT).
+#[derive(Debug, Clone, Serialize)]
+pub struct ObservedReport {
+    /// the trajectories read
+    pub trajectories: Vec<FileInfo>,
+    /// samples over all trajectories
+    pub samples: u64,
+    /// total observed time
+    pub total_time: f64,
+    /// position summary
+    pub position: PositionSummary,
+    /// integrated autocorrelation time of the position
+    pub correlation: correlation::Autocorrelation,
+    /// U(x) = −ln p(x) with σ_U
+    pub free_energy: FreeEnergy,
+    /// core-to-core kinetics
+    pub kinetics: Kinetics,
+    /// everything the user should know (also repeated in the parts)
+    pub warnings: Vec<String>,
+}
+
+/// One pass over all sources into `sink`, returning what was read of each.
+fn pass<S: Sink + ?Sized>(
+    sources: &[Source],
+    opts: &Options,
+    sink: &mut S,
+) -> Result<Vec<FileInfo>, ObserveError> {
+    sources
+        .iter()
+        .map(|s| read::stream(s, &opts.columns, opts.dt, opts.chunk.max(1), sink))
+        .collect()
+}
+
+/// Analyses the trajectories `sources`: three streamed passes (see the module comment).
+///
+/// # Errors
+/// A file that cannot be read or holds a bad value (see [`ObserveError`]), fewer than
+/// [`MIN_SAMPLES`] samples in all, bad options, or no two free-energy minima to place the cores.
+pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, ObserveError> {
+    if sources.is_empty() {
+        return Err(ObserveError::Option {
+            option: "trajectories",
+            message: "no trajectory given".into(),
+        });
+    }
+    if let Some(dt) = opts.dt
+        && !(dt.is_finite() && dt > 0.0)
+    {
+        return Err(ObserveError::Option {
+            option: "dt",
+            message: format!("the sampling interval must be positive, not {dt}"),
+        });
+    }
+    // pass 1: moments and autocorrelation
+    let mut first = (
+        correlation::Moments::default(),
+        correlation::Correlator::new(),
+    );
+    let infos = pass(sources, opts, &mut first)?;
+    let (moments, corr) = first;
+    let samples = moments.count();
+    if samples < MIN_SAMPLES {
+        return Err(ObserveError::File {
+            file: infos
+                .iter()
+                .map(|i| i.name.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
+            message: format!(
+                "{samples} samples in all; at least {MIN_SAMPLES} are needed for a histogram and a correlation time"
+            ),
+        });
+    }
+    let mut warnings = Vec::new();
+    let correlation = corr.autocorrelation();
+    if !correlation.converged {
+        warnings.push(format!(
+            "the autocorrelation window did not close (τ_int ≥ {:.3e} samples): the trajectories are shorter than about {} τ_int, so σ_U and the correlation time are lower bounds",
+            correlation.tau_int,
+            correlation::SOKAL_C
+        ));
+    }
+    // pass 2: block histogram
+    let binning = free_energy::binning(&moments, opts.bin_width)?;
+    let block = free_energy::block_length(samples, correlation.tau_int);
+    let mut hist = free_energy::BlockHistogram::new(binning, block);
+    pass(sources, opts, &mut hist)?;
+    let free_energy = free_energy::free_energy(&hist, &correlation, opts.resamples, opts.seed);
+    warnings.extend(free_energy.notes.iter().cloned());
+    // pass 3: kinetics
+    let cores = match opts.cores {
+        Some(c) => kinetics::check_cores(c)?,
+        None => kinetics::auto_cores(&free_energy)?,
+    };
+    let variants = kinetics::variants(cores);
+    let mut counters: Vec<kinetics::Counter> = variants
+        .iter()
+        .map(|&c| kinetics::Counter::new(c))
+        .collect();
+    pass(sources, opts, counters.as_mut_slice())?;
+    let kinetics = kinetics::Kinetics::new(&counters, opts.cores.is_some());
+    warnings.extend(kinetics.warnings.iter().cloned());
+    let total_time = infos.iter().map(|i| i.duration).sum();
+    Ok(ObservedReport {
+        samples,
+        total_time,
+        position: moments.summary(),
+        trajectories: infos,
+        correlation,
+        free_energy,
+        kinetics,
+        warnings,
+    })
+}
