@@ -16,6 +16,8 @@ pub const TRANSITIONS: u64 = 0x7e11_0000_0000_0002;
 pub const PERIODIC: u64 = 0x9e71_0d1c_0000_0003;
 /// Salt of forward flux sampling stages (mixed with the replica and stage).
 pub const FFS: u64 = 0xFF5_0000;
+/// Salt of the block bootstrap of observed trajectories (free-energy σ_U).
+pub const OBSERVED_BOOTSTRAP: u64 = 0xb007_5742_0000_0005;
 /// Seed of the smoothing fit's fixed probe vectors (the fit must not depend on any user seed).
 pub const PROBES: u64 = 0x05ee_df17;
 /// Multiplier spreading scan point indices before mixing them into the master seed.

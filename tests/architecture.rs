@@ -16,7 +16,7 @@ const LAYERS: &[&[&str]] = &[
     &["potential"],
     &["landscape", "system"],
     &["theory"],
-    &["simulate", "uncertainty"],
+    &["simulate", "uncertainty", "observe"],
     &["model"],
     &["scan"],
     &["report", "scenario"],

@@ -37,8 +37,6 @@ pub const MIN_BINS: usize = 20;
 pub const MAX_BINS: usize = 500;
 /// Most bins with a given width.
 pub const MAX_USER_BINS: usize = 5000;
-/// Salt of the bootstrap streams.
-pub const BOOTSTRAP_SALT: u64 = 0xb007_5742_0000_0005;
 
 /// The histogram grid.
 #[derive(Debug, Clone, Copy)]
@@ -243,7 +241,7 @@ pub fn free_energy(
     let blocks = hist.blocks();
     let mut notes = Vec::new();
     // per-bin Σ u*, Σ u*², valid resamples; each resample from its own stream, summed in order
-    let master = seed::derive(seed, BOOTSTRAP_SALT);
+    let master = seed::derive(seed, seed::OBSERVED_BOOTSTRAP);
     let draws: Vec<Vec<f64>> = if blocks >= 2 {
         (0..resamples as u64)
             .into_par_iter()
