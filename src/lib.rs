@@ -13,6 +13,7 @@
 pub mod fit;
 pub mod landscape;
 pub mod model;
+pub mod observe;
 pub mod potential;
 pub mod quad;
 pub mod report;
