@@ -12,9 +12,9 @@
 //! symmetric: S_{i,i±1} = D_{i±1/2}/Δx², S_{ii} = R_{ii}. With S = V Λ Vᵀ,
 //! P(Δt) = exp(R Δt) = e^{−F/2} V e^{ΛΔt} Vᵀ e^{F/2}. The log-likelihood of the transition counts
 //! N_{ij} (from bin j to bin i after the lag Δt) is ln L = Σ N_{ij} ln P_{ij}(Δt).
-//! (The equation numbers of the two papers could not be checked here; the forms above are those of
-//! Hummer 2005, Sec. 2, and are checked in the tests: detailed balance, columns of P summing to
-//! one, and the free-diffusion limit.)
+//! (The papers' equation numbers could not be checked here; the forms above are Hummer's as
+//! recalled, and the unit tests check detailed balance, columns of P summing to one and the
+//! free-diffusion limit.)
 //!
 //! Estimation: the posterior mode of (F_i, ln D_{i+1/2}) under a flat prior on F and ln D and a
 //! smoothness prior on ln D — independent Gaussians of width `prior_width` on the differences
