@@ -4,7 +4,9 @@
 //! The module owns reading trajectory files ([`read`]: plain-text columns and NumPy `.npy`),
 //! the streamed accumulators fed from them, the integrated autocorrelation time
 //! ([`correlation`]), the Boltzmann-inverted free energy with its block-bootstrap σ_U
-//! ([`free_energy`]) and the core-to-core kinetics ([`kinetics`]). Everything is streamed: each
+//! ([`free_energy`]), the core-to-core kinetics ([`kinetics`]), position-dependent diffusion by
+//! the Bayesian propagator method and conditional moments ([`propagator`]), and D from umbrella
+//! windows ([`umbrella`]). Reading and the first three are streamed: each
 //! pass reads every file once and feeds fixed-size accumulators, so memory does not grow with the
 //! length of a trajectory.
 //!
@@ -20,7 +22,9 @@
 pub mod correlation;
 pub mod free_energy;
 pub mod kinetics;
+pub mod propagator;
 pub mod read;
+pub mod umbrella;
 
 use serde::Serialize;
 use thiserror::Error;
