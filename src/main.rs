@@ -553,16 +553,25 @@ fn scenario_for_profile(
     let mut states = toml::Table::new();
     states.insert("start".into(), start.into());
     doc.insert("states".into(), states.into());
-    let body = toml::to_string(&doc).map_err(|e| Failure {
-        message: format!("cannot write the scenario: {e}"),
-        code: 1,
-    })?;
+    // sections in the order a person writes them
+    let mut body = String::new();
+    for name in ["units", "particle", "potential", "states"] {
+        if let Some(section) = doc.remove(name) {
+            let one = toml::Table::from_iter([(name.to_string(), section)]);
+            let text = toml::to_string(&one).map_err(|e| Failure {
+                message: format!("cannot write the scenario: {e}"),
+                code: 1,
+            })?;
+            body.push_str(&text);
+            body.push('\n');
+        }
+    }
     let head = format!(
         "# written by `escapade observe`: the free energy of observed trajectories ({}); start = centre of core A\n",
         profile.display()
     );
     let tail = if note.is_some() {
-        "\n[particle]\n# diffusion = ...   # not known from the trajectories: fill in\n"
+        "[particle]\n# diffusion = ...   # not known from the trajectories: fill in\n"
     } else {
         ""
     };
