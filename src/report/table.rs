@@ -1241,12 +1241,15 @@ pub fn observe(r: &super::observe::ObserveReport) -> String {
         Some(s) => {
             let _ = writeln!(
                 out,
-                "observed trajectories · units of scenario {s}: positions in {}, times in {}, energies in {} (kT = {} {})",
+                "observed trajectories · units of scenario {s}: positions in {}, times in {}, energies in {}{}",
                 u.l,
                 u.t,
                 u.e,
-                num(r.kt),
-                u.e
+                if u.e == "kT" {
+                    String::new()
+                } else {
+                    format!(" (kT = {} {})", num(r.kt), u.e)
+                }
             );
         }
         None => {
