@@ -43,6 +43,50 @@ pub struct SimOpts {
     pub shard: Option<String>,
 }
 
+/// Options of `observe`.
+#[derive(Debug, Args, Clone)]
+pub struct ObserveOpts {
+    /// trajectory files: text columns (comma or whitespace, `#` comments) or NumPy .npy;
+    /// several files are several independent trajectories
+    #[arg(required = true, value_name = "TRAJ")]
+    pub files: Vec<PathBuf>,
+    /// a scenario whose units the files are in (positions in its length unit, times in its
+    /// time unit; the profile's energies in its energy unit); without one, reduced units (kT = 1)
+    #[arg(long, value_name = "FILE.toml")]
+    pub scenario: Option<PathBuf>,
+    /// sampling interval, for files without a time column
+    #[arg(long, value_name = "T")]
+    pub dt: Option<f64>,
+    /// the position column: its number (from 1) or its header name
+    #[arg(long, value_name = "COL")]
+    pub position: Option<String>,
+    /// the time column: its number (from 1) or its header name
+    #[arg(long, value_name = "COL")]
+    pub time: Option<String>,
+    /// the two cores (position intervals), e.g. --cores=-1.3:-0.7,0.7:1.3 (default: around the
+    /// two deepest minima of the observed U)
+    #[arg(long, value_name = "LO:HI,LO:HI", allow_hyphen_values = true)]
+    pub cores: Option<String>,
+    /// histogram bin width (default: Scott's rule)
+    #[arg(long, value_name = "W")]
+    pub bin_width: Option<f64>,
+    /// write the free energy as a profile table (x, U, sigma_U) that scenarios read
+    #[arg(long, value_name = "FILE.csv")]
+    pub profile: Option<PathBuf>,
+    /// also write a scenario that reads that table ([units] and [particle] from --scenario)
+    #[arg(long, value_name = "FILE.toml", requires = "profile")]
+    pub scenario_out: Option<PathBuf>,
+    /// seed of the bootstrap
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// bootstrap resamples for σ_U
+    #[arg(long, value_name = "B", default_value_t = escapade::observe::DEFAULT_RESAMPLES)]
+    pub resamples: usize,
+    /// Print one JSON object on stdout instead of tables.
+    #[arg(long)]
+    pub json: bool,
+}
+
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -133,6 +177,9 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         output: Option<PathBuf>,
     },
+    /// Your own trajectories of one coordinate: free energy U(x) with σ_U, and the rates between
+    /// two cores with intervals (no model needed).
+    Observe(ObserveOpts),
     /// `compare` on an embedded invented scenario where the friction regime matters.
     Demo {
         #[command(flatten)]

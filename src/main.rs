@@ -5,7 +5,9 @@
 mod cli;
 
 use clap::Parser;
-use cli::{Cli, Command, Common, SimOpts};
+use cli::{Cli, Command, Common, ObserveOpts, SimOpts};
+use escapade::observe::{self, ColumnRef, Interval, ObserveError, Source};
+use escapade::report::observe::ObserveReport;
 use escapade::report::{
     CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table,
 };
@@ -221,6 +223,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             json: as_json,
             output,
         } => merge_cmd(&files, as_json, output.as_deref()),
+        Command::Observe(o) => observe_cmd(&o),
     }
 }
 
@@ -452,6 +455,171 @@ fn merge_cmd(files: &[PathBuf], as_json: bool, output: Option<&Path>) -> Result<
         json::render(&r)
     } else {
         table::merge(&r)
+    })
+}
+
+/// A trajectory column from the command line: a number from 1, or a header name.
+fn column(flag: &str, c: Option<&str>) -> Result<Option<ColumnRef>, Failure> {
+    let Some(c) = c else { return Ok(None) };
+    match c.trim().parse::<usize>() {
+        Ok(0) => Err(Failure::user(format!(
+            "{flag} 0: columns are numbered from 1"
+        ))),
+        Ok(n) => Ok(Some(ColumnRef::Index(n - 1))),
+        Err(_) => Ok(Some(ColumnRef::Name(c.trim().to_string()))),
+    }
+}
+
+/// `--cores LO:HI,LO:HI`.
+fn parse_cores(text: &str) -> Result<[Interval; 2], Failure> {
+    let bad = || {
+        Failure::user(format!(
+            "--cores {text}: expected two intervals LO:HI,LO:HI of numbers, e.g. --cores=-1.3:-0.7,0.7:1.3"
+        ))
+    };
+    let cores: Vec<Interval> = text
+        .split(',')
+        .map(|part| {
+            let (lo, hi) = part.split_once(':').ok_or_else(bad)?;
+            let num = |v: &str| v.trim().parse::<f64>().map_err(|_| bad());
+            Ok(Interval {
+                lo: num(lo)?,
+                hi: num(hi)?,
+            })
+        })
+        .collect::<Result<_, Failure>>()?;
+    <[Interval; 2]>::try_from(cores).map_err(|_| bad())
+}
+
+/// An analysis error as one line; an option's name as the command line spells it.
+fn observe_failure(e: ObserveError) -> Failure {
+    match e {
+        ObserveError::Option { option, message } if option != "trajectories" => {
+            Failure::user(format!("--{}: {message}", option.replace('_', "-")))
+        }
+        e => Failure::user(e.to_string()),
+    }
+}
+
+/// A scenario reading the written profile table: [units] and [particle] as in `scenario` (the
+/// file's own text, so unit strings stay as written), the table, and the reactant at core A.
+fn scenario_for_profile(
+    scenario: Option<&Path>,
+    profile: &Path,
+    out: &Path,
+    start: f64,
+) -> Result<(String, Option<String>), Failure> {
+    let mut doc = toml::Table::new();
+    let mut note = None;
+    let mut particle = None;
+    if let Some(f) = scenario {
+        let text = std::fs::read_to_string(f)
+            .map_err(|e| Failure::user(format!("{}: cannot read: {e}", f.display())))?;
+        let mut t: toml::Table = text
+            .parse()
+            .map_err(|e| Failure::user(format!("{}: {e}", f.display()).replace('\n', " ")))?;
+        if let Some(u) = t.remove("units") {
+            doc.insert("units".into(), u);
+        }
+        particle = t.remove("particle");
+    }
+    match particle {
+        Some(p) => {
+            doc.insert("particle".into(), p);
+        }
+        None => {
+            note = Some(format!(
+                "{}: give [particle] (a diffusion coefficient or a mass and friction) before `rate` reads it; trajectories alone do not fix the dynamics here",
+                out.display()
+            ));
+        }
+    }
+    // the table's path as the scenario will look for it: beside it, or absolute
+    let dir = |p: &Path| {
+        p.parent()
+            .filter(|d| !d.as_os_str().is_empty())
+            .unwrap_or(Path::new("."))
+            .canonicalize()
+            .ok()
+    };
+    let table = match (dir(profile), dir(out), profile.file_name()) {
+        (Some(a), Some(b), Some(name)) if a == b => name.to_string_lossy().into_owned(),
+        (Some(a), _, Some(name)) => a.join(name).display().to_string(),
+        _ => profile.display().to_string(),
+    };
+    let mut pot = toml::Table::new();
+    pot.insert("table".into(), table.into());
+    doc.insert("potential".into(), pot.into());
+    let mut states = toml::Table::new();
+    states.insert("start".into(), start.into());
+    doc.insert("states".into(), states.into());
+    // sections in the order a person writes them
+    let mut body = String::new();
+    for name in ["units", "particle", "potential", "states"] {
+        if let Some(section) = doc.remove(name) {
+            let one = toml::Table::from_iter([(name.to_string(), section)]);
+            let text = toml::to_string(&one).map_err(|e| Failure {
+                message: format!("cannot write the scenario: {e}"),
+                code: 1,
+            })?;
+            body.push_str(&text);
+            body.push('\n');
+        }
+    }
+    let head = format!(
+        "# written by `escapade observe`: the free energy of observed trajectories ({}); start = centre of core A\n",
+        profile.display()
+    );
+    let tail = if note.is_some() {
+        "[particle]\n# diffusion = ...   # not known from the trajectories: fill in\n"
+    } else {
+        ""
+    };
+    Ok((format!("{head}{body}{tail}"), note))
+}
+
+fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
+    let (units, scenario) = match &o.scenario {
+        Some(f) => {
+            let m = Model::load(f, &[]).map_err(|e| Failure::user(e.to_string()))?;
+            (m.units, Some(m.source))
+        }
+        None => (escapade::units::UnitSystem::reduced(), None),
+    };
+    let opts = observe::Options {
+        columns: observe::Columns {
+            position: column("--position", o.position.as_deref())?,
+            time: column("--time", o.time.as_deref())?,
+        },
+        dt: o.dt,
+        bin_width: o.bin_width,
+        cores: o.cores.as_deref().map(parse_cores).transpose()?,
+        seed: o.seed,
+        resamples: o.resamples,
+        ..observe::Options::default()
+    };
+    let sources: Vec<Source> = o.files.iter().cloned().map(Source::File).collect();
+    let observed = observe::analyse(&sources, &opts).map_err(observe_failure)?;
+    let mut r = ObserveReport::new(observed, &units, scenario);
+    if let Some(path) = &o.profile {
+        let mut text = Vec::new();
+        observe::write_profile(&r.observed.free_energy, units.kt_in_energy_unit, &mut text)
+            .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
+        write_file(path, &String::from_utf8_lossy(&text))?;
+        r.written.profile = Some(path.display().to_string());
+        if let Some(out) = &o.scenario_out {
+            let a = r.observed.kinetics.core_a;
+            let (text, note) =
+                scenario_for_profile(o.scenario.as_deref(), path, out, 0.5 * (a.lo + a.hi))?;
+            write_file(out, &text)?;
+            r.written.scenario = Some(out.display().to_string());
+            r.notes.extend(note);
+        }
+    }
+    ok(if o.json {
+        json::render(&r)
+    } else {
+        table::observe(&r)
     })
 }
 

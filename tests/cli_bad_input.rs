@@ -18,7 +18,7 @@ use std::time::Duration;
 
 /// One bad input.
 struct Case {
-    /// the subcommand ("rate" or "survey")
+    /// the subcommand ("rate", "survey", "observe", ...)
     cmd: &'static str,
     /// scenario file under tests/bad_input ("" for none)
     file: &'static str,
@@ -610,6 +610,22 @@ const CASES: &[Case] = &[
         "",
         "simulation.dynamics",
         "memory",
+    ),
+    // --- observe: trajectory files and its options ---
+    case("observe", "traj_non_numeric.csv", "line 4", "not a number"),
+    case(
+        "observe",
+        "traj_time_backwards.txt",
+        "line 5",
+        "does not increase",
+    ),
+    with_args(
+        "observe",
+        "traj_non_numeric.csv",
+        &["--cores", "1:2"],
+        "--cores 1:2",
+        "LO:HI,LO:HI",
+        "",
     ),
     // no scenario file at all: the message must say which argument is missing
     with_args("survey", "", &[], "<FILE>", "required", ""),

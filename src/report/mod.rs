@@ -5,6 +5,7 @@
 
 pub mod csv;
 pub mod json;
+pub mod observe;
 pub mod svg;
 pub mod table;
 

@@ -1231,3 +1231,213 @@ fn scan_fits(out: &mut String, r: &crate::scan::ScanReport, u: &U) {
         show(out, f);
     }
 }
+
+/// Renders `observe`: trajectories, correlation time, profile, cores and rates, warnings.
+pub fn observe(r: &super::observe::ObserveReport) -> String {
+    let mut out = String::new();
+    let u = U::new(&r.units);
+    let o = &r.observed;
+    match &r.scenario {
+        Some(s) => {
+            let _ = writeln!(
+                out,
+                "observed trajectories · units of scenario {s}: positions in {}, times in {}, energies in {}{}",
+                u.l,
+                u.t,
+                u.e,
+                if u.e == "kT" {
+                    String::new()
+                } else {
+                    format!(" (kT = {} {})", num(r.kt), u.e)
+                }
+            );
+        }
+        None => {
+            let _ = writeln!(
+                out,
+                "observed trajectories · reduced units: positions (L) and times (τ) as in the files, energies in kT (give --scenario for physical units)"
+            );
+        }
+    }
+    let mut t = table();
+    t.set_header(vec![
+        "trajectory".to_string(),
+        "samples".to_string(),
+        format!("sampling interval ({})", u.t),
+        format!("duration ({})", u.t),
+    ]);
+    for f in &o.trajectories {
+        t.add_row(vec![
+            f.name.clone(),
+            f.samples.to_string(),
+            num(f.dt),
+            num(f.duration),
+        ]);
+    }
+    show(&mut out, t);
+    let p = &o.position;
+    let _ = writeln!(
+        out,
+        "{} samples over {} {}; position from {} to {} {}, mean {} ± sd {}",
+        o.samples,
+        num(o.total_time),
+        u.t,
+        num(p.min),
+        num(p.max),
+        u.l,
+        num(p.mean),
+        num(p.sd)
+    );
+    let c = &o.correlation;
+    // τ_int in time only when every trajectory has the same sampling interval
+    let dt0 = o.trajectories.first().map_or(f64::NAN, |f| f.dt);
+    let same_dt = o
+        .trajectories
+        .iter()
+        .all(|f| (f.dt - dt0).abs() <= 1e-9 * dt0.abs());
+    let in_time = |samples: f64| {
+        if same_dt {
+            format!(" = {} {}", num(samples * dt0), u.t)
+        } else {
+            String::new()
+        }
+    };
+    let _ = writeln!(
+        out,
+        "integrated autocorrelation time of the position: τ_int = {} samples{} (summed over a window of {} samples{}){}",
+        num(c.tau_int),
+        in_time(c.tau_int),
+        num(c.window),
+        in_time(c.window),
+        if c.converged {
+            ""
+        } else {
+            "; the window did not close: a lower bound"
+        }
+    );
+    let fe = &o.free_energy;
+    if let Some(s) = &r.profile {
+        let _ = writeln!(
+            out,
+            "free energy U = −kT ln p(x): {} bins of {} {} from {} to {} {}, spanning {} {}; σ_U by block bootstrap ({} blocks of {} samples, {} resamples)",
+            s.bins,
+            num(s.bin_width),
+            u.l,
+            num(s.x_min),
+            num(s.x_max),
+            u.l,
+            num(s.u_range),
+            u.e,
+            fe.blocks,
+            fe.block_samples,
+            fe.resamples
+        );
+        if let Some(b) = &s.barrier {
+            let side = |name: &str, d: &super::observe::BarrierSide| {
+                let sigma = d
+                    .sigma_kt
+                    .map_or(String::new(), |e| format!(" ± {}", num(r.kt * e)));
+                format!(
+                    "{}{sigma} {} above the lowest bin of {name} (x = {} {})",
+                    num(d.height),
+                    u.e,
+                    num(d.minimum),
+                    u.l
+                )
+            };
+            let _ = writeln!(
+                out,
+                "barrier between the cores (histogram, highest bin at x = {} {}): {}; {}{}",
+                num(b.x),
+                u.l,
+                side("A", &b.from_a),
+                side("B", &b.from_b),
+                if b.complete {
+                    ""
+                } else {
+                    "; some bins between the cores were never visited, so the barrier is higher"
+                }
+            );
+        }
+    }
+    let k = &o.kinetics;
+    let _ = writeln!(
+        out,
+        "cores: A [{}, {}] {}, B [{}, {}] {} ({})",
+        num(k.core_a.lo),
+        num(k.core_a.hi),
+        u.l,
+        num(k.core_b.lo),
+        num(k.core_b.hi),
+        u.l,
+        k.core_rule
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "transition".to_string(),
+        "count".to_string(),
+        format!("time in the core left ({})", u.t),
+        format!("rate (1/{})", u.t),
+        "95% interval".to_string(),
+    ]);
+    for (name, rate) in [("A → B", &k.forward), ("B → A", &k.backward)] {
+        let (value, interval) = match (rate.rate, rate.ci95, rate.upper95) {
+            (Some(v), Some(ci), _) => (num(v), format!("[{}, {}]", num(ci[0]), num(ci[1]))),
+            (_, _, Some(up)) => ("none".to_string(), format!("below {}", num(up))),
+            _ => ("—".to_string(), "—".to_string()),
+        };
+        t.add_row(vec![
+            name.to_string(),
+            rate.transitions.to_string(),
+            num(rate.exposure),
+            value,
+            interval,
+        ]);
+    }
+    show(&mut out, t);
+    let mut t = table();
+    t.set_header(vec![
+        "dwell in".to_string(),
+        "complete periods".to_string(),
+        format!("mean ({})", u.t),
+        "CV (1 if exponential)".to_string(),
+        "KS p-value (exponential)".to_string(),
+    ]);
+    for (name, d) in [("A", &k.dwell_a), ("B", &k.dwell_b)] {
+        t.add_row(vec![
+            name.to_string(),
+            d.count.to_string(),
+            opt(d.mean),
+            opt(d.cv),
+            opt(d.ks_p_value),
+        ]);
+    }
+    show(&mut out, t);
+    let b = &k.boundary;
+    let spread = |s: Option<f64>| s.map_or_else(|| "—".into(), |v| format!("{:.0}%", 100.0 * v));
+    let _ = writeln!(
+        out,
+        "core edges moved by {} {} (cores as placed | shrunk | grown): k_AB {} | {} | {} (spread {}), k_BA {} | {} | {} (spread {})",
+        num(b.shift),
+        u.l,
+        opt(b.forward[0]),
+        opt(b.forward[1]),
+        opt(b.forward[2]),
+        spread(b.forward_spread),
+        opt(b.backward[0]),
+        opt(b.backward[1]),
+        opt(b.backward[2]),
+        spread(b.backward_spread)
+    );
+    let w = &r.written;
+    for (what, file) in [("profile table", &w.profile), ("scenario", &w.scenario)] {
+        if let Some(f) = file {
+            let _ = writeln!(out, "wrote the {what} {f}");
+        }
+    }
+    for n in &r.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
+    warnings(&mut out, &o.warnings);
+    out
+}

@@ -1,0 +1,422 @@
+//! `escapade observe` through the binary, on trajectories written here: an overdamped particle in
+//! the double well U = E_b((x/a)² − 1)², E_b = 3.5 kT, a = 1 nm, D = 1 nm²/ps, integrated by
+//! Euler–Maruyama from fixed-seed streams (`escapade::seed::stream`), one trajectory as "t,x" text
+//! and one as a NumPy .npy file. Fixed seeds; tolerances of about 4 standard errors plus the
+//! stated biases.
+
+use assert_cmd::Command;
+use escapade::seed;
+use rand::RngExt;
+use rand_distr::StandardNormal;
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+const EB: f64 = 3.5;
+/// Integrator step (ps): the Euler–Maruyama density is off by O(D dt U'') ≈ 0.6% in the wells
+/// (U'' = 8 E_b = 28 kT/nm²), far below the statistical errors below.
+const DT: f64 = 2e-4;
+/// Steps between samples: a sampling interval of 0.01 ps.
+const EVERY: u64 = 50;
+/// 1000 ps per trajectory: about 80 transitions each way at 1/MFPT ≈ 0.08 /ps.
+const STEPS: u64 = 5_000_000;
+
+/// The model the trajectories come from, in physical units (kT = 2.494 kJ/mol at 300 K).
+const MODEL: &str = r#"
+[units]
+energy = "kJ/mol"
+length = "nm"
+time = "ps"
+temperature = 300
+
+[particle]
+diffusion = 1.0
+
+[potential]
+family = "double-well"
+barrier = "3.5 kT"
+half_width = 1.0
+
+[states]
+start = -1.0
+"#;
+
+/// One trajectory, x += −U'(x) D dt + sqrt(2 D dt) ξ, sampled every EVERY steps; starts in a
+/// well and ends after `steps` steps.
+fn trajectory(index: u64, eb: f64, steps: u64) -> Vec<f64> {
+    let mut rng = seed::stream(77, index);
+    let s = (2.0 * DT).sqrt();
+    let mut x = -1.0;
+    let mut out = Vec::with_capacity((steps / EVERY) as usize);
+    for k in 1..=steps {
+        let f = -4.0 * eb * x * (x * x - 1.0);
+        x += f * DT + s * rng.sample::<f64, _>(StandardNormal);
+        if k.is_multiple_of(EVERY) {
+            out.push(x);
+        }
+    }
+    out
+}
+
+/// "t,x" text with a header.
+fn write_text(path: &Path, xs: &[f64]) {
+    let mut s = String::from("# invented test trajectory\nt,x\n");
+    for (i, x) in xs.iter().enumerate() {
+        s.push_str(&format!("{},{x}\n", (i + 1) as f64 * DT * EVERY as f64));
+    }
+    std::fs::write(path, s).unwrap();
+}
+
+/// A little-endian float64 .npy file of rows (t, x) (format version 1.0: magic, header length, a
+/// padded dict literal ending in a newline so that the data start at a multiple of 64 bytes).
+fn write_npy(path: &Path, xs: &[f64]) {
+    let dict = format!(
+        "{{'descr': '<f8', 'fortran_order': False, 'shape': ({}, 2), }}",
+        xs.len()
+    );
+    let pad = (64 - (10 + dict.len() + 1) % 64) % 64;
+    let header = format!("{dict}{}\n", " ".repeat(pad));
+    let mut b = b"\x93NUMPY\x01\x00".to_vec();
+    b.extend_from_slice(&(header.len() as u16).to_le_bytes());
+    b.extend_from_slice(header.as_bytes());
+    for (i, x) in xs.iter().enumerate() {
+        let t = (i + 1) as f64 * DT * EVERY as f64;
+        b.extend_from_slice(&t.to_le_bytes());
+        b.extend_from_slice(&x.to_le_bytes());
+    }
+    std::fs::write(path, b).unwrap();
+}
+
+fn dir() -> &'static PathBuf {
+    static D: OnceLock<PathBuf> = OnceLock::new();
+    D.get_or_init(|| {
+        let d = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("cli_observe");
+        std::fs::create_dir_all(&d).unwrap();
+        write_text(&d.join("run0.csv"), &trajectory(0, EB, STEPS));
+        write_npy(&d.join("run1.npy"), &trajectory(1, EB, STEPS));
+        std::fs::write(d.join("model.toml"), MODEL).unwrap();
+        d
+    })
+}
+
+fn path(name: &str) -> String {
+    dir().join(name).display().to_string()
+}
+
+fn escapade(args: &[&str]) -> std::process::Output {
+    Command::cargo_bin("escapade")
+        .unwrap()
+        .env_remove("RUST_BACKTRACE")
+        .args(args)
+        .output()
+        .unwrap()
+}
+
+/// `observe` of both trajectories in the model's units, with `extra` arguments.
+fn observe_both(extra: &[&str]) -> std::process::Output {
+    let (a, b, m) = (path("run0.csv"), path("run1.npy"), path("model.toml"));
+    escapade(
+        &[
+            &["observe", a.as_str(), b.as_str(), "--scenario", m.as_str()][..],
+            extra,
+        ]
+        .concat(),
+    )
+}
+
+fn json_of(args: &[&str]) -> Value {
+    let out = escapade(args);
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// The observed run of both trajectories in the model's units.
+fn observed() -> &'static Value {
+    static R: OnceLock<Value> = OnceLock::new();
+    R.get_or_init(|| {
+        let out = observe_both(&["--json"]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice(&out.stdout).unwrap()
+    })
+}
+
+// The table names both rates with their intervals and the units of the scenario (common
+// practice, no source).
+#[test]
+fn table_shows_both_rates_in_the_scenario_units() {
+    let out = observe_both(&[]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    for want in [
+        "A → B",
+        "B → A",
+        "rate (1/ps)",
+        "95% interval",
+        "τ_int",
+        "kJ/mol",
+        "KS p-value",
+    ] {
+        assert!(text.contains(want), "no \"{want}\" in\n{text}");
+    }
+    // without a scenario the output says that it is in reduced units
+    let out = escapade(&["observe", &path("run0.csv"), "-q"]);
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("reduced units") && text.contains("rate (1/τ)"));
+}
+
+// The JSON has the documented keys (README, "Observed trajectories"), and its rate is the exact
+// one. Reference: with transition-based counting 1/k_AB is the mean first-passage time between
+// the cores (Hummer, J. Chem. Phys. 120, 516 (2004)); the exact overdamped 1/MFPT from minimum
+// to minimum comes from `escapade rate` on the generating model (Szabo, Schulten & Schulten,
+// J. Chem. Phys. 72, 4350 (1980)). Tolerance: 4 standard errors k/sqrt(n) plus 5% for the
+// difference between core edges and minima (the well relaxation time 1/(D U'') ≈ 0.04 ps
+// against an MFPT of 12 ps), core entries noticed at the next sample (0.01 ps) and the
+// integrator's O(dt) bias.
+#[test]
+fn json_has_the_documented_keys_and_the_exact_rate() {
+    let r = observed();
+    for key in [
+        "units",
+        "kT",
+        "trajectories",
+        "samples",
+        "total_time",
+        "position",
+        "correlation",
+        "free_energy",
+        "kinetics",
+        "profile",
+        "written",
+        "notes",
+        "warnings",
+    ] {
+        assert!(r.get(key).is_some(), "no key {key}");
+    }
+    assert_eq!(r["units"]["time"], "ps");
+    assert_eq!(r["trajectories"].as_array().unwrap().len(), 2);
+    assert_eq!(r["samples"], 2 * STEPS / EVERY);
+    for key in ["tau_int", "window", "converged"] {
+        assert!(r["correlation"].get(key).is_some(), "correlation.{key}");
+    }
+    for key in ["x", "count", "u", "sigma_u"] {
+        assert!(r["free_energy"]["bins"][0].get(key).is_some(), "bins.{key}");
+    }
+    let k = &r["kinetics"];
+    for key in [
+        "core_a",
+        "core_b",
+        "core_rule",
+        "forward",
+        "backward",
+        "dwell_a",
+        "dwell_b",
+        "boundary",
+    ] {
+        assert!(k.get(key).is_some(), "kinetics.{key}");
+    }
+    for key in ["transitions", "exposure", "rate", "ci95", "upper95"] {
+        assert!(k["forward"].get(key).is_some(), "forward.{key}");
+    }
+    for key in ["count", "mean", "cv", "ks_distance", "ks_p_value"] {
+        assert!(k["dwell_a"].get(key).is_some(), "dwell_a.{key}");
+    }
+    let b = &r["profile"]["barrier"];
+    for key in ["height", "height_kT", "sigma_kT", "minimum"] {
+        assert!(
+            b["from_a"].get(key).is_some(),
+            "profile.barrier.from_a.{key}"
+        );
+    }
+    // kT at 300 K is R·300 K = 2.494339 kJ/mol (CODATA 2018)
+    assert!((r["kT"].as_f64().unwrap() - 2.494_339).abs() < 1e-6);
+    let exact = json_of(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
+        .as_f64()
+        .unwrap();
+    for dir in ["forward", "backward"] {
+        let n = k[dir]["transitions"].as_f64().unwrap();
+        let rate = k[dir]["rate"].as_f64().unwrap();
+        assert!(n >= 50.0, "{dir}: only {n} transitions");
+        let tol = 4.0 / n.sqrt() + 0.05;
+        assert!(
+            (rate / exact - 1.0).abs() < tol,
+            "{dir}: observed {rate} /ps against exact {exact} (n = {n}, tolerance {tol})"
+        );
+    }
+}
+
+/// The rows (x, U, sigma_U) of a written profile.
+fn profile_rows(file: &str) -> Vec<[f64; 3]> {
+    std::fs::read_to_string(file)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with('x'))
+        .map(|l| {
+            let v: Vec<f64> = l.split(',').map(|f| f.parse().unwrap()).collect();
+            [v[0], v[1], v[2]]
+        })
+        .collect()
+}
+
+// The loop closed: the written profile (in kJ/mol) read by `rate` through the written scenario
+// gives back the generating barrier in kT. Reference: E_b = 3.5 kT of the generating model.
+// Tolerance: 4 σ of a difference of two histogram bins, σ = hypot(σ_U at the top, σ_U at the
+// reactant minimum) from the profile's own bootstrap column, plus 0.05 kT for the bins' averaging
+// (U''h²/24 ≈ 0.01 kT in the wells) and the smoothing spline's rounding of the top.
+#[test]
+fn written_profile_gives_the_barrier_back_through_rate() {
+    let (csv, toml) = (path("profile.csv"), path("fitted.toml"));
+    let out = observe_both(&["--profile", &csv, "--scenario-out", &toml, "-q"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let rows = profile_rows(&csv);
+    // U is written in kJ/mol: its range is several kT of 2.494 kJ/mol
+    let top = rows.iter().map(|r| r[1]).fold(0.0, f64::max);
+    assert!(top > 3.0 * 2.494, "U column not in kJ/mol: top {top}");
+    let rate = json_of(&["rate", &toml, "--json"]);
+    let l = &rate["landscape"];
+    let eb = l["barrier_height_kT"].as_f64().unwrap();
+    let near = |x: f64| {
+        rows.iter()
+            .min_by(|a, b| (a[0] - x).abs().total_cmp(&(b[0] - x).abs()))
+            .unwrap()[2]
+            / 2.494_339
+    };
+    let sigma = near(l["barrier"].as_f64().unwrap()).hypot(near(l["reactant"].as_f64().unwrap()));
+    let tol = 4.0 * sigma + 0.05;
+    assert!(
+        (eb - EB).abs() < tol,
+        "barrier {eb} kT from the written profile, generated {EB} (tolerance {tol})"
+    );
+    assert_eq!(rate["units"]["energy"], "kJ/mol");
+}
+
+// Columns are numbered from 1 on the command line: a three-column file (step, t, x) read with
+// --time 2 --position 3 gives the same analysis as the two-column file (common practice, no
+// source).
+#[test]
+fn columns_are_numbered_from_one() {
+    let xs = trajectory(0, EB, STEPS / 10);
+    write_text(&dir().join("short.csv"), &xs);
+    let mut s = String::new();
+    for (i, x) in xs.iter().enumerate() {
+        s.push_str(&format!("{i} {} {x}\n", (i + 1) as f64 * DT * EVERY as f64));
+    }
+    std::fs::write(dir().join("three.txt"), s).unwrap();
+    let a = json_of(&["observe", &path("short.csv"), "--json"]);
+    let b = json_of(&[
+        "observe",
+        &path("three.txt"),
+        "--time",
+        "2",
+        "--position",
+        "3",
+        "--json",
+    ]);
+    assert_eq!(a["kinetics"]["forward"], b["kinetics"]["forward"]);
+    assert_eq!(a["samples"], b["samples"]);
+}
+
+// A trajectory that never leaves core A: a warning and no rate, only an upper bound (common
+// practice, no source: never a rate without a transition behind it).
+#[test]
+fn no_transition_gives_a_warning_and_no_rate() {
+    // 12 kT: escape takes ~1e4 ps, the trajectory 20 ps
+    let xs = trajectory(5, 12.0, 100_000);
+    write_text(&dir().join("stuck.csv"), &xs);
+    let args = ["observe", &path("stuck.csv"), "--cores=-1.3:-0.7,0.7:1.3"];
+    let r = json_of(&[&args[..], &["--json"]].concat());
+    let f = &r["kinetics"]["forward"];
+    assert_eq!(f["transitions"], 0);
+    assert!(f["rate"].is_null() && f["ci95"].is_null());
+    assert!(f["upper95"].as_f64().unwrap() > 0.0);
+    let w: Vec<&str> = r["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    assert!(w.iter().any(|s| s.contains("no A → B transition")), "{w:?}");
+    let text = String::from_utf8(escapade(&args).stdout).unwrap();
+    assert!(text.contains("warning: no A → B transition") && text.contains("below"));
+}
+
+/// Runs `observe` on a file with `content` and returns (exit code, stderr).
+fn bad(name: &str, content: &str, extra: &[&str]) -> (Option<i32>, String) {
+    let p = dir().join(name);
+    std::fs::write(&p, content).unwrap();
+    let p = p.display().to_string();
+    let out = escapade(&[&["observe", p.as_str()][..], extra].concat());
+    assert!(out.stdout.is_empty(), "{name}: stdout not empty");
+    (out.status.code(), String::from_utf8(out.stderr).unwrap())
+}
+
+fn assert_one_line(name: &str, code: Option<i32>, err: &str, wants: &[&str]) {
+    assert_eq!(code, Some(2), "{name}: {err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "{name}: {err}");
+    assert!(!err.contains("panicked"), "{name}: {err}");
+    for w in wants {
+        assert!(err.contains(w), "{name}: no \"{w}\" in {err}");
+    }
+}
+
+// Bad files: one line on stderr, exit 2, naming the file and the line (common practice, no
+// source).
+#[test]
+fn bad_files_name_the_file_and_the_line() {
+    let good: String = (1..=200)
+        .map(|i| format!("{},{}\n", i as f64 * 0.01, (i as f64).sin()))
+        .collect();
+    let at = |line: usize, text: &str| {
+        let mut l: Vec<String> = good.lines().map(String::from).collect();
+        l[line - 1] = text.to_string();
+        l.join("\n")
+    };
+    for (name, content, line, what) in [
+        (
+            "nan.csv",
+            at(5, "0.05,nan"),
+            "line 5",
+            "not a finite number",
+        ),
+        ("word.csv", at(7, "0.07,abc"), "line 7", "not a number"),
+        (
+            "backwards.csv",
+            at(9, "0.01,0.5"),
+            "line 9",
+            "does not increase",
+        ),
+    ] {
+        let (code, err) = bad(name, &content, &[]);
+        assert_one_line(name, code, &err, &[name, line, what]);
+    }
+    let missing = path("no_such_file.csv");
+    let out = escapade(&["observe", &missing]);
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert_one_line(
+        "missing",
+        out.status.code(),
+        &err,
+        &[&missing, "cannot read"],
+    );
+    // and the options of the command line
+    for (args, want) in [
+        (&["--cores", "1:2"][..], "--cores 1:2"),
+        (&["--position", "0"][..], "--position 0"),
+        (&["--cores=1:2,0:3"][..], "--cores"),
+        (&["--bin-width=-1"][..], "--bin-width"),
+    ] {
+        let (code, err) = bad("ok.csv", &good, args);
+        assert_one_line(&format!("{args:?}"), code, &err, &[want]);
+    }
+}
