@@ -31,6 +31,15 @@
 //! between the wall and the target, else to the quadrature tolerance (the central computation
 //! also splits at the others).
 //!
+//! Diffusion noise. A table with D and sigma_D columns has D perturbed too, in ln D:
+//! D_i → D_i exp(s_i ζ_i), s_i = σ_D,i/D_i (the relative error, the standard deviation of ln D to
+//! first order), ζ smoothed over ℓ exactly like ξ but from its own streams
+//! (`seed::stream(seed::derive(seed, seed::DIFFUSION_DRAWS), k)`), so the σ_U draws are the same
+//! with or without a sigma_D column and the two noises are independent. Multiplicative noise keeps
+//! D positive and leaves D's median at the table value. The intervals come from draws with both
+//! perturbed; two more sets of draws, with σ_U alone and σ_D alone, give each source's var(ln k)
+//! per rate and say which dominates (`diffusion_noise`).
+//!
 //! Intervals. The draws perturb the *measured* table, so they scatter about the estimate θ̂ the way
 //! θ̂ scatters about the true value θ, shift included: noise moves the estimates of a nonlinear
 //! analysis by b (e^{δU} averages to e^{σ²/2} in the MFPT integrals, the maximum of a noisy profile
@@ -82,8 +91,8 @@
 
 use crate::landscape::{Kind, Landscape};
 use crate::potential::AnyPotential;
-use crate::potential::{Potential, Table};
-use crate::seed::stream;
+use crate::potential::{Diffusion, Potential, Spline, Table};
+use crate::seed::{self, stream};
 use crate::system::System;
 use crate::theory::catalogue::CATALOGUE;
 use crate::theory::{self, RateKey, Rates, TheoryError};
@@ -234,8 +243,33 @@ pub struct UncertaintyReport {
     pub prefactor_share: Option<f64>,
     /// the decomposition for 1/MFPT and, where it applies, Kramers
     pub decompositions: Vec<Decomposition>,
+    /// with a sigma_D column: how much of var(ln k) comes from σ_D and how much from σ_U
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub diffusion_noise: Option<DiffusionNoise>,
     /// what a user should know
     pub warnings: Vec<String>,
+}
+
+/// The two sources of a rate's spread when the table carries σ_D beside (or instead of) σ_U.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct DiffusionNoise {
+    /// the perturbation of D in words
+    pub model: String,
+    /// per rate: var(ln k) from σ_U alone and from σ_D alone, and the larger source
+    pub rates: Vec<SourceShare>,
+}
+
+/// One rate's variance by source.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SourceShare {
+    /// the rate's key
+    pub key: &'static str,
+    /// var(ln k) over draws perturbing U only (0 without a sigma_U column)
+    pub var_ln_k_profile: f64,
+    /// var(ln k) over draws perturbing D only
+    pub var_ln_k_diffusion: f64,
+    /// "profile" or "diffusion", whichever variance is larger
+    pub dominant: &'static str,
 }
 
 /// One draw's outcome.
@@ -369,7 +403,13 @@ fn basin(l: &Landscape, domain: (f64, f64)) -> (f64, f64) {
 }
 
 /// Analyses one (perturbed) table with the per-draw rules; `None` if the analysis fails.
-fn analyse_draw(table: &Table, model: &System, basin: (f64, f64), target: f64) -> Option<Draw> {
+fn analyse_draw(
+    table: &Table,
+    model: &System,
+    diffusion: &Diffusion,
+    basin: (f64, f64),
+    target: f64,
+) -> Option<Draw> {
     let points = crate::landscape::stationary_points(table).ok()?;
     let reactant = points
         .iter()
@@ -387,7 +427,7 @@ fn analyse_draw(table: &Table, model: &System, basin: (f64, f64), target: f64) -
     let eb = l.barrier_height;
     let t = theory::rates_for(
         table,
-        &model.diffusion,
+        diffusion,
         model.mass,
         model.friction,
         model.memory_time,
@@ -472,8 +512,19 @@ pub fn propagate(
     let AnyPotential::Table(table) = &model.potential else {
         return Ok(None);
     };
-    let Some(sigma) = table.sigma_u() else {
-        return Ok(None);
+    // D noise only where the D column is the system's D (a table D column, not a periodic one)
+    let d_noise = match (table.d_rows(), table.sigma_d(), &model.diffusion) {
+        (Some(d), Some(s), Diffusion::Table(_)) if s.iter().any(|&v| v > 0.0) => Some((d, s)),
+        _ => None,
+    };
+    let no_sigma;
+    let sigma = match table.sigma_u() {
+        Some(s) => s,
+        None if d_noise.is_some() => {
+            no_sigma = vec![0.0; table.knot_u().len()];
+            &no_sigma
+        }
+        None => return Ok(None),
     };
     if opts.draws < MIN_DRAWS {
         return Err(UncertaintyError::TooFewDraws { draws: opts.draws });
@@ -491,14 +542,34 @@ pub fn propagate(
     let kernel = Kernel::new(x, ell);
     let u0 = table.knot_u();
 
-    let draws: Vec<Option<Draw>> = (0..opts.draws as u64)
-        .into_par_iter()
-        .map(|k| {
-            let du = perturbation(x, sigma, &kernel, opts.seed, k);
-            let u: Vec<f64> = u0.iter().zip(&du).map(|(u, d)| u + d).collect();
-            analyse_draw(&table.with_knot_u(&u), model, basin, target)
-        })
-        .collect();
+    let d_seed = seed::derive(opts.seed, seed::DIFFUSION_DRAWS);
+    let relative: Option<Vec<f64>> =
+        d_noise.map(|(d, s)| s.iter().zip(d).map(|(s, d)| s / d).collect());
+    // draws perturbing U (with `with_u`) and D (with `with_d`, when the table has σ_D)
+    let run = |with_u: bool, with_d: bool| -> Vec<Option<Draw>> {
+        (0..opts.draws as u64)
+            .into_par_iter()
+            .map(|k| {
+                let table_k = if with_u {
+                    let du = perturbation(x, sigma, &kernel, opts.seed, k);
+                    let u: Vec<f64> = u0.iter().zip(&du).map(|(u, d)| u + d).collect();
+                    table.with_knot_u(&u)
+                } else {
+                    table.clone()
+                };
+                let diffusion = match (&relative, d_noise) {
+                    (Some(rel), Some((d, _))) if with_d => {
+                        let z = perturbation(x, rel, &kernel, d_seed, k);
+                        let dk: Vec<f64> = d.iter().zip(&z).map(|(d, z)| d * z.exp()).collect();
+                        Diffusion::Table(Spline::new(x, &dk))
+                    }
+                    _ => model.diffusion.clone(),
+                };
+                analyse_draw(&table_k, model, &diffusion, basin, target)
+            })
+            .collect()
+    };
+    let draws = run(true, true);
     let ok: Vec<Draw> = draws.iter().flatten().copied().collect();
     let failed = opts.draws - ok.len();
     if ok.is_empty() {
@@ -601,8 +672,47 @@ pub fn propagate(
         barrier_share,
         prefactor_share,
         decompositions,
+        diffusion_noise: relative.is_some().then(|| DiffusionNoise {
+            model: format!(
+                "D_i -> D_i exp((sigma_D,i/D_i) zeta_i), zeta smoothed over l like xi, from streams of seed {} mixed with its own salt; {} draws each with U alone and D alone for the split",
+                opts.seed, opts.draws
+            ),
+            rates: source_shares(&central.rates, &run(true, false), &run(false, true), table.sigma_u().is_some()),
+        }),
         warnings,
     }))
+}
+
+/// var(ln k) per rate over U-only and D-only draws (failed draws and absent rates left out).
+fn source_shares(
+    central: &Rates,
+    u_only: &[Option<Draw>],
+    d_only: &[Option<Draw>],
+    has_sigma_u: bool,
+) -> Vec<SourceShare> {
+    let var = |draws: &[Option<Draw>], key: RateKey| {
+        let v: Vec<f64> = draws
+            .iter()
+            .flatten()
+            .filter_map(|d| d.rates[key].filter(|r| r.is_finite() && *r > 0.0))
+            .map(f64::ln)
+            .collect();
+        if v.len() < 2 { 0.0 } else { covariance(&v, &v) }
+    };
+    CATALOGUE
+        .iter()
+        .filter(|f| central[f.key].is_some())
+        .map(|f| {
+            let vu = if has_sigma_u { var(u_only, f.key) } else { 0.0 };
+            let vd = var(d_only, f.key);
+            SourceShare {
+                key: f.key.as_str(),
+                var_ln_k_profile: vu,
+                var_ln_k_diffusion: vd,
+                dominant: if vd > vu { "diffusion" } else { "profile" },
+            }
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -346,6 +346,7 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
                     .collect(),
                 sigma_u: Some(vec![0.3; n]),
                 d: None,
+                sigma_d: None,
             };
             let opts = TableOptions {
                 correlation_length: Some(ell * (hi - lo) / (n - 1) as f64),

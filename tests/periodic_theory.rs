@@ -56,6 +56,7 @@ fn table_of(pot: &dyn Potential) -> Table {
         x: xs,
         sigma_u: None,
         d: None,
+        sigma_d: None,
     };
     Table::new(&cols, 1.0)
 }

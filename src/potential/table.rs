@@ -123,6 +123,8 @@ pub struct Columns {
     pub sigma_u: Option<Vec<f64>>,
     /// diffusion coefficients, if given
     pub d: Option<Vec<f64>>,
+    /// standard errors of D, if given (with a D column)
+    pub sigma_d: Option<Vec<f64>>,
 }
 
 #[derive(Clone, Copy, PartialEq)]
@@ -131,6 +133,7 @@ enum Col {
     U,
     Sigma,
     D,
+    SigmaD,
 }
 
 fn header_name(s: &str) -> Option<Col> {
@@ -139,6 +142,7 @@ fn header_name(s: &str) -> Option<Col> {
         "u" | "f" | "energy" => Some(Col::U),
         "sigma_u" | "sigma" | "u_err" | "stderr" => Some(Col::Sigma),
         "d" | "diffusion" => Some(Col::D),
+        "sigma_d" | "d_err" => Some(Col::SigmaD),
         _ => None,
     }
 }
@@ -151,12 +155,14 @@ fn split_fields(line: &str) -> Vec<&str> {
     }
 }
 
-/// Reads table text. Columns: by header names (x, U, sigma_U, D) when the first data line is a
-/// header, else by count: 2 = x,U; 3 = x,U,sigma_U; 4 = x,U,sigma_U,D.
+/// Reads table text. Columns: by header names (x, U, sigma_U, D, sigma_D) when the first data
+/// line is a header, else by count: 2 = x,U; 3 = x,U,sigma_U; 4 = x,U,sigma_U,D;
+/// 5 = x,U,sigma_U,D,sigma_D.
 ///
 /// # Errors
 /// Non-UTF-8 bytes, non-numeric fields, NaN or infinite values, rows out of order or with duplicate
-/// x, ragged rows, negative σ_U or non-positive D, fewer than [`MIN_ROWS`] rows; each with its line.
+/// x, ragged rows, negative σ_U or σ_D, non-positive D, σ_D without D, fewer than [`MIN_ROWS`]
+/// rows; each with its line.
 pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
     let text = match std::str::from_utf8(bytes) {
         Ok(t) => t,
@@ -173,6 +179,7 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
     let mut cols = Columns::default();
     let mut sigma = Vec::new();
     let mut dcol = Vec::new();
+    let mut sigma_d = Vec::new();
     for (i, raw) in text.lines().enumerate() {
         let line_no = i + 1;
         let line = raw.trim();
@@ -193,7 +200,7 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
                             return Err(line_err(
                                 line_no,
                                 format!(
-                                    "unknown column {f:?} in the header (expected x, U, sigma_U, D, separated by commas or whitespace)"
+                                    "unknown column {f:?} in the header (expected x, U, sigma_U, D, sigma_D, separated by commas or whitespace)"
                                 ),
                             ));
                         }
@@ -201,6 +208,9 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
                 }
                 if !(named.contains(&Col::X) && named.contains(&Col::U)) {
                     return Err(line_err(line_no, "the header must name columns x and U"));
+                }
+                if named.contains(&Col::SigmaD) && !named.contains(&Col::D) {
+                    return Err(line_err(line_no, "a sigma_D column needs a D column"));
                 }
                 layout = Some(named);
                 continue;
@@ -215,10 +225,13 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
                 2 => vec![Col::X, Col::U],
                 3 => vec![Col::X, Col::U, Col::Sigma],
                 4 => vec![Col::X, Col::U, Col::Sigma, Col::D],
+                5 => vec![Col::X, Col::U, Col::Sigma, Col::D, Col::SigmaD],
                 n => {
                     return Err(line_err(
                         line_no,
-                        format!("{n} columns without a header (expected 2 to 4: x, U, sigma_U, D)"),
+                        format!(
+                            "{n} columns without a header (expected 2 to 5: x, U, sigma_U, D, sigma_D)"
+                        ),
                     ));
                 }
             });
@@ -262,6 +275,12 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
                     }
                     dcol.push(v);
                 }
+                Col::SigmaD => {
+                    if v < 0.0 {
+                        return Err(line_err(line_no, "sigma_D is negative"));
+                    }
+                    sigma_d.push(v);
+                }
             }
         }
         if let Some(&prev) = cols.x.last() {
@@ -291,6 +310,9 @@ pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
     }
     if lay.contains(&Col::D) {
         cols.d = Some(dcol);
+    }
+    if lay.contains(&Col::SigmaD) {
+        cols.sigma_d = Some(sigma_d);
     }
     Ok(cols)
 }
@@ -489,6 +511,9 @@ pub struct Table {
     u: Vec<f64>,
     sigma_u: Option<Vec<f64>>,
     diffusion: Option<Spline>,
+    /// D at the rows and its standard errors, as read (length²/time)
+    d_rows: Option<Vec<f64>>,
+    sigma_d: Option<Vec<f64>>,
     wall_k: f64,
     lo: f64,
     hi: f64,
@@ -544,6 +569,8 @@ impl Table {
             u,
             sigma_u,
             diffusion: cols.d.as_ref().map(|d| Spline::new(&cols.x, d)),
+            d_rows: cols.d.clone(),
+            sigma_d: cols.sigma_d.clone(),
             wall_k,
             lo,
             hi,
@@ -604,6 +631,8 @@ impl Table {
             u: u.to_vec(),
             sigma_u: self.sigma_u.clone(),
             diffusion: self.diffusion.clone(),
+            d_rows: self.d_rows.clone(),
+            sigma_d: self.sigma_d.clone(),
             wall_k: self.wall_k,
             lo: self.lo,
             hi: self.hi,
@@ -623,6 +652,14 @@ impl Table {
     /// σ_U per row (kT), if given (a column, or the uniform noise level).
     pub fn sigma_u(&self) -> Option<&[f64]> {
         self.sigma_u.as_deref()
+    }
+    /// D at the rows as read, if the table has a D column.
+    pub fn d_rows(&self) -> Option<&[f64]> {
+        self.d_rows.as_deref()
+    }
+    /// σ_D per row, if the table has a sigma_D column.
+    pub fn sigma_d(&self) -> Option<&[f64]> {
+        self.sigma_d.as_deref()
     }
     /// The spline of the D column, if given.
     pub fn diffusion(&self) -> Option<&Spline> {
@@ -770,6 +807,7 @@ mod tests {
             u,
             sigma_u: Some(vec![0.2; 41]),
             d: Some(vec![1.5; 41]),
+            sigma_d: None,
         };
         let t = Table::new(&cols, 0.5);
         let same = t.with_knot_u(t.knot_u());

@@ -461,6 +461,22 @@ fn uncertainty(
             );
         }
     }
+    if let Some(dn) = &q.diffusion_noise {
+        for r in &dn.rates {
+            let _ = writeln!(
+                out,
+                "spread of ln k ({}) by source: variance {} from sigma_U, {} from sigma_D: the {} dominates",
+                r.key,
+                num(r.var_ln_k_profile),
+                num(r.var_ln_k_diffusion),
+                if r.dominant == "diffusion" {
+                    "diffusion coefficient's error"
+                } else {
+                    "profile's error"
+                }
+            );
+        }
+    }
     warnings(out, &q.warnings);
 }
 

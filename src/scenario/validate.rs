@@ -397,11 +397,11 @@ impl Validator<'_> {
             ));
         }
         if uncertainty_given
-            && !matches!(potential, AnyPotential::Table(t) if t.sigma_u().is_some())
+            && !matches!(potential, AnyPotential::Table(t) if t.sigma_u().is_some() || t.sigma_d().is_some())
         {
             return Err(self.err(
                 "uncertainty",
-                "needs a table potential with a sigma_U column (the profile's standard error)",
+                "needs a table potential with a sigma_U column (the profile's standard error) or a sigma_D column",
             ));
         }
         Ok((uncertainty, uncertainty_given))
