@@ -20,6 +20,8 @@ pub const FFS: u64 = 0xFF5_0000;
 pub const OBSERVED_BOOTSTRAP: u64 = 0xb007_5742_0000_0005;
 /// Salt of the Monte Carlo chain over the propagator posterior (observed D(x)).
 pub const POSTERIOR_DIFFUSION: u64 = 0xd1ff_0000_0000_0014;
+/// Salt of the block bootstrap of observed velocities (friction and memory kernel).
+pub const VELOCITY_BOOTSTRAP: u64 = 0x0e10_c17e_0000_0015;
 /// Seed of the smoothing fit's fixed probe vectors (the fit must not depend on any user seed).
 pub const PROBES: u64 = 0x05ee_df17;
 /// Multiplier spreading scan point indices before mixing them into the master seed.
