@@ -120,6 +120,18 @@ pub enum Origin {
     CentralDifference,
 }
 
+/// How the friction was obtained.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Route {
+    /// γ = kT/(m D), D = ∫C_v (a free particle)
+    GreenKubo,
+    /// γ of the exponential kernel fit (confined, memory resolved)
+    KernelFit,
+    /// ∫K over the resolved lags (confined, memoryless at this sampling)
+    KernelArea,
+}
+
 /// What the analysis needs besides the samples.
 #[derive(Debug, Clone)]
 pub struct Options {
@@ -191,6 +203,9 @@ pub struct Kernel {
     pub omega2: f64,
     /// the exponential fit, when at least three lags are resolved
     pub fit: Option<KernelFit>,
+    /// ∫K over the resolved lags, ½K(0)Δt + Σ_{n≥1} K(nΔt)Δt (for memoryless friction the
+    /// spike's area, (1 − e^{−γΔt})/Δt)
+    pub resolved_area: Estimate,
     /// the method, in words
     pub rule: String,
 }
@@ -222,8 +237,10 @@ pub struct Friction {
     pub diffusion: Estimate,
     /// whether the VACF integral vanishes (a particle in a well)
     pub confined: bool,
-    /// γ = kT/(m D) (none when confined)
-    pub gamma: Option<Estimate>,
+    /// the friction γ (1/time), by `gamma_route`
+    pub gamma: Estimate,
+    /// how γ was obtained
+    pub gamma_route: Route,
     /// the memory kernel
     pub kernel: Kernel,
     /// relative bias of ⟨v²⟩ and γ from the central difference under memoryless friction,
@@ -640,19 +657,24 @@ fn analyse(
         ));
     }
 
-    let gamma = if confined {
+    // ∫K over the resolved lags: ½K₀Δt + Σ_{1..=points} K_n Δt (the spike's area when memoryless)
+    let area = |k: &[f64]| dt * (0.5 * k[0] + k[1..=points].iter().sum::<f64>());
+    let mut area_draws: Vec<f64> = k_draws.iter().map(|k| area(k)).collect();
+    let resolved_area = estimate(area(&kern), &mut area_draws);
+    let (gamma, gamma_route) = if confined {
         warnings.push(format!(
             "the VACF integral vanishes (∫C/∫|C| = {integral_ratio:.3}, D interval [{:.3e}, {:.3e}]): \
              the particle is confined, Green–Kubo gives no friction; γ comes from the memory kernel",
             d_est.ci95[0], d_est.ci95[1]
         ));
-        None
+        match &fit {
+            Some(f) => (f.gamma, Route::KernelFit),
+            None => (resolved_area, Route::KernelArea),
+        }
     } else {
-        Some(estimate(1.0 / (mass * d), &mut g_draws))
+        (estimate(1.0 / (mass * d), &mut g_draws), Route::GreenKubo)
     };
-    let gamma_ref = gamma
-        .map(|g| g.value)
-        .or(fit.as_ref().map(|f| f.gamma.value));
+    let gamma_ref = Some(gamma.value).filter(|g| *g > 0.0);
 
     // velocity error and sampling warnings
     let (fd_bias, velocity_error) = match origin {
@@ -743,12 +765,14 @@ fn analyse(
         diffusion: d_est,
         confined,
         gamma,
+        gamma_route,
         kernel: Kernel {
             points: (0..klags)
                 .map(|n| [n as f64 * dt, kern[n], k_se[n]])
                 .collect(),
             omega2,
             fit,
+            resolved_area,
             rule: format!(
                 "second-kind Volterra inversion (Berne & Harp 1970), trapezoid; exponential fit by \
                  weighted least squares on ln K over the lags from Δt on above {RESOLVED_SE} standard errors"
