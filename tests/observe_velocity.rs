@@ -296,3 +296,23 @@ fn harmonic_well_falls_back_to_the_kernel() {
     // bias γΔt/2 = 0.25% of the spike area (module doc), allowed as 1%; se below 15%
     near("γ", &f.gamma, g, 0.01 * g, 0.15);
 }
+
+/// The same well sampled in position: confinement is found, and ω² = ⟨v̂²⟩/var(x) (equipartition
+/// in a harmonic well) is estimated for the kernel's force term.
+#[test]
+fn harmonic_well_from_positions_estimates_omega2() {
+    let (w2, g, dt) = (1.0, 0.5, 0.01);
+    let ex = Exact::new([[0.0, 1.0], [-w2, -g]], [1.0 / w2, 1.0], dt);
+    let (xs, _) = ex.run(1_000_000, &mut seed::stream(42, 0));
+    let f = velocity::from_positions(&[&xs], dt, &opts(6)).unwrap();
+    assert!(f.confined, "ratio {}", f.integral_ratio);
+    // var(x) over T = 10⁴ with a position correlation time ~2γ/ω² + 1/γ ≈ 3 (harmonic
+    // oscillator, common practice, no source) has a relative se of about sqrt(2·3/10⁴) ≈ 2.5%;
+    // 4 of them plus the 0.3% finite-difference bias of ⟨v̂²⟩ make 11%
+    assert!(
+        (f.kernel.omega2 - w2).abs() < 0.11 * w2,
+        "{}",
+        f.kernel.omega2
+    );
+    assert!(f.warnings.iter().any(|w| w.contains("ω² = ⟨v²⟩/var(x)")));
+}
