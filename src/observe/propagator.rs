@@ -49,6 +49,7 @@ use thiserror::Error;
 
 use crate::seed;
 
+
 /// A mistake in the input of the diffusion analysis.
 #[derive(Debug, Error, Clone, PartialEq)]
 pub enum PropagatorError {
@@ -713,10 +714,7 @@ fn langevin_chain(
         let (neg, grad) = post.negative_with_gradient(&theta_of(u));
         (-neg, -(shape.transpose() * DVector::from_vec(grad)))
     };
-    let mut rng = seed::stream(
-        seed::derive(settings.seed, seed::POSTERIOR_DIFFUSION),
-        lag as u64,
-    );
+    let mut rng = seed::stream(seed::derive(settings.seed, seed::POSTERIOR_DIFFUSION), lag as u64);
     // Optimal scale for a d-dimensional standard normal target (Roberts & Rosenthal 1998).
     let mut h = 1.65 / (d as f64).powf(1.0 / 6.0);
     let mut u = DVector::zeros(d);
