@@ -22,6 +22,8 @@ pub const OBSERVED_BOOTSTRAP: u64 = 0xb007_5742_0000_0005;
 pub const POSTERIOR_DIFFUSION: u64 = 0xd1ff_0000_0000_0014;
 /// Salt of the σ_D draws of the uncertainty propagation (independent of the σ_U draws).
 pub const DIFFUSION_DRAWS: u64 = 0xd1ff_d12a_0000_0006;
+/// Salt of the block bootstrap of observed velocities (friction and memory kernel).
+pub const VELOCITY_BOOTSTRAP: u64 = 0x0e10_c17e_0000_0015;
 /// Seed of the smoothing fit's fixed probe vectors (the fit must not depend on any user seed).
 pub const PROBES: u64 = 0x05ee_df17;
 /// Multiplier spreading scan point indices before mixing them into the master seed.
@@ -47,4 +49,27 @@ pub fn stream(seed: u64, index: u64) -> Pcg64 {
 #[inline]
 pub fn derive(seed: u64, salt: u64) -> u64 {
     splitmix64(seed ^ salt)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Two uses sharing a salt would draw the same numbers from one master seed.
+    #[test]
+    fn salts_are_distinct() {
+        let mut s = [
+            REACTIVE_FLUX,
+            TRANSITIONS,
+            PERIODIC,
+            FFS,
+            OBSERVED_BOOTSTRAP,
+            POSTERIOR_DIFFUSION,
+            DIFFUSION_DRAWS,
+            VELOCITY_BOOTSTRAP,
+            PROBES,
+        ];
+        s.sort_unstable();
+        assert!(s.windows(2).all(|w| w[0] != w[1]), "{s:x?}");
+    }
 }

@@ -6,7 +6,8 @@
 //! ([`correlation`]), the Boltzmann-inverted free energy with its block-bootstrap σ_U
 //! ([`free_energy`]), the core-to-core kinetics ([`kinetics`]), position-dependent diffusion by
 //! the Bayesian propagator method and conditional moments ([`propagator`]), and D from umbrella
-//! windows ([`umbrella`]). Reading and the first three are streamed: each
+//! windows ([`umbrella`]), and friction and memory time from velocities (the velocity
+//! autocorrelation and the Volterra-inverted memory kernel, [`velocity`]). Reading and the first three are streamed: each
 //! pass reads every file once and feeds fixed-size accumulators, so memory does not grow with the
 //! length of a trajectory.
 //!
@@ -25,6 +26,7 @@ pub mod kinetics;
 pub mod propagator;
 pub mod read;
 pub mod umbrella;
+pub mod velocity;
 
 use serde::Serialize;
 use thiserror::Error;
