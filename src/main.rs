@@ -503,8 +503,8 @@ fn observe_failure(e: ObserveError) -> Failure {
 
 /// A scenario reading the written profile table: [units] and [particle] as in `scenario` (the
 /// file's own text, so unit strings stay as written), the table, and the reactant at core A.
-/// When the table has a D column (`table_d`), [particle] keeps only what D does not give (mass,
-/// memory time): the scenario reader refuses a second D beside the table's.
+/// When the table has a D column (`table_d`), [particle] keeps only the mass: the scenario reader
+/// refuses a second D beside the table's, and a memory time needs a friction.
 fn scenario_for_profile(
     scenario: Option<&Path>,
     profile: &Path,
@@ -527,15 +527,13 @@ fn scenario_for_profile(
         particle = t.remove("particle");
     }
     if table_d && let Some(toml::Value::Table(p)) = &mut particle {
-        for key in [
-            "diffusion",
-            "diffusion_expr",
-            "friction",
-            "viscosity",
-            "radius",
-        ] {
-            p.remove(key);
+        if p.contains_key("memory_time") {
+            note = Some(format!(
+                "{}: particle.memory_time left out (a memory kernel needs particle.friction, which the table's D replaces)",
+                out.display()
+            ));
         }
+        p.retain(|key, _| key == "mass");
         if p.is_empty() {
             particle = None;
         }
@@ -571,6 +569,7 @@ fn scenario_for_profile(
     let mut states = toml::Table::new();
     states.insert("start".into(), start.into());
     doc.insert("states".into(), states.into());
+    let particle_missing = !table_d && !doc.contains_key("particle");
     // sections in the order a person writes them
     let mut body = String::new();
     for name in ["units", "particle", "potential", "states"] {
@@ -589,7 +588,7 @@ fn scenario_for_profile(
         if table_d { " and D(x)" } else { "" },
         profile.display()
     );
-    let tail = if note.is_some() {
+    let tail = if particle_missing {
         "[particle]\n# diffusion = ...   # not known from the trajectories: fill in\n"
     } else {
         ""

@@ -713,3 +713,45 @@ fn diffusion_options_are_checked() {
         assert_one_line(&format!("{args:?}"), code, &err, &[want]);
     }
 }
+
+// With --diffusion the written scenario's [particle] keeps only the mass: the table's D replaces
+// the friction, and a memory time (which needs a friction) is left out with a note (common
+// practice, no source: the scenario reader refuses a second D beside a table's).
+#[test]
+fn written_scenario_keeps_only_the_mass_beside_a_d_column() {
+    let model = MODEL
+        .replace(
+            "[particle]\ndiffusion = 1.0",
+            "[particle]\nmass = 20\nfriction = 50\nmemory_time = 0.05",
+        )
+        .replace("temperature = 300", "temperature = 300\nmass = \"amu\"");
+    std::fs::write(dir().join("inertial.toml"), model).unwrap();
+    let (csv, toml) = (path("profile_m.csv"), path("fitted_m.toml"));
+    let r = json_of(&[
+        "observe",
+        &path("run0.csv"),
+        "--scenario",
+        &path("inertial.toml"),
+        "--diffusion",
+        "--lags",
+        "5",
+        "--d-bins",
+        "12",
+        "--profile",
+        &csv,
+        "--scenario-out",
+        &toml,
+        "--json",
+    ]);
+    let text = std::fs::read_to_string(&toml).unwrap();
+    let doc: toml::Table = text.parse().unwrap();
+    let particle = doc["particle"].as_table().unwrap();
+    assert_eq!(particle.keys().collect::<Vec<_>>(), ["mass"], "{text}");
+    let notes = r["notes"].as_array().unwrap();
+    assert!(
+        notes
+            .iter()
+            .any(|n| n.as_str().unwrap().contains("memory_time left out")),
+        "{notes:?}"
+    );
+}
