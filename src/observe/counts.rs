@@ -382,6 +382,11 @@ impl Diffusion {
                 w.lag_frames
             ))
         )];
+        notes.push(format!(
+            "the lattice model raises D by about Δx²/(12DΔt) where the free energy is flat ({:.1}% at lag {} frames, taken at the smallest D) and by about F''Δx²/4 in a well of curvature F'' (kT per length²)",
+            100.0 * fit.bin_bias,
+            fit.lag_frames
+        ));
         notes.push(propagator::MOMENT_NOTE.to_string());
         let mut warnings: Vec<String> = scan
             .fits
@@ -401,7 +406,7 @@ impl Diffusion {
             lag_frames: fit.lag_frames,
             lag_time: fit.lag_time,
             lag_rule: format!(
-                "the shortest lag whose bin-spread bias Δx²/(12DΔt) is at most {:.0}% (else the least biased)",
+                "the shortest lag whose bin-spread bias Δx²/(12DΔt) is at most {:.0}%, else the least biased",
                 100.0 * propagator::BIN_BIAS_WARN
             ),
             interfaces,

@@ -329,7 +329,7 @@ fn diffusion_counter(
     let count = d.bins.unwrap_or(counts::DEFAULT_BINS);
     let bins = counts::range(fe, count)?;
     let rule = format!(
-        "between the {}% and {}% quantiles of the positions (read off the histogram, rounded outward to its bins)",
+        "between the {}% and {}% quantiles of the positions, read off the histogram and rounded outward to its bins",
         100.0 * counts::TAIL,
         100.0 * (1.0 - counts::TAIL)
     );

@@ -1457,7 +1457,7 @@ fn observe_diffusion(
     let b = &d.bins;
     let _ = writeln!(
         out,
-        "D(x) by the Bayesian propagator (Hummer 2005): {} bins of {} {} over [{}, {}] {} ({}); posterior median and 95% interval at lag {} frames = {} {} ({})",
+        "D(x) by the Bayesian propagator (Hummer 2005): {} bins of {} {} over [{}, {}] {}, {}; posterior median and 95% interval at lag {} frames = {} {}, {}",
         b.count,
         num(b.width()),
         u.l,
