@@ -70,10 +70,28 @@ pub struct ObserveOpts {
     /// histogram bin width (default: Scott's rule)
     #[arg(long, value_name = "W")]
     pub bin_width: Option<f64>,
-    /// write the free energy as a profile table (x, U, sigma_U) that scenarios read
+    /// also estimate D(x) by the Bayesian propagator method (Hummer 2005) at several lags,
+    /// with the conditional-moment D(x) beside it
+    #[arg(long)]
+    pub diffusion: bool,
+    /// lags of the D(x) analysis, in frames
+    #[arg(
+        long,
+        value_name = "L,L,...",
+        value_delimiter = ',',
+        requires = "diffusion",
+        default_value = "1,2,5,10"
+    )]
+    pub lags: Vec<usize>,
+    /// bins of the D(x) analysis (default 30, between the 0.5% and 99.5% quantiles)
+    #[arg(long, value_name = "N", requires = "diffusion")]
+    pub d_bins: Option<usize>,
+    /// write the free energy as a profile table (x, U, sigma_U; with --diffusion also D,
+    /// sigma_D) that scenarios read
     #[arg(long, value_name = "FILE.csv")]
     pub profile: Option<PathBuf>,
-    /// also write a scenario that reads that table ([units] and [particle] from --scenario)
+    /// also write a scenario that reads that table ([units] and [particle] from --scenario; with
+    /// --diffusion the table's D replaces the diffusion or friction of [particle])
     #[arg(long, value_name = "FILE.toml", requires = "profile")]
     pub scenario_out: Option<PathBuf>,
     /// seed of the bootstrap

@@ -503,11 +503,14 @@ fn observe_failure(e: ObserveError) -> Failure {
 
 /// A scenario reading the written profile table: [units] and [particle] as in `scenario` (the
 /// file's own text, so unit strings stay as written), the table, and the reactant at core A.
+/// When the table has a D column (`table_d`), [particle] keeps only the mass: the scenario reader
+/// refuses a second D beside the table's, and a memory time needs a friction.
 fn scenario_for_profile(
     scenario: Option<&Path>,
     profile: &Path,
     out: &Path,
     start: f64,
+    table_d: bool,
 ) -> Result<(String, Option<String>), Failure> {
     let mut doc = toml::Table::new();
     let mut note = None;
@@ -523,10 +526,23 @@ fn scenario_for_profile(
         }
         particle = t.remove("particle");
     }
+    if table_d && let Some(toml::Value::Table(p)) = &mut particle {
+        if p.contains_key("memory_time") {
+            note = Some(format!(
+                "{}: particle.memory_time left out (a memory kernel needs particle.friction, which the table's D replaces)",
+                out.display()
+            ));
+        }
+        p.retain(|key, _| key == "mass");
+        if p.is_empty() {
+            particle = None;
+        }
+    }
     match particle {
         Some(p) => {
             doc.insert("particle".into(), p);
         }
+        None if table_d => {}
         None => {
             note = Some(format!(
                 "{}: give [particle] (a diffusion coefficient or a mass and friction) before `rate` reads it; trajectories alone do not fix the dynamics here",
@@ -553,6 +569,7 @@ fn scenario_for_profile(
     let mut states = toml::Table::new();
     states.insert("start".into(), start.into());
     doc.insert("states".into(), states.into());
+    let particle_missing = !table_d && !doc.contains_key("particle");
     // sections in the order a person writes them
     let mut body = String::new();
     for name in ["units", "particle", "potential", "states"] {
@@ -567,10 +584,11 @@ fn scenario_for_profile(
         }
     }
     let head = format!(
-        "# written by `escapade observe`: the free energy of observed trajectories ({}); start = centre of core A\n",
+        "# written by `escapade observe`: the free energy{} of observed trajectories ({}); start = centre of core A\n",
+        if table_d { " and D(x)" } else { "" },
         profile.display()
     );
-    let tail = if note.is_some() {
+    let tail = if particle_missing {
         "[particle]\n# diffusion = ...   # not known from the trajectories: fill in\n"
     } else {
         ""
@@ -596,6 +614,11 @@ fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
         cores: o.cores.as_deref().map(parse_cores).transpose()?,
         seed: o.seed,
         resamples: o.resamples,
+        diffusion: o.diffusion.then(|| observe::counts::DiffusionOptions {
+            lags: o.lags.clone(),
+            bins: o.d_bins,
+            ..observe::counts::DiffusionOptions::default()
+        }),
         ..observe::Options::default()
     };
     let sources: Vec<Source> = o.files.iter().cloned().map(Source::File).collect();
@@ -603,14 +626,23 @@ fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
     let mut r = ObserveReport::new(observed, &units, scenario);
     if let Some(path) = &o.profile {
         let mut text = Vec::new();
-        observe::write_profile(&r.observed.free_energy, units.kt_in_energy_unit, &mut text)
-            .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
+        let (fe, kt) = (&r.observed.free_energy, units.kt_in_energy_unit);
+        match &r.observed.diffusion {
+            Some(d) => observe::counts::write_profile_with_diffusion(fe, kt, d, &mut text),
+            None => observe::write_profile(fe, kt, &mut text),
+        }
+        .map_err(|e| Failure::user(format!("{}: cannot write: {e}", path.display())))?;
         write_file(path, &String::from_utf8_lossy(&text))?;
         r.written.profile = Some(path.display().to_string());
         if let Some(out) = &o.scenario_out {
             let a = r.observed.kinetics.core_a;
-            let (text, note) =
-                scenario_for_profile(o.scenario.as_deref(), path, out, 0.5 * (a.lo + a.hi))?;
+            let (text, note) = scenario_for_profile(
+                o.scenario.as_deref(),
+                path,
+                out,
+                0.5 * (a.lo + a.hi),
+                r.observed.diffusion.is_some(),
+            )?;
             write_file(out, &text)?;
             r.written.scenario = Some(out.display().to_string());
             r.notes.extend(note);

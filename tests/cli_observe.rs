@@ -420,3 +420,338 @@ fn bad_files_name_the_file_and_the_line() {
         assert_one_line(&format!("{args:?}"), code, &err, &[want]);
     }
 }
+
+/// Files of the run with `--diffusion`: its JSON, the profile and the scenario it wrote.
+fn with_diffusion() -> &'static (Value, String, String) {
+    static R: OnceLock<(Value, String, String)> = OnceLock::new();
+    R.get_or_init(|| {
+        let (csv, toml) = (path("profile_d.csv"), path("fitted_d.toml"));
+        let out = observe_both(&[
+            "--diffusion",
+            "--json",
+            "--profile",
+            &csv,
+            "--scenario-out",
+            &toml,
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        (serde_json::from_slice(&out.stdout).unwrap(), csv, toml)
+    })
+}
+
+/// The interface nearest x.
+fn interface_near(d: &Value, x: f64) -> &Value {
+    d["interfaces"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .min_by(|a, b| {
+            let dist = |v: &Value| (v["x"].as_f64().unwrap() - x).abs();
+            dist(a).total_cmp(&dist(b))
+        })
+        .unwrap()
+}
+
+// D(x) of the constant-D double well at the wells (x = ±1 nm) and the barrier (x = 0). Truth:
+// D = 1 nm²/ps of the generator, raised by the biases the propagator module states: the spread
+// of positions inside the bins, Δx²/(12DΔt), and the lattice's F''Δx²/4 (U'' = 4E_b(3x² − 1):
+// +28 kT/nm² in the wells, −14 at the top, where the sign is carried over from the wells' form).
+// Tolerance: 4 σ_D with σ_D = the reported 95% interval's half width / 1.96, so the check is that
+// the truth lies within the reported interval widened from 2 to 4 σ. Beside it the
+// conditional-moment D in the wells, biased low by the finite lag (for an Ornstein–Uhlenbeck well
+// of curvature k: D(1 − e^{−2kDΔt})/(2kDΔt) = 0.60 D at Δt = 0.02 ps; see
+// tests/observe_diffusion.rs), lies more than 4 se below 1.
+#[test]
+fn diffusion_covers_the_generating_d_at_the_wells_and_the_barrier() {
+    let d = &with_diffusion().0["diffusion"];
+    let dx = d["bins"]["hi"].as_f64().unwrap() - d["bins"]["lo"].as_f64().unwrap();
+    let dx = dx / d["bins"]["count"].as_f64().unwrap();
+    let lag = d["lag_time"].as_f64().unwrap();
+    for x in [-1.0, 0.0, 1.0] {
+        let i = interface_near(d, x);
+        let at = i["x"].as_f64().unwrap();
+        let curvature = 4.0 * EB * (3.0 * at * at - 1.0);
+        let expected = 1.0 + dx * dx / (12.0 * lag) + curvature * dx * dx / 4.0;
+        let (median, sigma) = (i["d"].as_f64().unwrap(), i["sigma_d"].as_f64().unwrap());
+        let ci = [
+            i["ci95"][0].as_f64().unwrap(),
+            i["ci95"][1].as_f64().unwrap(),
+        ];
+        assert!((sigma - (ci[1] - ci[0]) / 3.92).abs() < 1e-12 * sigma);
+        // a real error bar: between 1% and 20% of D for ~10^5 transitions per lag
+        assert!(sigma > 0.01 && sigma < 0.2, "x {at}: σ_D {sigma}");
+        assert!(
+            (median - expected).abs() < 4.0 * sigma,
+            "x {at}: D {median} ± {sigma} {ci:?}, expected {expected}"
+        );
+        if x != 0.0 {
+            let (m, se) = (
+                i["moments_d"].as_f64().unwrap(),
+                i["moments_se"].as_f64().unwrap(),
+            );
+            assert!(
+                m < 1.0 - 4.0 * se && m < ci[0],
+                "x {at}: moments {m} ± {se}"
+            );
+        }
+    }
+}
+
+// The JSON of --diffusion has the documented keys (README, "Your own trajectories"), and
+// "diffusion" is null without it (common practice, no source).
+#[test]
+fn diffusion_json_has_the_documented_keys() {
+    assert!(observed()["diffusion"].is_null());
+    let d = &with_diffusion().0["diffusion"];
+    for key in [
+        "bins",
+        "range_rule",
+        "interval",
+        "pairs",
+        "lag_frames",
+        "lag_time",
+        "lag_rule",
+        "interfaces",
+        "scan",
+        "moments",
+        "notes",
+        "warnings",
+    ] {
+        assert!(d.get(key).is_some(), "diffusion.{key}");
+    }
+    for key in ["lo", "hi", "count"] {
+        assert!(d["bins"].get(key).is_some(), "bins.{key}");
+    }
+    assert_eq!(d["bins"]["count"], 30);
+    assert_eq!(d["interfaces"].as_array().unwrap().len(), 29);
+    for key in ["x", "d", "ci95", "sigma_d", "moments_d", "moments_se"] {
+        assert!(d["interfaces"][0].get(key).is_some(), "interfaces.{key}");
+    }
+    for key in ["lag_frames", "pairs", "counted", "dropped_fraction"] {
+        assert!(d["pairs"][0].get(key).is_some(), "pairs.{key}");
+    }
+    for key in ["fits", "max_relative_spread", "inconsistent", "warning"] {
+        assert!(d["scan"].get(key).is_some(), "scan.{key}");
+    }
+    let lags: Vec<u64> = d["scan"]["fits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f["lag_frames"].as_u64().unwrap())
+        .collect();
+    assert_eq!(lags, [1, 2, 5, 10]);
+    for key in ["diffusion", "bin_bias", "acceptance", "free_energy"] {
+        assert!(d["scan"]["fits"][0].get(key).is_some(), "fits.{key}");
+    }
+    for key in ["lag_frames", "lag_time", "bins", "note"] {
+        assert!(d["moments"][0].get(key).is_some(), "moments.{key}");
+    }
+    for key in ["x", "samples", "drift", "d_raw", "d", "d_se"] {
+        assert!(
+            d["moments"][0]["bins"][0].get(key).is_some(),
+            "moments.bins.{key}"
+        );
+    }
+    // 0.5% is left out at each end of the range: about 1% of the pairs are dropped
+    let f = d["pairs"][0]["dropped_fraction"].as_f64().unwrap();
+    assert!(f > 0.002 && f < 0.05, "dropped {f}");
+    assert!((d["interval"].as_f64().unwrap() - 0.01).abs() < 1e-9);
+}
+
+// The written profile carries D and sigma_D (read here as CSV text: the table reader learns
+// sigma_D separately): D at each row interpolated in ln D between the interfaces, sigma_D = the
+// 95% half width / 1.96 interpolated linearly, the ends' values beyond them (the rules the
+// README states; exact up to rounding). Without sigma_D, `rate` reads the written scenario,
+// which has no [particle]: the table's D gives the dynamics. Reference: the generating model's
+// exact 1/MFPT from `rate` (Szabo, Schulten & Schulten 1980). Tolerance: 4 σ of ln k from the
+// barrier's σ_U (hypot of the top and the minimum) and σ_D/D at the top, plus 0.15 for the
+// lattice biases of D (≈ 6% in the wells, 3% from the bins' spread) and the histogram's bins.
+#[test]
+fn profile_has_d_columns_and_rate_reads_them() {
+    let (r, csv, toml) = with_diffusion();
+    let d = &r["diffusion"];
+    let text = std::fs::read_to_string(csv).unwrap();
+    let header = text.lines().find(|l| !l.starts_with('#')).unwrap();
+    assert_eq!(header, "x,U,sigma_U,D,sigma_D");
+    let rows: Vec<Vec<f64>> = text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with('x'))
+        .map(|l| l.split(',').map(|f| f.parse().unwrap()).collect())
+        .collect();
+    let iface: Vec<[f64; 3]> = d["interfaces"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|i| {
+            [
+                i["x"].as_f64().unwrap(),
+                i["d"].as_f64().unwrap(),
+                i["sigma_d"].as_f64().unwrap(),
+            ]
+        })
+        .collect();
+    let expect = |x: f64| -> (f64, f64) {
+        let (first, last) = (iface[0], iface[iface.len() - 1]);
+        if x <= first[0] {
+            return (first[1], first[2]);
+        }
+        if x >= last[0] {
+            return (last[1], last[2]);
+        }
+        let k = iface.iter().rposition(|i| i[0] <= x).unwrap();
+        let (a, b) = (iface[k], iface[k + 1]);
+        let w = (x - a[0]) / (b[0] - a[0]);
+        (
+            ((1.0 - w) * a[1].ln() + w * b[1].ln()).exp(),
+            (1.0 - w) * a[2] + w * b[2],
+        )
+    };
+    assert!(rows.len() > 20);
+    for row in &rows {
+        assert_eq!(row.len(), 5);
+        let (dd, sd) = expect(row[0]);
+        assert!(
+            (row[3] - dd).abs() < 1e-12 * dd,
+            "x {}: D {} vs {dd}",
+            row[0],
+            row[3]
+        );
+        assert!(
+            (row[4] - sd).abs() < 1e-12 * sd,
+            "x {}: σ_D {} vs {sd}",
+            row[0],
+            row[4]
+        );
+    }
+    let scenario = std::fs::read_to_string(toml).unwrap();
+    assert!(!scenario.contains("[particle]"), "{scenario}");
+    // until the reader knows sigma_D: the same table without that column
+    let without: String = text
+        .lines()
+        .map(|l| {
+            if l.starts_with('#') {
+                l.to_string()
+            } else {
+                l.rsplit_once(',').unwrap().0.to_string()
+            }
+        })
+        .map(|l| l + "\n")
+        .collect();
+    std::fs::write(csv, without).unwrap();
+    let rate = json_of(&["rate", toml, "--json"]);
+    let exact = json_of(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
+        .as_f64()
+        .unwrap();
+    let k = rate["rates"]["mfpt"].as_f64().unwrap();
+    let l = &rate["landscape"];
+    let near = |x: f64| {
+        rows.iter()
+            .min_by(|a, b| (a[0] - x).abs().total_cmp(&(b[0] - x).abs()))
+            .unwrap()
+    };
+    let (top, bottom) = (
+        near(l["barrier"].as_f64().unwrap()),
+        near(l["reactant"].as_f64().unwrap()),
+    );
+    let sigma = (top[2].hypot(bottom[2]) / 2.494_339).hypot(top[4] / top[3]);
+    let tol = 4.0 * sigma + 0.15;
+    assert!(
+        (k / exact).ln().abs() < tol,
+        "rate {k} from the written profile with D, exact {exact} (tolerance {tol} in ln k)"
+    );
+}
+
+// The table shows a compact D(x): the wells and the barrier marked, about a third of the
+// interfaces, the lag scan and the note on dropped pairs (common practice, no source).
+#[test]
+fn table_shows_a_compact_diffusion_profile() {
+    let out = observe_both(&["--diffusion", "--lags", "2,5", "--d-bins", "24"]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    for want in [
+        "D(x) by the Bayesian propagator",
+        "D (nm²/ps)",
+        "95% interval",
+        "conditional moments D",
+        "well A",
+        "barrier",
+        "well B",
+        "lag scan over 2, 5 frames",
+        "are dropped",
+        "24 bins",
+    ] {
+        assert!(text.contains(want), "no \"{want}\" in\n{text}");
+    }
+    let part = &text[text.find("D(x) by the Bayesian").unwrap()..];
+    let rows = part
+        .lines()
+        .take_while(|l| !l.starts_with("lag scan"))
+        .filter(|l| l.starts_with('│'))
+        .count();
+    // a header and at most every third of 23 interfaces plus three marked ones
+    assert!((6..=12).contains(&rows), "{rows} rows in\n{part}");
+}
+
+// Options of --diffusion: one line, exit 2, naming the option (common practice, no source).
+#[test]
+fn diffusion_options_are_checked() {
+    const CORES: &str = "--cores=-1:-0.5,0.5:1";
+    let good: String = (1..=400)
+        .map(|i| format!("{},{}\n", i as f64 * 0.01, (i as f64 * 0.3).sin()))
+        .collect();
+    for (args, want) in [
+        (&["--lags", "1,2"][..], "--diffusion"),
+        (&["--diffusion", "--d-bins", "2", CORES][..], "--d-bins"),
+        (&["--diffusion", "--lags", "0,2", CORES][..], "--lags"),
+        (&["--diffusion", "--lags", "x"][..], "--lags"),
+    ] {
+        let (code, err) = bad("d_ok.csv", &good, args);
+        assert_one_line(&format!("{args:?}"), code, &err, &[want]);
+    }
+}
+
+// With --diffusion the written scenario's [particle] keeps only the mass: the table's D replaces
+// the friction, and a memory time (which needs a friction) is left out with a note (common
+// practice, no source: the scenario reader refuses a second D beside a table's).
+#[test]
+fn written_scenario_keeps_only_the_mass_beside_a_d_column() {
+    let model = MODEL
+        .replace(
+            "[particle]\ndiffusion = 1.0",
+            "[particle]\nmass = 20\nfriction = 50\nmemory_time = 0.05",
+        )
+        .replace("temperature = 300", "temperature = 300\nmass = \"amu\"");
+    std::fs::write(dir().join("inertial.toml"), model).unwrap();
+    let (csv, toml) = (path("profile_m.csv"), path("fitted_m.toml"));
+    let r = json_of(&[
+        "observe",
+        &path("run0.csv"),
+        "--scenario",
+        &path("inertial.toml"),
+        "--diffusion",
+        "--lags",
+        "5",
+        "--d-bins",
+        "12",
+        "--profile",
+        &csv,
+        "--scenario-out",
+        &toml,
+        "--json",
+    ]);
+    let text = std::fs::read_to_string(&toml).unwrap();
+    let doc: toml::Table = text.parse().unwrap();
+    let particle = doc["particle"].as_table().unwrap();
+    assert_eq!(particle.keys().collect::<Vec<_>>(), ["mass"], "{text}");
+    let notes = r["notes"].as_array().unwrap();
+    assert!(
+        notes
+            .iter()
+            .any(|n| n.as_str().unwrap().contains("memory_time left out")),
+        "{notes:?}"
+    );
+}

@@ -3,6 +3,8 @@
 //! and the line; no transition gives no rate. The data are short Euler–Maruyama runs in a double
 //! well (E_b = 4 kT, D = 1) from fixed-seed streams.
 
+use escapade::observe::counts::DiffusionOptions;
+use escapade::observe::propagator::BayesSettings;
 use escapade::observe::{
     self, ColumnRef, Columns, Interval, ObserveError, ObservedReport, Options, Source,
 };
@@ -292,4 +294,55 @@ fn no_transition_gives_no_rate() {
     };
     let e = observe::analyse(&src, &bad).unwrap_err().to_string();
     assert!(e.starts_with("cores:") && e.contains("overlap"), "{e}");
+}
+
+// (e) The D(x) pass streams too: the transition counts and increments at several lags keep a
+// ring buffer per trajectory, so chunks of 1, 7, 4096 or everything give bit-identical D(x),
+// lag scan and conditional moments; the other parts of the report are those of the run without
+// it, bit for bit (the pass only adds a sink). A short chain keeps the fits quick (the check is
+// identity, not accuracy).
+#[test]
+fn diffusion_pass_does_not_depend_on_the_chunks() {
+    let mem: Vec<Source> = (0..2)
+        .map(|i| Source::Samples {
+            name: format!("t{i}"),
+            values: trajectory(i, 40_000, 4.0),
+            dt: DT,
+        })
+        .collect();
+    let with = |chunk: usize| Options {
+        chunk,
+        diffusion: Some(DiffusionOptions {
+            lags: vec![3, 1],
+            bins: Some(12),
+            settings: BayesSettings {
+                iterations: 200,
+                burn_in: 100,
+                ..BayesSettings::default()
+            },
+        }),
+        ..options()
+    };
+    let reference = observe::analyse(&mem, &with(4096)).unwrap();
+    let d = reference.diffusion.as_ref().unwrap();
+    // lags sorted
+    let lags: Vec<usize> = d.scan.fits.iter().map(|f| f.lag_frames).collect();
+    assert_eq!(lags, [1, 3]);
+    assert!(d.scan.fits[0].transitions > 70_000);
+    let want = body(&reference);
+    for chunk in [1, 7, usize::MAX] {
+        assert_eq!(
+            body(&observe::analyse(&mem, &with(chunk)).unwrap()),
+            want,
+            "chunk {chunk}"
+        );
+    }
+    let mut without = serde_json::to_value(observe::analyse(&mem, &options()).unwrap()).unwrap();
+    let mut v = serde_json::to_value(&reference).unwrap();
+    v.as_object_mut().unwrap().remove("diffusion");
+    without.as_object_mut().unwrap().remove("diffusion");
+    // the D(x) warnings are added at the end of the list
+    let n = without["warnings"].as_array().unwrap().len();
+    v["warnings"].as_array_mut().unwrap().truncate(n);
+    assert_eq!(v, without);
 }

@@ -15,12 +15,14 @@
 //! 1. moments, range and the multiple-tau autocorrelation of the position (→ τ_int);
 //! 2. the histogram, kept per block of ≥ [`free_energy::BLOCK_TAU`] τ_int samples (→ U, σ_U);
 //! 3. the transition counters for the cores (given, or placed from U) and their shrunk and grown
-//!    variants.
+//!    variants; with [`Options::diffusion`], also the bin-to-bin counts and increments at several
+//!    lags on bins placed from the histogram ([`counts`]), from which D(x) is fitted.
 //!
 //! Units: positions and times are taken as they are in the files (the caller converts to the
 //! scenario's units); energies are in kT.
 
 pub mod correlation;
+pub mod counts;
 pub mod free_energy;
 pub mod kinetics;
 pub mod propagator;
@@ -95,6 +97,15 @@ impl<A: Sink, B: Sink> Sink for (A, B) {
     }
 }
 
+impl<S: Sink + ?Sized> Sink for &mut S {
+    fn feed(&mut self, xs: &[f64]) {
+        (**self).feed(xs);
+    }
+    fn end(&mut self, dt: f64) {
+        (**self).end(dt);
+    }
+}
+
 impl<S: Sink> Sink for [S] {
     fn feed(&mut self, xs: &[f64]) {
         for s in self.iter_mut() {
@@ -129,6 +140,8 @@ pub struct Options {
     pub resamples: usize,
     /// samples per chunk handed to the accumulators (results do not depend on it)
     pub chunk: usize,
+    /// also D(x) by the propagator method (the posterior's seed is `seed`)
+    pub diffusion: Option<counts::DiffusionOptions>,
 }
 
 impl Default for Options {
@@ -141,6 +154,7 @@ impl Default for Options {
             seed: 1,
             resamples: DEFAULT_RESAMPLES,
             chunk: read::CHUNK,
+            diffusion: None,
         }
     }
 }
@@ -179,6 +193,8 @@ pub struct ObservedReport {
     pub free_energy: FreeEnergy,
     /// core-to-core kinetics
     pub kinetics: Kinetics,
+    /// D(x) (null unless asked for)
+    pub diffusion: Option<counts::Diffusion>,
     /// everything the user should know (also repeated in the parts)
     pub warnings: Vec<String>,
 }
@@ -261,9 +277,28 @@ pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, Obs
         .iter()
         .map(|&c| kinetics::Counter::new(c))
         .collect();
-    pass(sources, opts, counters.as_mut_slice())?;
+    let mut lag_counter = match &opts.diffusion {
+        Some(d) => Some(diffusion_counter(&free_energy, d)?),
+        None => None,
+    };
+    match &mut lag_counter {
+        Some((c, _)) => pass(sources, opts, &mut (counters.as_mut_slice(), c))?,
+        None => pass(sources, opts, counters.as_mut_slice())?,
+    };
     let kinetics = kinetics::Kinetics::new(&counters, opts.cores.is_some());
     warnings.extend(kinetics.warnings.iter().cloned());
+    let diffusion = match (lag_counter, &opts.diffusion) {
+        (Some((c, rule)), Some(d)) => {
+            let settings = propagator::BayesSettings {
+                seed: opts.seed,
+                ..d.settings
+            };
+            let r = counts::Diffusion::new(&c, &settings, rule)?;
+            warnings.extend(r.warnings.iter().cloned());
+            Some(r)
+        }
+        _ => None,
+    };
     let total_time = infos.iter().map(|i| i.duration).sum();
     Ok(ObservedReport {
         samples,
@@ -273,6 +308,32 @@ pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, Obs
         correlation,
         free_energy,
         kinetics,
+        diffusion,
         warnings,
     })
+}
+
+/// The streamed counter of the D(x) pass on bins placed from the histogram, with the rule in
+/// words.
+fn diffusion_counter(
+    fe: &FreeEnergy,
+    d: &counts::DiffusionOptions,
+) -> Result<(counts::LagCounter, String), ObserveError> {
+    let mut lags = d.lags.clone();
+    lags.sort_unstable();
+    lags.dedup();
+    if lags.is_empty() || lags[0] == 0 {
+        return Err(ObserveError::Option {
+            option: "lags",
+            message: "give one or more lags of at least 1 frame".into(),
+        });
+    }
+    let count = d.bins.unwrap_or(counts::DEFAULT_BINS);
+    let bins = counts::range(fe, count)?;
+    let rule = format!(
+        "between the {}% and {}% quantiles of the positions, read off the histogram and rounded outward to its bins",
+        100.0 * counts::TAIL,
+        100.0 * (1.0 - counts::TAIL)
+    );
+    Ok((counts::LagCounter::new(bins, &lags), rule))
 }

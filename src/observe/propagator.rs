@@ -571,7 +571,7 @@ fn quantile(sorted: &[f64], q: f64) -> f64 {
 /// Acceptance below this draws a warning: the posterior is far from its Gaussian approximation.
 const LOW_ACCEPTANCE: f64 = 0.2;
 /// A bin-spread bias Δx²/(12DΔt) above this draws a warning.
-const BIN_BIAS_WARN: f64 = 0.05;
+pub const BIN_BIAS_WARN: f64 = 0.05;
 
 /// The Bayesian propagator fit of transition counts taken at lag time `lag_time`.
 pub fn bayesian(
@@ -789,13 +789,35 @@ pub fn lag_scan(
             lag: lags.first().copied().unwrap_or(0),
         });
     }
-    let fits = lags
+    let counts = lags
         .iter()
-        .map(|&lag| {
-            let counts = count_transitions(trajectories, bins, lag)?;
-            bayesian(&counts, bins, lag as f64 * interval, settings)
-        })
+        .map(|&lag| count_transitions(trajectories, bins, lag))
         .collect::<Result<Vec<_>, _>>()?;
+    scan_counts(&counts, interval, bins, settings)
+}
+
+/// The lag scan of counts already taken (one [`Counts`] per lag, frames of `interval`): the
+/// fits run in parallel, each from its own (seed, lag) stream, so the result does not depend on
+/// the thread count.
+pub fn scan_counts(
+    counts: &[Counts],
+    interval: f64,
+    bins: &Bins,
+    settings: &BayesSettings,
+) -> Result<LagScan, PropagatorError> {
+    use rayon::prelude::*;
+    if !(interval > 0.0 && interval.is_finite()) {
+        return Err(PropagatorError::BadLag {
+            interval,
+            lag: counts.first().map_or(0, |c| c.lag),
+        });
+    }
+    let fits: Vec<Result<BayesianFit, PropagatorError>> = counts
+        .par_iter()
+        .map(|c| bayesian(c, bins, c.lag as f64 * interval, settings))
+        .collect();
+    // the first failing lag, whichever thread finished first
+    let fits = fits.into_iter().collect::<Result<Vec<_>, _>>()?;
     let mut max_relative_spread: f64 = 0.0;
     let mut inconsistent = Vec::new();
     for k in 0..bins.count - 1 {

@@ -1445,6 +1445,9 @@ pub fn observe(r: &super::observe::ObserveReport) -> String {
         opt(b.backward[2]),
         spread(b.backward_spread)
     );
+    if let Some(d) = &o.diffusion {
+        observe_diffusion(&mut out, r, d, &u);
+    }
     let w = &r.written;
     for (what, file) in [("profile table", &w.profile), ("scenario", &w.scenario)] {
         if let Some(f) = file {
@@ -1456,4 +1459,87 @@ pub fn observe(r: &super::observe::ObserveReport) -> String {
     }
     warnings(&mut out, &o.warnings);
     out
+}
+
+/// The D(x) part of `observe`: every third interface and those nearest the wells and the barrier
+/// (all of them are in the JSON).
+fn observe_diffusion(
+    out: &mut String,
+    r: &super::observe::ObserveReport,
+    d: &crate::observe::counts::Diffusion,
+    u: &U,
+) {
+    let unit = format!("{}²/{}", u.l, u.t);
+    let b = &d.bins;
+    let _ = writeln!(
+        out,
+        "D(x) by the Bayesian propagator (Hummer 2005): {} bins of {} {} over [{}, {}] {}, {}; posterior median and 95% interval at lag {} frames = {} {}, {}",
+        b.count,
+        num(b.width()),
+        u.l,
+        num(b.lo),
+        num(b.hi),
+        u.l,
+        d.range_rule,
+        d.lag_frames,
+        num(d.lag_time),
+        u.t,
+        d.lag_rule
+    );
+    let rows = &d.interfaces;
+    let nearest = |x: f64| {
+        (0..rows.len()).min_by(|&i, &j| (rows[i].x - x).abs().total_cmp(&(rows[j].x - x).abs()))
+    };
+    let mut marks: Vec<(usize, &str)> = Vec::new();
+    if let Some(bar) = r.profile.as_ref().and_then(|p| p.barrier.as_ref()) {
+        for (x, name) in [
+            (bar.from_a.minimum, "well A"),
+            (bar.x, "barrier"),
+            (bar.from_b.minimum, "well B"),
+        ] {
+            marks.extend(nearest(x).map(|i| (i, name)));
+        }
+    }
+    let mut t = table();
+    t.set_header(vec![
+        format!("x ({})", u.l),
+        String::new(),
+        format!("D ({unit})"),
+        "95% interval".to_string(),
+        format!("conditional moments D ({unit}) ± se"),
+    ]);
+    for (i, row) in rows.iter().enumerate() {
+        let mark = marks.iter().find(|m| m.0 == i).map(|m| m.1);
+        if mark.is_none() && i % 3 != 1 {
+            continue;
+        }
+        let moments = match (row.moments_d, row.moments_se) {
+            (Some(v), Some(se)) => format!("{} ± {}", num(v), num(se)),
+            _ => "—".to_string(),
+        };
+        t.add_row(vec![
+            num(row.x),
+            mark.unwrap_or("").to_string(),
+            num(row.d),
+            format!("[{}, {}]", num(row.ci95[0]), num(row.ci95[1])),
+            moments,
+        ]);
+    }
+    show(out, t);
+    let s = &d.scan;
+    let lags: Vec<String> = s.fits.iter().map(|f| f.lag_frames.to_string()).collect();
+    let _ = writeln!(
+        out,
+        "lag scan over {} frames: the median D changes across lags by at most {:.0}% of its mean{}",
+        lags.join(", "),
+        100.0 * s.max_relative_spread,
+        if s.warning.is_some() {
+            " (see the warning)"
+        } else {
+            ", within the intervals everywhere"
+        }
+    );
+    for n in &d.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
 }
