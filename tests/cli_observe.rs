@@ -562,11 +562,11 @@ fn diffusion_json_has_the_documented_keys() {
     assert!((d["interval"].as_f64().unwrap() - 0.01).abs() < 1e-9);
 }
 
-// The written profile carries D and sigma_D (read here as CSV text: the table reader learns
-// sigma_D separately): D at each row interpolated in ln D between the interfaces, sigma_D = the
+// The written profile carries D and sigma_D (read here as CSV text): D at each row interpolated in ln D between the interfaces, sigma_D = the
 // 95% half width / 1.96 interpolated linearly, the ends' values beyond them (the rules the
-// README states; exact up to rounding). Without sigma_D, `rate` reads the written scenario,
-// which has no [particle]: the table's D gives the dynamics. Reference: the generating model's
+// README states; exact up to rounding). `rate` reads the written scenario as it is, which has no
+// [particle]: the table's D gives the dynamics, and its sigma_D enters the rate intervals beside
+// sigma_U (uncertainty.diffusion_noise says which dominates). Reference: the generating model's
 // exact 1/MFPT from `rate` (Szabo, Schulten & Schulten 1980). Tolerance: 4 σ of ln k from the
 // barrier's σ_U (hypot of the top and the minimum) and σ_D/D at the top, plus 0.15 for the
 // lattice biases of D (≈ 6% in the wells, 3% from the bins' spread) and the histogram's bins.
@@ -629,24 +629,20 @@ fn profile_has_d_columns_and_rate_reads_them() {
     }
     let scenario = std::fs::read_to_string(toml).unwrap();
     assert!(!scenario.contains("[particle]"), "{scenario}");
-    // until the reader knows sigma_D: the same table without that column
-    let without: String = text
-        .lines()
-        .map(|l| {
-            if l.starts_with('#') {
-                l.to_string()
-            } else {
-                l.rsplit_once(',').unwrap().0.to_string()
-            }
-        })
-        .map(|l| l + "\n")
-        .collect();
-    std::fs::write(csv, without).unwrap();
     let rate = json_of(&["rate", toml, "--json"]);
     let exact = json_of(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
         .as_f64()
         .unwrap();
     let k = rate["rates"]["mfpt"].as_f64().unwrap();
+    let sources = &rate["uncertainty"]["diffusion_noise"]["rates"];
+    let mfpt = sources
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["key"] == "mfpt")
+        .unwrap();
+    assert!(mfpt["var_ln_k_diffusion"].as_f64().unwrap() > 0.0, "{mfpt}");
+    assert!(["profile", "diffusion"].contains(&mfpt["dominant"].as_str().unwrap()));
     let l = &rate["landscape"];
     let near = |x: f64| {
         rows.iter()
