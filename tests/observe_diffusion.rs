@@ -70,11 +70,12 @@ fn trajectory(seed: u64, d: Diffusion) -> Vec<f64> {
 }
 
 /// (a) The 95% posterior intervals of D at the wells and the barrier cover the generating D(x),
-/// constant and varying 2x. Source of the truth: the generator itself. 10 seeds × 2 profiles × 3
-/// interfaces = 60 checks at lag 2 frames (bin-spread bias Δx²/(12DΔt) ≤ 1.7%, well lattice bias
-/// ~3%, both well inside the ±10–25% intervals). At 95% coverage 3 misses are expected; more
-/// than 9 (85%) has probability < 1% for independent checks, so the bound fails only when the
-/// intervals are too narrow or biased. (20 seeds would take ~30 s here; 10 keep the file short.)
+/// constant and varying 2x. Source of the truth: the generator itself. 20 seeds × 2 profiles × 3
+/// interfaces = 120 checks at lag 2 frames (bin-spread bias Δx²/(12DΔt) ≤ 1.7%, well lattice bias
+/// ~3%, both well inside the ±10–25% intervals). The issue asks for coverage in at least 90% of
+/// 20 seeds: at most 12 misses. At 95% coverage 6 are expected (binomial sd 2.4), so more than 12
+/// happens with probability < 1% for independent checks: the bound fails only when the intervals
+/// are too narrow or biased. (About 26 s in release.)
 #[test]
 fn intervals_cover_the_generating_diffusion() {
     let bins = bins();
@@ -85,7 +86,7 @@ fn intervals_cover_the_generating_diffusion() {
         ("constant", constant as Diffusion),
         ("ramp", ramp as Diffusion),
     ] {
-        for s in 1..=10u64 {
+        for s in 1..=20u64 {
             let x = trajectory(1000 + s, d);
             let counts = propagator::count_transitions(&[&x], &bins, 2).unwrap();
             let fit = propagator::bayesian(&counts, &bins, 2.0 * FRAME, &settings).unwrap();
@@ -107,8 +108,9 @@ fn intervals_cover_the_generating_diffusion() {
             }
         }
     }
-    assert_eq!(checks, 60);
-    assert!(misses.len() <= 9, "{} misses: {misses:#?}", misses.len());
+    assert_eq!(checks, 120);
+    eprintln!("{} of {checks} checks missed", misses.len());
+    assert!(misses.len() <= 12, "{} misses: {misses:#?}", misses.len());
 }
 
 fn scan(d: Diffusion) -> LagScan {
