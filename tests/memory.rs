@@ -6,7 +6,7 @@
 mod common;
 use common::batch_mean;
 
-use escapade::report::SimulationOut;
+use escapade::report::SimulationResult;
 use escapade::scenario::{Model, Override};
 use escapade::simulate::engine::{Kind, Params, Start, sample_states};
 use escapade::simulate::force::{ConstD, Grid, GridForce};
@@ -99,7 +99,7 @@ fn reactive_flux_transmission_matches_grote_hynes() {
         assert_eq!(plan.scheme, "baoab-memory");
         let (r, wall, threads) =
             simulate::run_rare(&plan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
-        let s = SimulationOut::rare(&plan, r, wall, threads);
+        let s = SimulationResult::rare(&plan, r, wall, threads);
         let k = s.details.reactive_flux.as_ref().unwrap();
         assert!(k.plateau_reached, "gamma/wb {g}, tau wb {tw}: plateau");
         assert_eq!(t.landscape.omega_barrier.unwrap(), wb);
@@ -164,7 +164,7 @@ fn brute_force_rate_matches_grote_hynes_at_6_kt() {
     let fplan = common::plan(&m, &t).unwrap();
     let (res, wall, threads) =
         simulate::run_rare(&fplan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
-    let f = SimulationOut::rare(&fplan, res, wall, threads);
+    let f = SimulationResult::rare(&fplan, res, wall, threads);
     let fse = (f.rate_ci95[1] - f.rate_ci95[0]) / (2.0 * 1.96);
     println!(
         "brute force {k} ± {se}, reactive flux {} ± {fse}, GH {gh}, Kramers {}",
@@ -185,7 +185,7 @@ fn brute_force_rate_matches_grote_hynes_at_6_kt() {
     let splan = common::plan(&m, &t).unwrap();
     let (res, wall, threads) =
         simulate::run_rare(&splan, &m.system, &t, 0, &AtomicBool::new(false)).unwrap();
-    let ffs = SimulationOut::rare(&splan, res, wall, threads);
+    let ffs = SimulationResult::rare(&splan, res, wall, threads);
     let reps = ffs.details.ffs.as_ref().unwrap().replica_rates.len() as f64;
     let tq = StudentsT::new(0.0, 1.0, reps - 1.0)
         .unwrap()

@@ -5,23 +5,23 @@
 mod common;
 use common::{brute_force_rate, model};
 
-use escapade::report::SimulationOut;
+use escapade::report::SimulationResult;
 use escapade::scenario::Model;
 use escapade::simulate::{self, Method};
 use escapade::theory::TheoryReport;
 use statrs::distribution::{ContinuousCDF, StudentsT};
 use std::sync::atomic::AtomicBool;
 
-fn rare(m: &Model, t: &TheoryReport) -> SimulationOut {
+fn rare(m: &Model, t: &TheoryReport) -> SimulationResult {
     let plan = common::plan(m, t).unwrap();
     assert_ne!(plan.method, Method::BruteForce);
     let (r, wall, threads) =
         simulate::run_rare(&plan, &m.system, t, 0, &AtomicBool::new(false)).unwrap();
-    SimulationOut::rare(&plan, r, wall, threads)
+    SimulationResult::rare(&plan, r, wall, threads)
 }
 
 /// Standard error of an FFS rate from its replica spread (the 95% half-width over the t quantile).
-fn ffs_se(s: &SimulationOut) -> f64 {
+fn ffs_se(s: &SimulationResult) -> f64 {
     let r = s.details.ffs.as_ref().unwrap().replica_rates.len() as f64;
     let tq = StudentsT::new(0.0, 1.0, r - 1.0)
         .unwrap()

@@ -307,7 +307,7 @@ impl RateReport {
 }
 
 /// The simulation record (JSON key "simulation"), made by [`crate::simulate::session`].
-pub use crate::simulate::SimulationResult as SimulationOut;
+pub use crate::simulate::SimulationResult;
 
 /// One theory against the simulation.
 #[derive(Debug, Clone, Serialize)]
@@ -341,7 +341,7 @@ pub use crate::theory::accuracy_band;
 /// The comparison rows and a one-line verdict.
 pub fn compare_rows(
     t: &[RateRow],
-    sim: &SimulationOut,
+    sim: &SimulationResult,
     barrier_kt: f64,
 ) -> (Vec<ComparisonRow>, String) {
     let rows: Vec<ComparisonRow> = t
@@ -423,7 +423,7 @@ pub struct SimulateReport {
     /// landscape
     pub landscape: LandscapeOut,
     /// the simulation
-    pub simulation: SimulationOut,
+    pub simulation: SimulationResult,
 }
 
 /// `compare` output: everything of `rate` plus the simulation and the comparison.
@@ -433,7 +433,7 @@ pub struct CompareReport {
     #[serde(flatten)]
     pub theory: RateReport,
     /// the simulation
-    pub simulation: SimulationOut,
+    pub simulation: SimulationResult,
     /// theory against simulation
     pub comparison: Vec<ComparisonRow>,
     /// one line naming the theories that agree

@@ -596,7 +596,7 @@ fn periodic_theory(out: &mut String, p: &super::PeriodicOut, u: &U) {
     show(out, t);
 }
 
-fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
+fn simulation(out: &mut String, s: &super::SimulationResult, u: &U) {
     sim_run(out, s, u);
     if let (Some(esc), Some(cen)) = (s.escaped, s.censored) {
         sim_ensemble(out, s, esc, cen, u);
@@ -618,7 +618,7 @@ fn simulation(out: &mut String, s: &super::SimulationOut, u: &U) {
 }
 
 /// The run: method, dynamics, scheme, dt, seed, threads, time and steps, and why this method.
-fn sim_run(out: &mut String, s: &super::SimulationOut, u: &U) {
+fn sim_run(out: &mut String, s: &super::SimulationResult, u: &U) {
     let _ = writeln!(
         out,
         "simulation: {} {} ({}), dt = {} {} (default {}), seed {}, {} threads, {:.2} s, {} steps",
@@ -640,7 +640,7 @@ fn sim_run(out: &mut String, s: &super::SimulationOut, u: &U) {
 }
 
 /// The ensemble of escapes: counts, rate, MFPT and the shape of the first-passage times.
-fn sim_ensemble(out: &mut String, s: &super::SimulationOut, esc: u64, cen: u64, u: &U) {
+fn sim_ensemble(out: &mut String, s: &super::SimulationResult, esc: u64, cen: u64, u: &U) {
     let _ = writeln!(
         out,
         "{} trajectories{}, max_time = {} {}",
@@ -781,7 +781,7 @@ fn sim_periodic(out: &mut String, p: &crate::simulate::periodic::PeriodicSimResu
 }
 
 /// The escape rate with its interval and how it was built.
-fn sim_rate(out: &mut String, s: &super::SimulationOut, u: &U) {
+fn sim_rate(out: &mut String, s: &super::SimulationResult, u: &U) {
     let _ = writeln!(
         out,
         "escape rate {} /{} [{}, {}] (95%: {}){}",
