@@ -94,6 +94,9 @@ pub struct ObserveOpts {
     /// --diffusion the table's D replaces the diffusion or friction of [particle])
     #[arg(long, value_name = "FILE.toml", requires = "profile")]
     pub scenario_out: Option<PathBuf>,
+    /// draw U(x) with its σ_U bars and the cores (with --diffusion also D(x)) as an SVG picture
+    #[arg(long, value_name = "FILE.svg")]
+    pub plot: Option<PathBuf>,
     /// seed of the bootstrap
     #[arg(long, default_value_t = 1)]
     pub seed: u64,

@@ -648,6 +648,9 @@ fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
             r.notes.extend(note);
         }
     }
+    if let Some(path) = &o.plot {
+        write_file(path, &escapade::report::svg::observed(&r))?;
+    }
     ok(if o.json {
         json::render(&r)
     } else {

@@ -134,11 +134,12 @@ fn json_of(args: &[&str]) -> Value {
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
-/// The observed run of both trajectories in the model's units.
+/// The observed run of both trajectories in the model's units (its picture: observed.svg).
 fn observed() -> &'static Value {
     static R: OnceLock<Value> = OnceLock::new();
     R.get_or_init(|| {
-        let out = observe_both(&["--json"]);
+        let svg = path("observed.svg");
+        let out = observe_both(&["--json", "--plot", &svg]);
         assert!(
             out.status.success(),
             "{}",
@@ -421,12 +422,16 @@ fn bad_files_name_the_file_and_the_line() {
     }
 }
 
-/// Files of the run with `--diffusion`: its JSON, the profile and the scenario it wrote.
+/// Files of the run with `--diffusion`: its JSON, the profile and the scenario it wrote (and its
+/// picture: observed_d.svg).
 fn with_diffusion() -> &'static (Value, String, String) {
     static R: OnceLock<(Value, String, String)> = OnceLock::new();
     R.get_or_init(|| {
         let (csv, toml) = (path("profile_d.csv"), path("fitted_d.toml"));
+        let svg = path("observed_d.svg");
         let out = observe_both(&[
+            "--plot",
+            &svg,
             "--diffusion",
             "--json",
             "--profile",
@@ -750,4 +755,149 @@ fn written_scenario_keeps_only_the_mass_beside_a_d_column() {
             .any(|n| n.as_str().unwrap().contains("memory_time left out")),
         "{notes:?}"
     );
+}
+
+// ---------------------------------------------------------------------------------------------
+// the picture (`--plot`), read through its markup (src/report/svg.rs module doc); what a reader
+// needs to see is common practice, no source
+
+fn has_class(n: &roxmltree::Node, c: &str) -> bool {
+    n.attribute("class")
+        .is_some_and(|a| a.split_whitespace().any(|w| w == c))
+}
+
+/// Data elements (outside the legend) with class `c` and, when given, data-series `series`.
+fn elements<'a>(
+    doc: &'a roxmltree::Document,
+    c: &str,
+    series: Option<&str>,
+) -> Vec<roxmltree::Node<'a, 'a>> {
+    doc.descendants()
+        .filter(|n| has_class(n, c))
+        .filter(|n| series.is_none_or(|s| n.attribute("data-series") == Some(s)))
+        .filter(|n| !n.ancestors().any(|a| has_class(&a, "legend")))
+        .collect()
+}
+
+/// The (x, y) of a `translate(x,y)` marker.
+fn centre(n: &roxmltree::Node) -> (f64, f64) {
+    let t = n.attribute("transform").unwrap();
+    let (x, y) = t
+        .trim_start_matches("translate(")
+        .trim_end_matches(')')
+        .split_once(',')
+        .unwrap();
+    (x.parse().unwrap(), y.parse().unwrap())
+}
+
+fn attr(n: &roxmltree::Node, k: &str) -> f64 {
+    n.attribute(k).unwrap().parse().unwrap()
+}
+
+fn svg_texts(doc: &roxmltree::Document) -> Vec<String> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .map(|n| n.text().unwrap_or_default().trim().to_string())
+        .collect()
+}
+
+// One U point per bin with a ±σ_U bar wherever the bin has a σ_U, the highest U drawn highest
+// and the lowest lowest; both cores shaded in x order; axis labels in the scenario's units; no D
+// panel without --diffusion. Without a scenario the labels read reduced units.
+#[test]
+fn plot_shows_u_with_its_error_bars_and_the_cores() {
+    let r = observed();
+    let text = std::fs::read_to_string(path("observed.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
+    let bins = r["free_energy"]["bins"].as_array().unwrap();
+    let u = elements(&doc, "marker", Some("U"));
+    assert_eq!(u.len(), bins.len());
+    let with_sigma = bins.iter().filter(|b| b["sigma_u"].is_f64()).count();
+    assert!(with_sigma > bins.len() / 2);
+    assert_eq!(elements(&doc, "sigma-u", None).len(), with_sigma);
+    let at = |i: usize| centre(&u[i]).1;
+    let by_u = |a: &&Value, b: &&Value| {
+        a["u"]
+            .as_f64()
+            .unwrap()
+            .total_cmp(&b["u"].as_f64().unwrap())
+    };
+    let top = bins
+        .iter()
+        .position(|b| b == bins.iter().max_by(by_u).unwrap())
+        .unwrap();
+    let bottom = bins
+        .iter()
+        .position(|b| b == bins.iter().min_by(by_u).unwrap())
+        .unwrap();
+    let ys: Vec<f64> = (0..u.len()).map(at).collect();
+    assert_eq!(at(top), ys.iter().copied().fold(f64::INFINITY, f64::min));
+    assert_eq!(
+        at(bottom),
+        ys.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+    );
+    let cores = elements(&doc, "core", None);
+    let names: Vec<&str> = cores
+        .iter()
+        .map(|c| c.attribute("data-name").unwrap())
+        .collect();
+    assert_eq!(names, ["A", "B"]);
+    // core A (around x = −1) left of core B (around x = +1)
+    assert!(attr(&cores[0], "x") + attr(&cores[0], "width") < attr(&cores[1], "x"));
+    let t = svg_texts(&doc);
+    for want in ["x (nm)", "U − U(lowest bin) (kJ/mol)"] {
+        assert!(t.iter().any(|s| s == want), "no label {want:?} in {t:?}");
+    }
+    assert!(elements(&doc, "marker", Some("D")).is_empty());
+    assert!(!t.iter().any(|s| s.starts_with("D (")));
+    // reduced units
+    let svg = path("observed_reduced.svg");
+    let out = escapade(&["observe", &path("run0.csv"), "--plot", &svg]);
+    assert!(out.status.success());
+    let text = std::fs::read_to_string(&svg).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let t = svg_texts(&doc);
+    for want in ["x (L)", "U − U(lowest bin) (kT)"] {
+        assert!(t.iter().any(|s| s == want), "no label {want:?} in {t:?}");
+    }
+}
+
+// With --diffusion: one D point per interface inside its 95% interval bar, one lighter
+// conditional-moment point per interface that has one, and the D axis labelled with its units.
+#[test]
+fn plot_with_diffusion_adds_the_d_panel() {
+    let d = &with_diffusion().0["diffusion"];
+    let text = std::fs::read_to_string(path("observed_d.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
+    let interfaces = d["interfaces"].as_array().unwrap();
+    let points = elements(&doc, "marker", Some("D"));
+    assert_eq!(points.len(), interfaces.len());
+    // a bar and its two caps per interface
+    let bars = elements(&doc, "d-ci95", None);
+    assert_eq!(bars.len(), 3 * interfaces.len());
+    for (p, bar) in points.iter().zip(bars.chunks(3)) {
+        let (x, y) = centre(p);
+        let b = &bar[0];
+        assert!((attr(b, "x1") - x).abs() < 0.11, "bar not at its point");
+        let (y1, y2) = (attr(b, "y1"), attr(b, "y2"));
+        assert!(
+            y1.min(y2) - 0.11 <= y && y <= y1.max(y2) + 0.11,
+            "point outside its bar"
+        );
+    }
+    let moments = interfaces
+        .iter()
+        .filter(|i| i["moments_d"].is_f64())
+        .count();
+    assert!(moments > 0);
+    assert_eq!(elements(&doc, "marker", Some("D-moments")).len(), moments);
+    assert_eq!(elements(&doc, "d-moments", None).len(), 3 * moments);
+    // the U panel is still there
+    let bins = with_diffusion().0["free_energy"]["bins"]
+        .as_array()
+        .unwrap()
+        .len();
+    assert_eq!(elements(&doc, "marker", Some("U")).len(), bins);
+    let t = svg_texts(&doc);
+    assert!(t.iter().any(|s| s == "D (nm²/ps)"), "no D label in {t:?}");
 }

@@ -24,6 +24,9 @@
 //! - survey: U(x) titled with the scenario's title (or file name), reactant, barrier, product
 //!   and target marked with labels placed so that they do not overlap, a 1 kT bar, and optional
 //!   measured points with error bars ([`ProfilePoint`]).
+//! - observe: the histogram's U(x) as points with ±σ_U bars and the two cores shaded; with
+//!   `--diffusion` a panel below with the interfaces' D(x) (posterior median, 95% interval) and the
+//!   conditional-moment D as a lighter series.
 //! - survival: the fraction not yet escaped (log scale) with the fitted exponential.
 //!
 //! Tick labels carry the fewest significant digits that give the tick's value ([`tick`]).
@@ -597,17 +600,26 @@ fn render(
     legend: &Legend,
     draw: impl for<'b> FnOnce(&DrawingArea<SVGBackend<'b>, Shift>) -> DrawResult<Raw, SVGBackend<'b>>,
 ) -> String {
+    render_tall(legend, H, draw)
+}
+
+/// [`render`] with a frame of height `h`.
+fn render_tall(
+    legend: &Legend,
+    h: u32,
+    draw: impl for<'b> FnOnce(&DrawingArea<SVGBackend<'b>, Shift>) -> DrawResult<Raw, SVGBackend<'b>>,
+) -> String {
     let mut buf = String::new();
     let raw = {
-        let root = SVGBackend::with_string(&mut buf, (W, H + legend.height())).into_drawing_area();
+        let root = SVGBackend::with_string(&mut buf, (W, h + legend.height())).into_drawing_area();
         let _ = root.fill(&WHITE);
-        let (top, _) = root.split_vertically(H);
+        let (top, _) = root.split_vertically(h);
         let raw = draw(&top).unwrap_or_default();
         let _ = root.present();
         raw
     };
     let mut raw = raw;
-    legend.draw(&mut raw, f64::from(H));
+    legend.draw(&mut raw, f64::from(h));
     match buf.rfind("</svg>") {
         Some(i) => buf.insert_str(i, &raw.0),
         None => buf.push_str(&raw.0),
@@ -1299,6 +1311,226 @@ fn place_labels(
         out[i] = best;
     }
     out
+}
+
+// ---------------------------------------------------------------------------------------------
+// observe
+
+/// Height of the D(x) panel below the U(x) panel (`observe --plot --diffusion`).
+const D_PANEL: u32 = 400;
+
+const U_BLUE: RGBColor = RGBColor(31, 119, 180);
+const D_RED: RGBColor = RGBColor(214, 39, 40);
+/// the conditional-moment D: the same hue, lighter
+const D_LIGHT: RGBColor = RGBColor(240, 150, 150);
+const CORE_GREEN: RGBColor = RGBColor(44, 160, 44);
+
+/// The observed trajectories (`observe --plot`): U(x) from the histogram in the energy unit
+/// (zero at the lowest bin) as points with ±σ_U bars, the two cores shaded; with `--diffusion`
+/// a panel below with D(x) at the interfaces (posterior median with its 95% interval) and the
+/// conditional-moment D (± one standard error) as a lighter series beside it.
+pub fn observed(r: &super::observe::ObserveReport) -> String {
+    let o = &r.observed;
+    let bins = &o.free_energy.bins;
+    let k = &o.kinetics;
+    let lowest = bins.iter().map(|b| b.u).fold(f64::INFINITY, f64::min);
+    let e = |u_kt: f64| r.kt * (u_kt - lowest);
+    let d = o.diffusion.as_ref();
+    let interfaces = d.map_or(&[][..], |d| &d.interfaces[..]);
+    let x = Axis::fit(
+        bins.iter()
+            .map(|b| b.x)
+            .chain(interfaces.iter().map(|i| i.x))
+            .chain([k.core_a.lo, k.core_a.hi, k.core_b.lo, k.core_b.hi]),
+        false,
+        0.02,
+    );
+    let y = Axis::fit(
+        bins.iter().flat_map(|b| {
+            let s = b.sigma_u.unwrap_or(0.0);
+            [e(b.u - s), e(b.u + s)]
+        }),
+        false,
+        0.06,
+    );
+    let names = &r.units;
+    let lu = if names.length == "1" {
+        "L"
+    } else {
+        &names.length
+    };
+    let tu = if names.time == "1" { "τ" } else { &names.time };
+    let title = format!(
+        "U(x) from {} trajectories ({} samples)",
+        o.trajectories.len(),
+        o.samples
+    );
+    let xdesc = format!("x ({lu})");
+    let ydesc = format!("U − U(lowest bin) ({})", names.energy);
+    let top = Frame {
+        title: &title,
+        x,
+        y,
+        xdesc: &xdesc,
+        ydesc: &ydesc,
+    };
+    // D from 0 to its largest value, but no higher than twice the largest point: the wide
+    // intervals of rarely crossed edge interfaces would flatten the rest (their bars are cut)
+    let points = interfaces
+        .iter()
+        .map(|i| i.d)
+        .chain(interfaces.iter().filter_map(|i| i.moments_d))
+        .filter(|v| v.is_finite())
+        .fold(0f64, f64::max);
+    let reach = interfaces
+        .iter()
+        .flat_map(|i| {
+            [
+                i.ci95[1],
+                i.moments_d.unwrap_or(0.0) + i.moments_se.unwrap_or(0.0),
+            ]
+        })
+        .filter(|v| v.is_finite())
+        .fold(points, f64::max)
+        .min(2.0 * points);
+    let dy = Axis {
+        lo: 0.0,
+        hi: if reach > 0.0 { 1.06 * reach } else { 1.0 },
+        log: false,
+    };
+    let dtitle = d.map_or_else(String::new, |d| {
+        format!("D(x) at a lag of {} {tu}", tick(d.lag_time, d.lag_time))
+    });
+    let ddesc = format!("D ({lu}²/{tu})");
+    let bottom = Frame {
+        title: &dtitle,
+        x,
+        y: dy,
+        xdesc: &xdesc,
+        ydesc: &ddesc,
+    };
+    let legend = observed_legend(d.is_some());
+    let h = if d.is_some() { H + D_PANEL } else { H };
+    render_tall(&legend, h, |area| {
+        let (upper, lower) = area.split_vertically(H);
+        let px = frame(&upper, &top, &|_, _| Ok(()))?;
+        let mut raw = Raw::default();
+        raw.open_data(&px);
+        cores(&mut raw, &px, [k.core_a, k.core_b], true);
+        for b in bins {
+            let (sx, sy) = px.at(b.x, e(b.u));
+            if let Some(s) = b.sigma_u {
+                let (lo, hi) = (px.y_clamped(e(b.u - s)), px.y_clamped(e(b.u + s)));
+                raw.line((sx, lo), (sx, hi), U_BLUE, 1.0, "errorbar sigma-u");
+            }
+            let _ = writeln!(
+                raw.0,
+                r#"<g class="marker data" data-series="U" transform="translate({sx:.1},{sy:.1})"><circle cx="0" cy="0" r="3" fill="{}"/></g>"#,
+                hex(U_BLUE)
+            );
+        }
+        raw.close();
+        if d.is_none() {
+            return Ok(raw);
+        }
+        // (plotters gives the lower panel's pixels in the whole picture)
+        let dpx = frame(&lower, &bottom, &|_, _| Ok(()))?;
+        let _ = writeln!(
+            raw.0,
+            r#"<defs><clipPath id="plot-area-d"><rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}"/></clipPath></defs>"#,
+            dpx.x0,
+            dpx.y0,
+            dpx.x1 - dpx.x0,
+            dpx.y1 - dpx.y0
+        );
+        raw.0
+            .push_str("<g class=\"data\" clip-path=\"url(#plot-area-d)\">\n");
+        cores(&mut raw, &dpx, [k.core_a, k.core_b], false);
+        for i in interfaces {
+            // the lighter series a few pixels to the right, so both stay visible
+            if let Some(m) = i.moments_d {
+                let se = i.moments_se.unwrap_or(0.0);
+                let (sx, sy) = dpx.at(i.x, m);
+                let sx = sx + 5.0;
+                let bar = [dpx.y_clamped(m - se), dpx.y_clamped(m + se)];
+                d_bar(&mut raw, sx, bar, D_LIGHT, "errorbar d-moments");
+                raw.marker(
+                    Shape::Diamond,
+                    (sx, sy),
+                    D_LIGHT,
+                    true,
+                    "marker data",
+                    "D-moments",
+                );
+            }
+            let (sx, sy) = dpx.at(i.x, i.d);
+            let bar = [dpx.y_clamped(i.ci95[0]), dpx.y_clamped(i.ci95[1])];
+            d_bar(&mut raw, sx, bar, D_RED, "errorbar d-ci95");
+            raw.marker(Shape::Square, (sx, sy), D_RED, true, "marker data", "D");
+        }
+        raw.close();
+        Ok(raw)
+    })
+}
+
+/// The two cores shaded across the plotting area, labelled A and B in the `named` panel.
+fn cores(raw: &mut Raw, px: &Px, [a, b]: [crate::observe::Interval; 2], named: bool) {
+    for (name, c) in [("A", a), ("B", b)] {
+        let (x0, y0) = px.at(c.lo, px.y.hi);
+        let (x1, y1) = px.at(c.hi, px.y.lo);
+        let _ = writeln!(
+            raw.0,
+            r#"<rect class="core" data-name="{name}" x="{x0:.1}" y="{y0:.1}" width="{:.1}" height="{:.1}" fill="{}" fill-opacity="0.13"/>"#,
+            x1 - x0,
+            y1 - y0,
+            hex(CORE_GREEN)
+        );
+        if named {
+            raw.text(
+                ((x0 + x1) / 2.0, y0 + 18.0),
+                &format!("core {name}"),
+                LABEL_FONT,
+                "middle",
+                "core-label",
+            );
+        }
+    }
+}
+
+/// A vertical error bar with caps between the pixel heights `[lo, hi]`.
+fn d_bar(raw: &mut Raw, x: f64, [lo, hi]: [f64; 2], c: RGBColor, class: &str) {
+    raw.line((x, lo), (x, hi), c, 1.2, class);
+    raw.line((x - 3.0, lo), (x + 3.0, lo), c, 1.2, class);
+    raw.line((x - 3.0, hi), (x + 3.0, hi), c, 1.2, class);
+}
+
+fn observed_legend(diffusion: bool) -> Legend {
+    let entry = |text: &str, colour, shape, sim| Entry {
+        text: text.into(),
+        colour,
+        shape,
+        line: false,
+        sim,
+    };
+    let mut entries = vec![
+        entry("U ± σ_U (histogram, block bootstrap)", U_BLUE, None, true),
+        entry("cores", RGBColor(200, 230, 200), Some(Shape::Square), false),
+    ];
+    if diffusion {
+        entries.push(entry(
+            "D: posterior median, 95% interval",
+            D_RED,
+            Some(Shape::Square),
+            false,
+        ));
+        entries.push(entry(
+            "D: conditional moments ± se",
+            D_LIGHT,
+            Some(Shape::Diamond),
+            false,
+        ));
+    }
+    Legend { entries, key: None }
 }
 
 // ---------------------------------------------------------------------------------------------
