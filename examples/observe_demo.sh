@@ -37,5 +37,5 @@ half_width = 1.0
 start = -1.0
 TOML
 target/release/escapade observe "$OUT/run1.csv" "$OUT/run2.csv" --scenario "$OUT/model.toml" \
-    --profile "$OUT/profile.csv" --scenario-out "$OUT/observed.toml"
+    --diffusion --plot "$OUT/observed.svg" --profile "$OUT/profile.csv" --scenario-out "$OUT/observed.toml"
 target/release/escapade rate "$OUT/observed.toml"
