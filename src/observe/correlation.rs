@@ -10,8 +10,8 @@
 //! τ_int = 1/2 + Σ_{t≥1} ρ(t) (in samples) is summed up to Sokal's automatic window: the
 //! smallest lag W with W ≥ c τ_int(W), c = [`SOKAL_C`] (Madras & Sokal, J. Stat. Phys. 50, 109
 //! (1988); Sokal, "Monte Carlo Methods in Statistical Mechanics: Foundations and New
-//! Algorithms" (1996), §3). On the log-spaced lags of levels ≥ 1 the sum is the trapezoid integral ∫_0^W ρ dt + ρ(W)/2,
-//! which equals the discrete sum on the unit-spaced lags of level 0.
+//! Algorithms" (1996), §3). On the log-spaced lags of levels ≥ 1 the sum is the trapezoid
+//! integral ∫_0^W ρ dt + ρ(W)/2, which equals the discrete sum on the unit-spaced lags of level 0.
 
 use super::{PositionSummary, Sink};
 use serde::Serialize;
