@@ -12,6 +12,7 @@ pub mod family;
 pub mod formula;
 pub mod periodic;
 pub mod smooth;
+pub mod surface;
 pub mod table;
 
 pub use any::AnyPotential;
