@@ -284,3 +284,17 @@ fn no_transition_gives_no_rate_and_says_so() {
     assert_eq!(err.trim_end().lines().count(), 1, "{err}");
     assert!(err.contains("--cores"), "{err}");
 }
+
+// A model started in the right-hand well escapes to the left: the observed direction set against
+// it is B → A (the core holding the reactant is left), with B → A's own count and rate.
+#[test]
+fn a_reactant_in_core_b_is_set_against_the_b_to_a_rate() {
+    let v = compare(&["--set", "states.start=1.0"]);
+    let o = &v["observed"];
+    assert_eq!(o["direction"], "B → A", "{o}");
+    assert!(o["core_from"]["lo"].as_f64().unwrap() > 0.0, "{o}");
+    assert!(o["core_to"]["hi"].as_f64().unwrap() < 0.0, "{o}");
+    assert!(o["transitions"].as_u64().unwrap() > 200, "{o}");
+    assert!(!o["warnings"].to_string().contains("the model's"), "{o}");
+    assert!(o["verdict"].as_str().unwrap().contains("B → A"), "{o}");
+}
