@@ -43,6 +43,33 @@ pub struct SimOpts {
     pub shard: Option<String>,
 }
 
+/// Observed trajectories for `compare`.
+#[derive(Debug, Args, Clone)]
+pub struct ObservedRun {
+    /// trajectory files in the scenario's units (text columns or .npy, as `observe` reads them),
+    /// whose core-to-core rate is set beside the model's rates; give them after the scenario
+    #[arg(long, value_name = "TRAJ", num_args = 1..)]
+    pub observed: Vec<PathBuf>,
+    /// sampling interval of the observed files, for files without a time column
+    #[arg(long, value_name = "T", requires = "observed")]
+    pub dt: Option<f64>,
+    /// the observed files' position column: its number (from 1) or its header name
+    #[arg(long, value_name = "COL", requires = "observed")]
+    pub position: Option<String>,
+    /// the observed files' time column: its number (from 1) or its header name
+    #[arg(long, value_name = "COL", requires = "observed")]
+    pub time: Option<String>,
+    /// the two cores of the observed trajectories, e.g. --cores=-1.3:-0.7,0.7:1.3 (default: as
+    /// `observe` places them, around the two deepest minima of the observed U)
+    #[arg(
+        long,
+        value_name = "LO:HI,LO:HI",
+        allow_hyphen_values = true,
+        requires = "observed"
+    )]
+    pub cores: Option<String>,
+}
+
 /// Options of `observe`.
 #[derive(Debug, Args, Clone)]
 pub struct ObserveOpts {
@@ -140,7 +167,8 @@ pub enum Command {
         #[command(flatten)]
         sim: SimOpts,
     },
-    /// Theory and simulation side by side, with a verdict on which theories agree.
+    /// Theory and simulation side by side, with a verdict on which theories agree; with
+    /// --observed, also your own trajectories' rate beside them.
     Compare {
         /// scenario file (TOML)
         file: PathBuf,
@@ -148,6 +176,8 @@ pub enum Command {
         common: Common,
         #[command(flatten)]
         sim: SimOpts,
+        #[command(flatten)]
+        observed: ObservedRun,
     },
     /// Vary one scenario value over a range: every theory rate at each point, fits, plots.
     Scan {

@@ -5,11 +5,11 @@
 mod cli;
 
 use clap::Parser;
-use cli::{Cli, Command, Common, ObserveOpts, SimOpts};
+use cli::{Cli, Command, Common, ObserveOpts, ObservedRun, SimOpts};
 use escapade::observe::{self, ColumnRef, Interval, ObserveError, Source};
 use escapade::report::observe::ObserveReport;
 use escapade::report::{
-    CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table,
+    CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table, vs_observed,
 };
 use escapade::scenario::{Model, Override};
 use escapade::simulate::session::{Phase, SessionError, SessionOptions};
@@ -138,11 +138,30 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             plot,
             common,
             sim,
-        } => simulate_cmd(Some(&file), quiet, &common, &sim, false, plot.as_deref()),
-        Command::Compare { file, common, sim } => {
-            simulate_cmd(Some(&file), quiet, &common, &sim, true, None)
-        }
-        Command::Demo { common, sim } => simulate_cmd(None, quiet, &common, &sim, true, None),
+        } => simulate_cmd(
+            Some(&file),
+            quiet,
+            &common,
+            &sim,
+            false,
+            plot.as_deref(),
+            None,
+        ),
+        Command::Compare {
+            file,
+            common,
+            sim,
+            observed,
+        } => simulate_cmd(
+            Some(&file),
+            quiet,
+            &common,
+            &sim,
+            true,
+            None,
+            Some(&observed),
+        ),
+        Command::Demo { common, sim } => simulate_cmd(None, quiet, &common, &sim, true, None, None),
         Command::Scan {
             file,
             vary,
@@ -345,9 +364,12 @@ fn simulate_cmd(
     sim: &SimOpts,
     with_theory: bool,
     plot: Option<&Path>,
+    observed: Option<&ObservedRun>,
 ) -> Result<Done, Failure> {
     let m = load(file, common)?;
     let t = theory_of(&m)?;
+    // the trajectories are read before the simulation, so that a bad file fails at once
+    let observed = observed.map(observed_of).transpose()?.flatten();
     let settings = m.simulation.clone().unwrap_or_default();
     let plan = Plan::new(&m.system, &settings, &m.units.names.time, &t)
         .map_err(|e| Failure::user(format!("{}: {e}", m.source)))?;
@@ -406,11 +428,21 @@ fn simulate_cmd(
         theory.uncertainty = uncertainty_of(&m)?;
         let (comparison, verdict) =
             compare_rows(&theory.formulas, &out, t.landscape.barrier_height);
+        let observed = observed.map(|o| {
+            vs_observed::compare_observed(
+                &o,
+                &m.system,
+                &t,
+                theory.uncertainty.as_ref(),
+                (out.rate > 0.0).then_some(&out),
+            )
+        });
         let r = CompareReport {
             theory,
             simulation: out,
             comparison,
             verdict,
+            observed,
         };
         if common.json {
             json::render(&r)
@@ -489,6 +521,28 @@ fn parse_cores(text: &str) -> Result<[Interval; 2], Failure> {
         })
         .collect::<Result<_, Failure>>()?;
     <[Interval; 2]>::try_from(cores).map_err(|_| bad())
+}
+
+/// `compare --observed`: the kinetics of the user's trajectories (no D(x) pass); None without
+/// files.
+fn observed_of(o: &ObservedRun) -> Result<Option<observe::ObservedReport>, Failure> {
+    if o.observed.is_empty() {
+        return Ok(None);
+    }
+    let opts = observe::Options {
+        columns: observe::Columns {
+            position: column("--position", o.position.as_deref())?,
+            time: column("--time", o.time.as_deref())?,
+        },
+        dt: o.dt,
+        cores: o.cores.as_deref().map(parse_cores).transpose()?,
+        diffusion: None,
+        ..observe::Options::default()
+    };
+    let sources: Vec<Source> = o.observed.iter().cloned().map(Source::File).collect();
+    observe::analyse(&sources, &opts)
+        .map(Some)
+        .map_err(observe_failure)
 }
 
 /// An analysis error as one line; an option's name as the command line spells it.

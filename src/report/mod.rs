@@ -8,6 +8,7 @@ pub mod json;
 pub mod observe;
 pub mod svg;
 pub mod table;
+pub mod vs_observed;
 
 use crate::landscape::{Kind, Landscape, TargetRule};
 use crate::model::Model;
@@ -438,6 +439,10 @@ pub struct CompareReport {
     pub comparison: Vec<ComparisonRow>,
     /// one line naming the theories that agree
     pub verdict: String,
+    /// observed trajectories against theory and simulation (`compare --observed`; the key is
+    /// left out without them)
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub observed: Option<vs_observed::ObservedComparison>,
 }
 
 /// `merge` output.

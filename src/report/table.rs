@@ -923,7 +923,111 @@ pub fn compare(r: &super::CompareReport) -> String {
         show(&mut out, t);
     }
     let _ = writeln!(out, "verdict: {}", r.verdict);
+    if let Some(o) = &r.observed {
+        observed_block(&mut out, o, &u);
+    }
     out
+}
+
+/// `compare --observed`: the observed rate, the simulated and every theory rate side by side.
+fn observed_block(out: &mut String, o: &super::vs_observed::ObservedComparison, u: &U) {
+    let core = |c: crate::observe::Interval| format!("[{}, {}]", num(c.lo), num(c.hi));
+    let _ = writeln!(
+        out,
+        "\nobserved ({}): {} samples over {} {}; {} from core {} to core {} {} ({}); {} transition(s) in {} {} assigned to the core left",
+        o.files.join(", "),
+        o.samples,
+        num(o.total_time),
+        u.t,
+        o.direction,
+        core(o.core_from),
+        core(o.core_to),
+        u.l,
+        o.core_rule,
+        o.transitions,
+        num(o.exposure),
+        u.t
+    );
+    if let Some(k) = o.model_rate_to_core_edge {
+        let _ = writeln!(
+            out,
+            "the model's exact overdamped 1/MFPT to the arrival core's near edge (what the observed rate measures): {} 1/{}",
+            num(k),
+            u.t
+        );
+    }
+    let mut t = table();
+    t.set_width(130);
+    t.set_header(vec![
+        "rate".to_string(),
+        format!("rate (1/{})", u.t),
+        "95% interval".to_string(),
+        "ratio to observed [95%]".to_string(),
+        "holds here".to_string(),
+        "agrees with observed [allowed ratio]".to_string(),
+    ]);
+    let iv = |ci: Option<[f64; 2]>| {
+        ci.map_or_else(|| "—".into(), |[a, b]| format!("[{}, {}]", num(a), num(b)))
+    };
+    let dash = || "—".to_string();
+    t.add_row(vec![
+        format!("observed {} ({} transitions)", o.direction, o.transitions),
+        match (o.rate, o.upper95) {
+            (Some(k), _) => num(k),
+            (None, Some(up)) => format!("none (< {} at 95%)", num(up)),
+            (None, None) => "none".into(),
+        },
+        iv(o.rate_ci95),
+        "1".into(),
+        dash(),
+        dash(),
+    ]);
+    if let Some(s) = &o.simulation {
+        let ratio = match o.rate_ci95 {
+            Some([lo, hi]) => format!(
+                "{} [{}, {}]",
+                num(s.ratio_to_observed),
+                num(s.rate_ci95[0] / hi),
+                num(s.rate_ci95[1] / lo)
+            ),
+            None => num(s.ratio_to_observed),
+        };
+        t.add_row(vec![
+            format!("simulated {} (the model)", s.against),
+            num(s.rate),
+            iv(Some(s.rate_ci95)),
+            ratio,
+            dash(),
+            format!("{} (z = {:.2})", if s.agrees { "yes" } else { "no" }, s.z),
+        ]);
+    }
+    for c in o.theories.iter().filter(|c| c.rate.is_some()) {
+        let ratio = match (c.ratio_to_observed, c.ratio_ci95) {
+            (Some(q), Some([a, b])) => format!("{} [{}, {}]", num(q), num(a), num(b)),
+            _ => "n/a".into(),
+        };
+        t.add_row(vec![
+            c.label.to_string(),
+            opt(c.rate),
+            c.rate_ci95.map_or_else(
+                || "— (no sigma_U)".into(),
+                |ci| format!("{} (σ_U)", iv(Some(ci))),
+            ),
+            ratio,
+            if c.valid { "yes" } else { "no" }.into(),
+            format!(
+                "{} [{}, {}]",
+                if c.consistent { "yes" } else { "no" },
+                num(c.accuracy_band.0),
+                c.accuracy_band.1.map_or_else(|| "∞".into(), num)
+            ),
+        ]);
+    }
+    show(out, t);
+    for w in &o.warnings {
+        let _ = writeln!(out, "warning (observed): {w}");
+    }
+    let _ = writeln!(out, "observed verdict: {}", o.verdict);
 }
 
 /// One row of the comparison table. A row with nothing to compare (no rate, or no simulated rate
