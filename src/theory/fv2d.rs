@@ -218,11 +218,10 @@ pub fn selling(m: Sym2) -> Vec<Bond> {
     const PAIRS: [(usize, usize, usize); 3] = [(0, 1, 2), (0, 2, 1), (1, 2, 0)];
     // the number of steps grows like the log of the anisotropy; 200 covers any double
     for _ in 0..200 {
-        let Some(&(i, j, k)) = PAIRS.iter().find(|(i, j, _)| dot(b[*i], b[*j]) > 0.0) else {
+        let Some(&(i, j, _)) = PAIRS.iter().find(|(i, j, _)| dot(b[*i], b[*j]) > 0.0) else {
             break;
         };
         let (bi, bj) = (b[i], b[j]);
-        let _ = k;
         b = [[-bi[0], -bi[1]], bj, [bi[0] - bj[0], bi[1] - bj[1]]];
     }
     PAIRS
