@@ -299,10 +299,9 @@ pub struct MfptStudy {
     pub extrapolated: Option<f64>,
 }
 
-/// The values of an MFPT field at a point: bilinear between the four surrounding cell centres
-/// when all are finite, else the value of the cell containing the point.
 impl MfptField {
-    /// T at `p`.
+    /// T at `p`: bilinear between the four surrounding cell centres when all are finite, else
+    /// the value of the cell containing `p`.
     pub fn at(&self, p: Point) -> f64 {
         interpolate(&self.grid, &self.time, p)
     }
@@ -436,7 +435,8 @@ impl Generator {
             })
     }
 
-    /// The rate from cell `a` to cell `b` (0 unless they share a bond).
+    /// The rate from cell `a` to cell `b` (0 unless they share a bond); scans every bond, so it
+    /// is meant for checks, not for loops.
     pub fn rate(&self, a: usize, b: usize) -> f64 {
         self.bonds()
             .filter(|&(x, y, _)| (x, y) == (a, b) || (x, y) == (b, a))
