@@ -4,7 +4,9 @@
 //! as logarithms so barriers up to hundreds of kT neither overflow nor underflow.
 
 pub mod catalogue;
+pub mod fv2d;
 pub mod kramers;
+pub mod langer;
 pub mod mfpt;
 pub mod periodic;
 pub mod pgh;
