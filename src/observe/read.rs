@@ -5,7 +5,9 @@
 //! and blank lines skipped, an optional header line (no field a number) naming the columns.
 //! Without explicit columns: a header's `x`/`position`/`q` column is the position and its
 //! `t`/`time` column the time; without a header one column is the position and two columns are
-//! (time, position). Only the columns used are parsed; each must be a finite number.
+//! (time, position). Only the columns used are parsed; each must be a finite number. A pass may
+//! hand a velocity column to its sink instead of the position ([`Pick`]); it is never guessed,
+//! and must differ from the position and time columns.
 //!
 //! NumPy `.npy` (format versions 1–3): little- or big-endian float64/float32, 1-D (positions) or
 //! 2-D (rows are samples, columns as for text; C or Fortran order). The header is a short Python

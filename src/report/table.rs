@@ -1593,7 +1593,7 @@ pub fn observe_windows(r: &super::observe::WindowsReport) -> String {
     let u = U::new(&r.units);
     let _ = writeln!(
         out,
-        "restrained windows · {}: positions in {}, times in {}, springs in {}/{}² ({} kT/{}² = 1/var for a flat free energy); D = var²/∫C (Woolf & Roux 1994, Hummer 2005), 95% interval by batch means",
+        "restrained windows · {}: positions in {}, times in {}, springs in {}/{}²; D = var²/∫C at each window's mean (Woolf & Roux 1994, Hummer 2005), 95% interval by batch means; 1/k (k in kT/{}²) is the variance a flat free energy gives",
         match &r.scenario {
             Some(s) => format!("units of scenario {s}"),
             None => "reduced units".to_string(),
@@ -1602,7 +1602,6 @@ pub fn observe_windows(r: &super::observe::WindowsReport) -> String {
         u.t,
         u.e,
         u.l,
-        if u.e == "kT" { "in" } else { "converted to" },
         u.l
     );
     let mut t = table();
