@@ -113,12 +113,37 @@ pub struct ObserveOpts {
     /// bins of the D(x) analysis (default 30, between the 0.5% and 99.5% quantiles)
     #[arg(long, value_name = "N", requires = "diffusion")]
     pub d_bins: Option<usize>,
+    /// also friction and memory from a velocity column (its number from 1 or its header name;
+    /// velocities in length/time units): γ from the velocity autocorrelation, the memory kernel
+    /// by Volterra inversion with an exponential fit (γ, τ). Holds the velocities in memory,
+    /// 8 bytes per sample
+    #[arg(long, value_name = "COL", conflicts_with = "friction")]
+    pub velocity: Option<String>,
+    /// the same analysis on velocities taken from the positions by central differences
+    /// (x[n+1] − x[n−1])/(2Δt), with their bias stated; holds 16 bytes per sample in memory
+    #[arg(long)]
+    pub friction: bool,
+    /// the particle's mass, in the scenario's mass unit, for --velocity/--friction (default: the
+    /// scenario's particle.mass, else equipartition m = kT/⟨v²⟩)
+    #[arg(long, value_name = "M", allow_negative_numbers = true)]
+    pub mass: Option<f64>,
+    /// the files are restrained (umbrella) windows held by springs K (the scenario's energy unit
+    /// per length unit squared; one for all, or one per file): D at each window's mean position
+    /// instead of the free energy and kinetics; each window is held in memory
+    #[arg(
+        long,
+        value_name = "K,K,...",
+        value_delimiter = ',',
+        allow_negative_numbers = true
+    )]
+    pub spring: Vec<f64>,
     /// write the free energy as a profile table (x, U, sigma_U; with --diffusion also D,
     /// sigma_D) that scenarios read
     #[arg(long, value_name = "FILE.csv")]
     pub profile: Option<PathBuf>,
     /// also write a scenario that reads that table ([units] and [particle] from --scenario; with
-    /// --diffusion the table's D replaces the diffusion or friction of [particle])
+    /// --velocity/--friction the observed mass, friction and memory time; with --diffusion the
+    /// table's D replaces the diffusion or friction of [particle])
     #[arg(long, value_name = "FILE.toml", requires = "profile")]
     pub scenario_out: Option<PathBuf>,
     /// draw U(x) with its σ_U bars and the cores (with --diffusion also D(x)) as an SVG picture

@@ -7,7 +7,7 @@ mod cli;
 use clap::Parser;
 use cli::{Cli, Command, Common, ObserveOpts, ObservedRun, SimOpts};
 use escapade::observe::{self, ColumnRef, Interval, ObserveError, Source};
-use escapade::report::observe::ObserveReport;
+use escapade::report::observe::{ObserveReport, WindowsReport};
 use escapade::report::{
     CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table, vs_observed,
 };
@@ -565,9 +565,10 @@ fn scenario_for_profile(
     out: &Path,
     start: f64,
     table_d: bool,
-) -> Result<(String, Option<String>), Failure> {
+    observed: Option<&ObservedParticle>,
+) -> Result<(String, Vec<String>), Failure> {
     let mut doc = toml::Table::new();
-    let mut note = None;
+    let mut notes = Vec::new();
     let mut particle = None;
     if let Some(f) = scenario {
         let text = std::fs::read_to_string(f)
@@ -580,9 +581,11 @@ fn scenario_for_profile(
         }
         particle = t.remove("particle");
     }
-    if table_d && let Some(toml::Value::Table(p)) = &mut particle {
+    if let Some(obs) = observed {
+        particle = Some(obs.particle(table_d, out, &mut notes).into());
+    } else if table_d && let Some(toml::Value::Table(p)) = &mut particle {
         if p.contains_key("memory_time") {
-            note = Some(format!(
+            notes.push(format!(
                 "{}: particle.memory_time left out (a memory kernel needs particle.friction, which the table's D replaces)",
                 out.display()
             ));
@@ -598,8 +601,8 @@ fn scenario_for_profile(
         }
         None if table_d => {}
         None => {
-            note = Some(format!(
-                "{}: give [particle] (a diffusion coefficient or a mass and friction) before `rate` reads it; trajectories alone do not fix the dynamics here",
+            notes.push(format!(
+                "{}: give [particle] (a diffusion coefficient or a mass and friction) before `rate` reads it; trajectories alone do not fix the dynamics here (--velocity or --friction measure them)",
                 out.display()
             ));
         }
@@ -647,34 +650,178 @@ fn scenario_for_profile(
     } else {
         ""
     };
-    Ok((format!("{head}{body}{tail}"), note))
+    Ok((format!("{head}{body}{tail}"), notes))
+}
+
+/// What the velocity analysis says about the particle, in the scenario's units, for the
+/// written scenario.
+struct ObservedParticle {
+    /// the mass (given or from equipartition)
+    mass: f64,
+    /// γ, when the analysis passes it on
+    friction: Option<f64>,
+    /// τ of the kernel fit, likewise
+    memory_time: Option<f64>,
+    /// why γ or τ is left out
+    left_out: Vec<String>,
+}
+
+impl ObservedParticle {
+    /// The mass as analysed, γ and τ by [`observe::velocity::Friction::for_scenario`].
+    fn new(f: &observe::velocity::Friction) -> Self {
+        let s = f.for_scenario();
+        Self {
+            mass: f.mass.value,
+            friction: s.friction,
+            memory_time: s.memory_time,
+            left_out: s.left_out,
+        }
+    }
+
+    /// The [particle] section; beside a table's D column only the mass (the scenario reader
+    /// takes D(x) from the table, and γ at the barrier then follows from D and the mass).
+    fn particle(&self, table_d: bool, out: &Path, notes: &mut Vec<String>) -> toml::Table {
+        let mut p = toml::Table::new();
+        p.insert("mass".into(), self.mass.into());
+        if table_d {
+            if self.friction.is_some() {
+                notes.push(format!(
+                    "{}: the table's D(x) gives the dynamics, so the observed friction (and memory time) is not written beside it; without --diffusion the scenario gets particle.friction",
+                    out.display()
+                ));
+            }
+            return p;
+        }
+        if let Some(g) = self.friction {
+            p.insert("friction".into(), g.into());
+            if let Some(t) = self.memory_time {
+                p.insert("memory_time".into(), t.into());
+            }
+        }
+        notes.extend(self.left_out.iter().map(|m| {
+            let what = if self.friction.is_none() {
+                "particle.friction"
+            } else {
+                "particle.memory_time"
+            };
+            format!("{}: {what} left out: {m}", out.display())
+        }));
+        p
+    }
+}
+
+/// The friction options of `observe` (None without --velocity/--friction) and the unit system
+/// with a mass conversion when they are given.
+fn friction_options(
+    o: &ObserveOpts,
+    model: Option<&Model>,
+    units: &escapade::units::UnitSystem,
+) -> Result<
+    (
+        Option<observe::FrictionOptions>,
+        escapade::units::UnitSystem,
+    ),
+    Failure,
+> {
+    let velocities = match (&o.velocity, o.friction) {
+        (Some(c), _) => observe::VelocitySource::Column(
+            column("--velocity", Some(c))?
+                .ok_or_else(|| Failure::user("--velocity: give a column"))?,
+        ),
+        (None, true) => observe::VelocitySource::CentralDifference,
+        (None, false) => {
+            if o.mass.is_some() {
+                return Err(Failure::user(
+                    "--mass: goes with --velocity or --friction (the mass of the friction analysis)",
+                ));
+            }
+            return Ok((None, units.clone()));
+        }
+    };
+    let with_mass = escapade::units::UnitSystem::new(units.names.clone(), units.temperature, true)
+        .map_err(|e| {
+            Failure::user(format!(
+                "--scenario: {e}: the friction analysis converts masses"
+            ))
+        })?;
+    let mass = match o.mass {
+        Some(m) if !(m.is_finite() && m > 0.0) => {
+            return Err(Failure::user(format!("--mass {m}: must be positive")));
+        }
+        Some(m) => with_mass.mass_to_internal(m),
+        None => model.and_then(|m| m.system.mass),
+    };
+    Ok((
+        Some(observe::FrictionOptions { velocities, mass }),
+        with_mass,
+    ))
+}
+
+/// `observe --spring`: D at each restrained window's mean position.
+fn windows_cmd(
+    o: &ObserveOpts,
+    opts: &observe::Options,
+    units: &escapade::units::UnitSystem,
+    scenario: Option<String>,
+) -> Result<Done, Failure> {
+    let refused = [
+        ("--profile", o.profile.is_some()),
+        ("--scenario-out", o.scenario_out.is_some()),
+        ("--plot", o.plot.is_some()),
+        ("--diffusion", o.diffusion),
+        ("--cores", o.cores.is_some()),
+        ("--bin-width", o.bin_width.is_some()),
+        ("--velocity", o.velocity.is_some()),
+        ("--friction", o.friction),
+        ("--mass", o.mass.is_some()),
+    ];
+    if let Some((flag, _)) = refused.iter().find(|r| r.1) {
+        return Err(Failure::user(format!(
+            "{flag}: not with --spring: restrained windows give D at each window's mean, no free energy, kinetics or friction (analyse free trajectories for those)"
+        )));
+    }
+    let springs: Vec<f64> = o.spring.iter().map(|&k| units.energy_to_kt(k)).collect();
+    let sources: Vec<Source> = o.files.iter().cloned().map(Source::File).collect();
+    let w = observe::windows(&sources, &springs, opts).map_err(observe_failure)?;
+    let r = WindowsReport::new(w, units, scenario);
+    ok(if o.json {
+        json::render(&r)
+    } else {
+        table::observe_windows(&r)
+    })
 }
 
 fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
-    let (units, scenario) = match &o.scenario {
-        Some(f) => {
-            let m = Model::load(f, &[]).map_err(|e| Failure::user(e.to_string()))?;
-            (m.units, Some(m.source))
-        }
-        None => (escapade::units::UnitSystem::reduced(), None),
+    let model = match &o.scenario {
+        Some(f) => Some(Model::load(f, &[]).map_err(|e| Failure::user(e.to_string()))?),
+        None => None,
     };
-    let opts = observe::Options {
+    let units = model
+        .as_ref()
+        .map_or_else(escapade::units::UnitSystem::reduced, |m| m.units.clone());
+    let scenario = model.as_ref().map(|m| m.source.clone());
+    let mut opts = observe::Options {
         columns: observe::Columns {
             position: column("--position", o.position.as_deref())?,
             time: column("--time", o.time.as_deref())?,
         },
         dt: o.dt,
         bin_width: o.bin_width,
-        cores: o.cores.as_deref().map(parse_cores).transpose()?,
         seed: o.seed,
         resamples: o.resamples,
-        diffusion: o.diffusion.then(|| observe::counts::DiffusionOptions {
-            lags: o.lags.clone(),
-            bins: o.d_bins,
-            ..observe::counts::DiffusionOptions::default()
-        }),
         ..observe::Options::default()
     };
+    if !o.spring.is_empty() {
+        return windows_cmd(o, &opts, &units, scenario);
+    }
+    let (friction, units) = friction_options(o, model.as_ref(), &units)?;
+    opts.friction = friction;
+    opts.cores = o.cores.as_deref().map(parse_cores).transpose()?;
+    opts.diffusion = o.diffusion.then(|| observe::counts::DiffusionOptions {
+        lags: o.lags.clone(),
+        bins: o.d_bins,
+        ..observe::counts::DiffusionOptions::default()
+    });
     let sources: Vec<Source> = o.files.iter().cloned().map(Source::File).collect();
     let observed = observe::analyse(&sources, &opts).map_err(observe_failure)?;
     let mut r = ObserveReport::new(observed, &units, scenario);
@@ -690,16 +837,29 @@ fn observe_cmd(o: &ObserveOpts) -> Result<Done, Failure> {
         r.written.profile = Some(path.display().to_string());
         if let Some(out) = &o.scenario_out {
             let a = r.observed.kinetics.core_a;
-            let (text, note) = scenario_for_profile(
+            let particle = r.observed.friction.as_ref().map(ObservedParticle::new);
+            let (text, notes) = scenario_for_profile(
                 o.scenario.as_deref(),
                 path,
                 out,
                 0.5 * (a.lo + a.hi),
                 r.observed.diffusion.is_some(),
+                particle.as_ref(),
             )?;
             write_file(out, &text)?;
             r.written.scenario = Some(out.display().to_string());
-            r.notes.extend(note);
+            r.notes.extend(notes);
+            if particle.is_some() {
+                // the regime the observed friction implies, as `rate` on the written file finds it
+                match Model::load(out, &[])
+                    .map_err(|e| e.to_string())
+                    .and_then(|m| {
+                        theory::analyse(&m.system).map_err(|e| format!("{}: {e}", m.source))
+                    }) {
+                    Ok(t) => r.regime = Some(t.regime),
+                    Err(e) => r.notes.push(format!("no regime diagnosis: {e}")),
+                }
+            }
         }
     }
     if let Some(path) = &o.plot {

@@ -18,8 +18,17 @@
 //!    variants; with [`Options::diffusion`], also the bin-to-bin counts and increments at several
 //!    lags on bins placed from the histogram ([`counts`]), from which D(x) is fitted.
 //!
+//! With [`Options::friction`] a fourth pass, run first so that a bad velocity column fails at
+//! once, keeps the velocities (a velocity column, or the positions for central differences) of
+//! every trajectory in memory, 8 bytes per sample (16 for central differences, which copy the
+//! positions into velocities), for [`velocity`]'s correlations.
+//!
+//! [`windows`] reads restrained (umbrella) windows instead: one file per window, each held in
+//! memory (8 bytes per sample), D at its mean position by [`umbrella::window_diffusion`]; no
+//! free energy or kinetics, which a restrained coordinate does not show.
+//!
 //! Units: positions and times are taken as they are in the files (the caller converts to the
-//! scenario's units); energies are in kT.
+//! scenario's units); energies are in kT; masses in kT·time²/length².
 
 pub mod correlation;
 pub mod counts;
@@ -35,7 +44,7 @@ use thiserror::Error;
 
 pub use free_energy::{FreeEnergy, write_profile};
 pub use kinetics::{Interval, Kinetics};
-pub use read::{ColumnRef, Columns, FileInfo, Source};
+pub use read::{ColumnRef, Columns, FileInfo, Pick, Source};
 
 /// An error in reading or analysing observed trajectories; every message names its file (and the
 /// line or row) or the option at fault.
@@ -142,6 +151,27 @@ pub struct Options {
     pub chunk: usize,
     /// also D(x) by the propagator method (the posterior's seed is `seed`)
     pub diffusion: Option<counts::DiffusionOptions>,
+    /// also friction and memory from velocities (the bootstrap's seed and resamples are `seed`
+    /// and `resamples`)
+    pub friction: Option<FrictionOptions>,
+}
+
+/// Where the velocities of the friction analysis come from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum VelocitySource {
+    /// a column of the files
+    Column(ColumnRef),
+    /// central differences of the positions
+    CentralDifference,
+}
+
+/// What the friction analysis needs besides the files.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FrictionOptions {
+    /// the velocities
+    pub velocities: VelocitySource,
+    /// the mass in kT·time²/length² (default: equipartition)
+    pub mass: Option<f64>,
 }
 
 impl Default for Options {
@@ -155,6 +185,7 @@ impl Default for Options {
             resamples: DEFAULT_RESAMPLES,
             chunk: read::CHUNK,
             diffusion: None,
+            friction: None,
         }
     }
 }
@@ -195,6 +226,8 @@ pub struct ObservedReport {
     pub kinetics: Kinetics,
     /// D(x) (null unless asked for)
     pub diffusion: Option<counts::Diffusion>,
+    /// friction and memory from velocities (null unless asked for; the mass in kT·time²/length²)
+    pub friction: Option<velocity::Friction>,
     /// everything the user should know (also repeated in the parts)
     pub warnings: Vec<String>,
 }
@@ -231,6 +264,11 @@ pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, Obs
             message: format!("the sampling interval must be positive, not {dt}"),
         });
     }
+    // the velocities first: a bad velocity column fails before the long passes
+    let kept = match &opts.friction {
+        Some(f) => Some(keep_velocities(sources, opts, f)?),
+        None => None,
+    };
     // pass 1: moments and autocorrelation
     let mut first = (
         correlation::Moments::default(),
@@ -299,16 +337,26 @@ pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, Obs
         }
         _ => None,
     };
+    let position = moments.summary();
+    let friction = match (kept, &opts.friction) {
+        (Some((series, dt)), Some(f)) => {
+            let r = friction(&series, dt, f, position.sd * position.sd, opts)?;
+            warnings.extend(r.warnings.iter().cloned());
+            Some(r)
+        }
+        _ => None,
+    };
     let total_time = infos.iter().map(|i| i.duration).sum();
     Ok(ObservedReport {
         samples,
         total_time,
-        position: moments.summary(),
+        position,
         trajectories: infos,
         correlation,
         free_energy,
         kinetics,
         diffusion,
+        friction,
         warnings,
     })
 }
@@ -336,4 +384,147 @@ fn diffusion_counter(
         100.0 * (1.0 - counts::TAIL)
     );
     Ok((counts::LagCounter::new(bins, &lags), rule))
+}
+
+/// The option a friction analysis answers to.
+fn friction_option(f: &FrictionOptions) -> &'static str {
+    match f.velocities {
+        VelocitySource::Column(_) => "velocity",
+        VelocitySource::CentralDifference => "friction",
+    }
+}
+
+/// Every trajectory's velocities (or positions, for central differences) in memory, with the
+/// common sampling interval.
+fn keep_velocities(
+    sources: &[Source],
+    opts: &Options,
+    f: &FrictionOptions,
+) -> Result<(Vec<Vec<f64>>, f64), ObserveError> {
+    let pick = match &f.velocities {
+        VelocitySource::Column(c) => Pick::Velocity(c.clone()),
+        VelocitySource::CentralDifference => Pick::Position,
+    };
+    let mut keep = read::Collect::default();
+    for s in sources {
+        read::stream_column(
+            s,
+            &opts.columns,
+            opts.dt,
+            opts.chunk.max(1),
+            pick.clone(),
+            &mut keep,
+        )?;
+    }
+    let dt = keep.series[0].1;
+    if let Some((i, (_, other))) = keep
+        .series
+        .iter()
+        .enumerate()
+        .find(|(_, (_, d))| (d - dt).abs() > read::TIME_TOL * dt)
+    {
+        return Err(ObserveError::Option {
+            option: friction_option(f),
+            message: format!(
+                "trajectory {} is sampled every {other}, the first every {dt}: the velocity correlation needs one sampling interval",
+                i + 1
+            ),
+        });
+    }
+    Ok((keep.series.into_iter().map(|(v, _)| v).collect(), dt))
+}
+
+/// The friction analysis of the kept series; `var_x` is the positions' variance (for ω² of a
+/// confined particle with given velocities).
+fn friction(
+    series: &[Vec<f64>],
+    dt: f64,
+    f: &FrictionOptions,
+    var_x: f64,
+    opts: &Options,
+) -> Result<velocity::Friction, ObserveError> {
+    let refs: Vec<&[f64]> = series.iter().map(Vec::as_slice).collect();
+    let vo = velocity::Options {
+        mass: f.mass,
+        omega2: None,
+        position_variance: Some(var_x),
+        seed: opts.seed,
+        resamples: opts.resamples,
+    };
+    let r = match f.velocities {
+        VelocitySource::Column(_) => velocity::from_velocities(&refs, dt, &vo),
+        VelocitySource::CentralDifference => velocity::from_positions(&refs, dt, &vo),
+    };
+    r.map_err(|e| ObserveError::Option {
+        option: friction_option(f),
+        message: e.to_string(),
+    })
+}
+
+/// One restrained window: the file and D at its mean position.
+#[derive(Debug, Clone, Serialize)]
+pub struct Window {
+    /// what was read
+    pub trajectory: FileInfo,
+    /// the spring constant in kT/length²
+    #[serde(rename = "spring_kT")]
+    pub spring_kt: f64,
+    /// D at the mean position
+    #[serde(flatten)]
+    pub diffusion: umbrella::WindowDiffusion,
+}
+
+/// D at the mean position of each restrained window: `sources[i]` held by a spring
+/// `springs[i]` (kT/length²); positions read as in [`analyse`], each window in memory.
+///
+/// # Errors
+/// A file that cannot be read, a spring that is not positive, as many springs as files or one
+/// for all not given, or a window too short for its correlation time (each names the file).
+pub fn windows(
+    sources: &[Source],
+    springs: &[f64],
+    opts: &Options,
+) -> Result<Vec<Window>, ObserveError> {
+    if sources.is_empty() {
+        return Err(ObserveError::Option {
+            option: "trajectories",
+            message: "no trajectory given".into(),
+        });
+    }
+    if springs.len() != 1 && springs.len() != sources.len() {
+        return Err(ObserveError::Option {
+            option: "spring",
+            message: format!(
+                "{} spring constants for {} windows: give one for all or one per file",
+                springs.len(),
+                sources.len()
+            ),
+        });
+    }
+    if let Some(k) = springs.iter().find(|k| !(k.is_finite() && **k > 0.0)) {
+        return Err(ObserveError::Option {
+            option: "spring",
+            message: format!("a spring constant must be positive, not {k}"),
+        });
+    }
+    sources
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let k = springs[if springs.len() == 1 { 0 } else { i }];
+            let mut keep = read::Collect::default();
+            let info = read::stream(s, &opts.columns, opts.dt, opts.chunk.max(1), &mut keep)?;
+            let (x, dt) = &keep.series[0];
+            let diffusion =
+                umbrella::window_diffusion(x, *dt, k).map_err(|e| ObserveError::File {
+                    file: info.name.clone(),
+                    message: e.to_string(),
+                })?;
+            Ok(Window {
+                trajectory: info,
+                spring_kt: k,
+                diffusion,
+            })
+        })
+        .collect()
 }

@@ -5,7 +5,9 @@
 //! and blank lines skipped, an optional header line (no field a number) naming the columns.
 //! Without explicit columns: a header's `x`/`position`/`q` column is the position and its
 //! `t`/`time` column the time; without a header one column is the position and two columns are
-//! (time, position). Only the columns used are parsed; each must be a finite number.
+//! (time, position). Only the columns used are parsed; each must be a finite number. A pass may
+//! hand a velocity column to its sink instead of the position ([`Pick`]); it is never guessed,
+//! and must differ from the position and time columns.
 //!
 //! NumPy `.npy` (format versions 1–3): little- or big-endian float64/float32, 1-D (positions) or
 //! 2-D (rows are samples, columns as for text; C or Fortran order). The header is a short Python
@@ -47,6 +49,33 @@ pub struct Columns {
     pub position: Option<ColumnRef>,
     /// the time column
     pub time: Option<ColumnRef>,
+}
+
+/// Which column a pass hands to its sink.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Pick {
+    /// the position
+    Position,
+    /// a velocity column (never guessed; it must differ from the position and time columns)
+    Velocity(ColumnRef),
+}
+
+/// A sink keeping every sample of the current trajectory (8 bytes per sample), one vector per
+/// trajectory with its sampling interval.
+#[derive(Debug, Default)]
+pub struct Collect {
+    /// the finished trajectories with their sampling intervals
+    pub series: Vec<(Vec<f64>, f64)>,
+    current: Vec<f64>,
+}
+
+impl Sink for Collect {
+    fn feed(&mut self, xs: &[f64]) {
+        self.current.extend_from_slice(xs);
+    }
+    fn end(&mut self, dt: f64) {
+        self.series.push((std::mem::take(&mut self.current), dt));
+    }
 }
 
 /// One trajectory.
@@ -169,8 +198,31 @@ pub fn stream<S: Sink + ?Sized>(
     chunk: usize,
     sink: &mut S,
 ) -> Result<FileInfo, ObserveError> {
+    stream_column(source, columns, dt, chunk, Pick::Position, sink)
+}
+
+/// As [`stream`], handing the column `pick` to the sink (the time column and every check as
+/// for the position).
+///
+/// # Errors
+/// As [`stream`]; also a velocity column that does not exist or is the position or time column,
+/// or a velocity asked of samples in memory.
+pub fn stream_column<S: Sink + ?Sized>(
+    source: &Source,
+    columns: &Columns,
+    dt: Option<f64>,
+    chunk: usize,
+    pick: Pick,
+    sink: &mut S,
+) -> Result<FileInfo, ObserveError> {
     let mut buf = Vec::with_capacity(chunk.min(CHUNK_CAP));
     let (name, clock) = match source {
+        Source::Samples { name, .. } if pick != Pick::Position => {
+            return Err(ObserveError::File {
+                file: name.clone(),
+                message: "samples in memory have no velocity column".into(),
+            });
+        }
         Source::Samples { name, values, dt } => {
             if !(dt.is_finite() && *dt > 0.0) {
                 return Err(ObserveError::File {
@@ -194,9 +246,9 @@ pub fn stream<S: Sink + ?Sized>(
                 .extension()
                 .is_some_and(|e| e.eq_ignore_ascii_case("npy"));
             let clock = if is_npy {
-                read_npy(path, &name, columns, dt, chunk, &mut buf, sink)?
+                read_npy(path, &name, (columns, &pick), dt, chunk, &mut buf, sink)?
             } else {
-                read_text(path, &name, columns, dt, chunk, &mut buf, sink)?
+                read_text(path, &name, (columns, &pick), dt, chunk, &mut buf, sink)?
             };
             (name, clock)
         }
@@ -245,24 +297,7 @@ fn layout(
     columns: &Columns,
     dt: Option<f64>,
 ) -> Result<(usize, Option<usize>), String> {
-    let find = |c: &ColumnRef, what: &str| -> Result<usize, String> {
-        match c {
-            ColumnRef::Index(i) if *i < n => Ok(*i),
-            ColumnRef::Index(i) => Err(format!(
-                "the {what} column {} does not exist ({n} columns)",
-                i + 1
-            )),
-            ColumnRef::Name(s) => match names {
-                None => Err(format!(
-                    "no header line names the {what} column \"{s}\": give its number"
-                )),
-                Some(h) => h
-                    .iter()
-                    .position(|x| x.eq_ignore_ascii_case(s))
-                    .ok_or_else(|| format!("no column \"{s}\" in the header")),
-            },
-        }
-    };
+    let find = |c: &ColumnRef, what: &str| find_column(names, n, c, what);
     let named = |options: &[&str]| {
         names.and_then(|h| {
             h.iter()
@@ -304,6 +339,54 @@ fn layout(
     Ok((position, time))
 }
 
+/// The index of column `c` in a file with `n` columns and optional header `names`.
+fn find_column(
+    names: Option<&[String]>,
+    n: usize,
+    c: &ColumnRef,
+    what: &str,
+) -> Result<usize, String> {
+    match c {
+        ColumnRef::Index(i) if *i < n => Ok(*i),
+        ColumnRef::Index(i) => Err(format!(
+            "the {what} column {} does not exist ({n} columns)",
+            i + 1
+        )),
+        ColumnRef::Name(s) => match names {
+            None => Err(format!(
+                "no header line names the {what} column \"{s}\": give its number"
+            )),
+            Some(h) => h
+                .iter()
+                .position(|x| x.eq_ignore_ascii_case(s))
+                .ok_or_else(|| format!("no column \"{s}\" in the header")),
+        },
+    }
+}
+
+/// The column a pass reads (`pick`), after [`layout`] placed the position `p` and the time `t`:
+/// a velocity column must exist and differ from both.
+fn picked(
+    names: Option<&[String]>,
+    n: usize,
+    (p, t): (usize, Option<usize>),
+    pick: &Pick,
+) -> Result<usize, String> {
+    match pick {
+        Pick::Position => Ok(p),
+        Pick::Velocity(c) => {
+            let v = find_column(names, n, c, "velocity")?;
+            if v == p || Some(v) == t {
+                return Err(format!(
+                    "the velocity column {} is also the position or the time column",
+                    v + 1
+                ));
+            }
+            Ok(v)
+        }
+    }
+}
+
 /// Parses field `k` (0-based) of a line.
 #[inline]
 fn number(f: &str, k: usize) -> Result<f64, String> {
@@ -317,7 +400,7 @@ fn number(f: &str, k: usize) -> Result<f64, String> {
 fn read_text<S: Sink + ?Sized>(
     path: &Path,
     name: &str,
-    columns: &Columns,
+    (columns, pick): (&Columns, &Pick),
     dt: Option<f64>,
     chunk: usize,
     buf: &mut Vec<f64>,
@@ -351,7 +434,9 @@ fn read_text<S: Sink + ?Sized>(
                 let all: Vec<&str> = fields(s).collect();
                 let header = all.iter().all(|f| f.parse::<f64>().is_err());
                 let names: Vec<String> = all.iter().map(|f| f.to_string()).collect();
-                let (p, t) = layout(header.then_some(&names[..]), all.len(), columns, clock.dt)
+                let head = header.then_some(&names[..]);
+                let (p, t) = layout(head, all.len(), columns, clock.dt)
+                    .and_then(|pt| Ok((picked(head, all.len(), pt, pick)?, pt.1)))
                     .map_err(|m| at(name, place(line_no), m))?;
                 lay = Some((p, t, all.len()));
                 if header {
@@ -527,7 +612,7 @@ impl NpyColumn {
 fn read_npy<S: Sink + ?Sized>(
     path: &Path,
     name: &str,
-    columns: &Columns,
+    (columns, pick): (&Columns, &Pick),
     dt: Option<f64>,
     chunk: usize,
     buf: &mut Vec<f64>,
@@ -542,7 +627,9 @@ fn read_npy<S: Sink + ?Sized>(
     let mut head = vec![0u8; total.min(1 << 16) as usize];
     f.read_exact(&mut head).map_err(|e| io_err(name, &e))?;
     let h = npy_header(&head, total).map_err(file_err)?;
-    let (p, t) = layout(None, h.cols, columns, dt).map_err(file_err)?;
+    let (p, t) = layout(None, h.cols, columns, dt)
+        .and_then(|pt| Ok((picked(None, h.cols, pt, pick)?, pt.1)))
+        .map_err(file_err)?;
     let mut pos = NpyColumn::open(path, &h, p).map_err(|e| io_err(name, &e))?;
     let mut time = match t {
         Some(t) => Some(NpyColumn::open(path, &h, t).map_err(|e| io_err(name, &e))?),

@@ -140,6 +140,9 @@ pub struct Options {
     /// ω² = U″/m of a harmonic well (1/time²), for the force term of the kernel inversion
     /// (default: free particle; with positions, ⟨v²⟩/var(x) when the particle is confined)
     pub omega2: Option<f64>,
+    /// var(x) of the positions beside given velocities: ω² = ⟨v²⟩/var(x) for a confined particle
+    /// when `omega2` is not given (with positions it is computed from them)
+    pub position_variance: Option<f64>,
     /// seed of the bootstrap
     pub seed: u64,
     /// bootstrap resamples
@@ -151,6 +154,7 @@ impl Default for Options {
         Self {
             mass: None,
             omega2: None,
+            position_variance: None,
             seed: 1,
             resamples: DEFAULT_RESAMPLES,
         }
@@ -256,6 +260,82 @@ pub struct Friction {
     pub interval_rule: String,
     /// what the user should know
     pub warnings: Vec<String>,
+}
+
+/// A Green–Kubo γ is passed on to a scenario only when ∫C/∫|C| over the window is at least
+/// this: in a well of curvature ω² the VACF carries a negative tail of area ≈ D·ω²W/γ inside the
+/// window W ≈ 8/γ, so the integral is low by ≈ 8ω²/γ² and the ratio is ≈ (1 − x)/(1 + x) with
+/// x = 8ω²/γ² (derived here for the overdamped harmonic VACF); 0.8 keeps x, the bias of γ, near
+/// 10%.
+pub const SCENARIO_RATIO: f64 = 0.8;
+/// τ is passed on only when its standard error is at most this share of it (τ known to about a
+/// factor 2 at 95%; a rougher τ would steer the memory formulas by noise).
+pub const SCENARIO_TAU_REL_SE: f64 = 1.0 / 3.0;
+
+/// The friction and memory time a scenario may take from the analysis, and why any is left out.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ScenarioFriction {
+    /// γ (1/time)
+    pub friction: Option<f64>,
+    /// τ of the exponential kernel (time)
+    pub memory_time: Option<f64>,
+    /// why γ or τ is left out, one sentence each
+    pub left_out: Vec<String>,
+}
+
+impl Friction {
+    /// The rule: γ only from the Green–Kubo route with ∫C/∫|C| ≥ [`SCENARIO_RATIO`] and a 95%
+    /// interval above zero (a confined particle's kernel routes use a harmonic ω² and are
+    /// reported, not passed on); τ only when that γ is, the exponential kernel fit is resolved,
+    /// fails on at most a tenth of the resamples, its interval lies above zero and its standard
+    /// error is at most [`SCENARIO_TAU_REL_SE`] of it.
+    pub fn for_scenario(&self) -> ScenarioFriction {
+        let mut left_out = Vec::new();
+        let g = &self.gamma;
+        let friction = if self.gamma_route != Route::GreenKubo {
+            left_out.push(format!(
+                "the VACF integral vanishes (∫C/∫|C| = {:.3}): the particle turns in its well before its velocity relaxes, and the velocities do not fix γ here",
+                self.integral_ratio
+            ));
+            None
+        } else if self.integral_ratio < SCENARIO_RATIO {
+            left_out.push(format!(
+                "∫C/∫|C| = {:.3} is below {SCENARIO_RATIO}: the well's pull cuts the Green–Kubo integral, so γ = {:.4e} is too high by an unknown factor",
+                self.integral_ratio, g.value
+            ));
+            None
+        } else if !(g.value > 0.0 && g.ci95[0] > 0.0) {
+            left_out.push(format!(
+                "the friction's 95% interval [{:e}, {:e}] reaches zero",
+                g.ci95[0], g.ci95[1]
+            ));
+            None
+        } else {
+            Some(g.value)
+        };
+        let memory_time = match (&self.kernel.fit, friction) {
+            (Some(fit), Some(_)) => {
+                let t = &fit.memory_time;
+                let good = t.value > 0.0
+                    && t.ci95[0] > 0.0
+                    && t.se <= SCENARIO_TAU_REL_SE * t.value
+                    && fit.failed_resamples * 10 <= self.resamples;
+                if !good {
+                    left_out.push(format!(
+                        "the kernel fit's τ = {:.4e} ± {:.4e} is not well determined",
+                        t.value, t.se
+                    ));
+                }
+                good.then_some(t.value)
+            }
+            _ => None,
+        };
+        ScenarioFriction {
+            friction,
+            memory_time,
+            left_out,
+        }
+    }
 }
 
 /// Central-difference velocities (x_{n+1} − x_{n−1})/(2Δt) at samples 1..n−1 (two fewer than
@@ -469,7 +549,8 @@ pub fn from_velocities(
     opts: &Options,
 ) -> Result<Friction, VelocityError> {
     check(trajs, dt, opts)?;
-    analyse(trajs, dt, opts, Origin::Given, None)
+    let var_x = opts.position_variance.filter(|v| v.is_finite() && *v > 0.0);
+    analyse(trajs, dt, opts, Origin::Given, var_x)
 }
 
 /// Friction and memory from position trajectories sampled every `dt`, through central-difference

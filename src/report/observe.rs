@@ -3,13 +3,18 @@
 //! the energy unit, and a summary of the profile in the energy unit: its range and the barrier
 //! between the cores read off the histogram.
 //!
+//! The friction record (JSON key "friction") is the library's with the mass converted to the
+//! scenario's mass unit (energy·time²/length² when the mass unit is "1"); "regime" is the
+//! diagnosis of the scenario `--scenario-out` wrote, as `rate` would make it.
+//!
 //! The barrier estimate is the highest observed bin between the cores minus the lowest bin in
 //! each core, with σ = hypot(σ_U(top), σ_U(minimum)) (the two bins' bootstrap errors taken as
 //! independent). The highest of several noisy bins is biased upward by up to about its σ_U; a fit
 //! (`rate` on the written profile) does not have that bias.
 
 use crate::observe::free_energy::Bin;
-use crate::observe::{FreeEnergy, Interval, ObservedReport};
+use crate::observe::{FreeEnergy, Interval, ObservedReport, Window};
+use crate::theory::RegimeReport;
 use crate::units::{UnitNames, UnitSystem};
 use serde::Serialize;
 
@@ -144,15 +149,34 @@ pub struct ObserveReport {
     pub profile: Option<ProfileSummary>,
     /// the files written
     pub written: Written,
+    /// the regime of the written scenario, with the observed friction (null without one)
+    pub regime: Option<RegimeReport>,
     /// notes on the output (not about the data; those are in "warnings")
     pub notes: Vec<String>,
 }
 
 impl ObserveReport {
     /// From the analysis and the units of the scenario (reduced units without one).
-    pub fn new(observed: ObservedReport, u: &UnitSystem, scenario: Option<String>) -> Self {
+    ///
+    /// The friction's mass is converted with `u.mass_factor` (left in kT·time²/length² with a
+    /// note when `u` has none).
+    pub fn new(mut observed: ObservedReport, u: &UnitSystem, scenario: Option<String>) -> Self {
         let k = &observed.kinetics;
         let profile = ProfileSummary::new(&observed.free_energy, [k.core_a, k.core_b], u);
+        let mut notes = Vec::new();
+        if let Some(f) = &mut observed.friction {
+            match u.mass_factor {
+                Some(factor) => {
+                    let m = &mut f.mass;
+                    m.value /= factor;
+                    m.se /= factor;
+                    m.ci95 = m.ci95.map(|v| v / factor);
+                }
+                None => notes.push(
+                    "the friction's mass is in kT·time²/length² (the units convert no mass)".into(),
+                ),
+            }
+        }
         Self {
             scenario,
             units: u.names.clone(),
@@ -160,7 +184,69 @@ impl ObserveReport {
             observed,
             profile,
             written: Written::default(),
-            notes: Vec::new(),
+            regime: None,
+            notes,
+        }
+    }
+}
+
+/// One restrained window in the output.
+#[derive(Debug, Clone, Serialize)]
+pub struct WindowOut {
+    /// the spring constant in the energy unit per length²
+    pub spring: f64,
+    /// the file, the spring in kT/length² and D at the mean position
+    #[serde(flatten)]
+    pub window: Window,
+}
+
+/// `observe --spring` output: D at each restrained window's mean position (lengths and times
+/// as in the files, D in length²/time).
+#[derive(Debug, Clone, Serialize)]
+pub struct WindowsReport {
+    /// the scenario the units come from (not part of the JSON contract)
+    #[serde(skip)]
+    pub scenario: Option<String>,
+    /// unit names
+    pub units: UnitNames,
+    /// kT in the energy unit
+    #[serde(rename = "kT")]
+    pub kt: f64,
+    /// the windows, in the order given
+    pub windows: Vec<WindowOut>,
+    /// every window's warnings, each naming its file
+    pub warnings: Vec<String>,
+    /// notes on the output
+    pub notes: Vec<String>,
+}
+
+impl WindowsReport {
+    /// From the windows (springs in kT/length²) and the scenario's units.
+    pub fn new(windows: Vec<Window>, u: &UnitSystem, scenario: Option<String>) -> Self {
+        let warnings = windows
+            .iter()
+            .flat_map(|w| {
+                w.diffusion
+                    .warnings
+                    .iter()
+                    .map(move |m| format!("{}: {m}", w.trajectory.name))
+            })
+            .collect();
+        Self {
+            scenario,
+            units: u.names.clone(),
+            kt: u.kt_in_energy_unit,
+            windows: windows
+                .into_iter()
+                .map(|w| WindowOut {
+                    spring: u.energy_from_kt(w.spring_kt),
+                    window: w,
+                })
+                .collect(),
+            warnings,
+            notes: vec![
+                "restrained windows: no free energy or core-to-core kinetics (a spring holds the coordinate)".into(),
+            ],
         }
     }
 }

@@ -1552,16 +1552,191 @@ pub fn observe(r: &super::observe::ObserveReport) -> String {
     if let Some(d) = &o.diffusion {
         observe_diffusion(&mut out, r, d, &u);
     }
+    if let Some(f) = &o.friction {
+        observe_friction(&mut out, r, f, &u);
+    }
     let w = &r.written;
     for (what, file) in [("profile table", &w.profile), ("scenario", &w.scenario)] {
         if let Some(f) = file {
             let _ = writeln!(out, "wrote the {what} {f}");
         }
     }
+    if let Some(g) = &r.regime {
+        let _ = writeln!(
+            out,
+            "regime with the observed friction (the written scenario, as `rate` reads it): {}{}{}",
+            g.name.as_str(),
+            g.gamma_over_omega_barrier
+                .map_or(String::new(), |v| format!(", γ/ω_b = {}", num(v))),
+            g.delta
+                .map_or(String::new(), |v| format!(", δ = {}", num(v)))
+        );
+    }
     for n in &r.notes {
         let _ = writeln!(out, "note: {n}");
     }
     warnings(&mut out, &o.warnings);
+    out
+}
+
+/// The friction part of `observe`: mass, ⟨v²⟩, Green–Kubo D, γ by its route, the memory fit, the
+/// velocities' error (the VACF and the kernel points are in the JSON).
+fn observe_friction(
+    out: &mut String,
+    r: &super::observe::ObserveReport,
+    f: &crate::observe::velocity::Friction,
+    u: &U,
+) {
+    use crate::observe::velocity::{Estimate, Origin, Route};
+    let mass_unit = if r.units.mass == "1" {
+        format!("{}·{}²/{}²", u.e, u.t, u.l)
+    } else {
+        r.units.mass.clone()
+    };
+    let est = |e: &Estimate| format!("{} ± {}", num(e.value), num(e.se));
+    let iv = |e: &Estimate| format!("[{}, {}]", num(e.ci95[0]), num(e.ci95[1]));
+    let _ = writeln!(
+        out,
+        "friction from {} velocities ({} samples every {} {}; block bootstrap, {} blocks, {} resamples):",
+        match f.origin {
+            Origin::Given => "the given",
+            Origin::CentralDifference => "central-difference",
+        },
+        f.samples,
+        num(f.interval),
+        u.t,
+        f.blocks,
+        f.resamples
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "quantity".to_string(),
+        "value ± se".to_string(),
+        "95% interval".to_string(),
+        "how".to_string(),
+    ]);
+    t.add_row(vec![
+        format!("mass ({mass_unit})"),
+        est(&f.mass),
+        iv(&f.mass),
+        if f.mass_given {
+            "given".into()
+        } else {
+            "equipartition kT/⟨v²⟩".into()
+        },
+    ]);
+    t.add_row(vec![
+        format!("⟨v²⟩ ({}²/{}²)", u.l, u.t),
+        est(&f.v2),
+        iv(&f.v2),
+        "mean square velocity".into(),
+    ]);
+    t.add_row(vec![
+        format!("D ({}²/{})", u.l, u.t),
+        est(&f.diffusion),
+        iv(&f.diffusion),
+        format!(
+            "Green–Kubo ∫C_v over {} lags = {} {}{}",
+            f.window.lags,
+            num(f.window.time),
+            u.t,
+            if f.confined {
+                "; vanishes: confined"
+            } else {
+                ""
+            }
+        ),
+    ]);
+    t.add_row(vec![
+        format!("γ (1/{})", u.t),
+        est(&f.gamma),
+        iv(&f.gamma),
+        match f.gamma_route {
+            Route::GreenKubo => "Einstein kT/(m D)".into(),
+            Route::KernelFit => "memory-kernel fit".into(),
+            Route::KernelArea => "area of the resolved memory kernel".into(),
+        },
+    ]);
+    if let Some(k) = &f.kernel.fit {
+        t.add_row(vec![
+            format!("kernel γ (1/{})", u.t),
+            est(&k.gamma),
+            iv(&k.gamma),
+            format!("exponential fit to {} kernel lags", k.points),
+        ]);
+        t.add_row(vec![
+            format!("memory time τ ({})", u.t),
+            est(&k.memory_time),
+            iv(&k.memory_time),
+            "K(t) = (γ/τ) e^(−t/τ)".into(),
+        ]);
+    }
+    show(out, t);
+    if f.kernel.fit.is_none() {
+        let _ = writeln!(
+            out,
+            "memory kernel: memoryless at this sampling (no lag after 0 resolved: the memory time is below about {} {})",
+            num(f.interval),
+            u.t
+        );
+    }
+    let _ = match f.fd_bias {
+        Some(b) => writeln!(
+            out,
+            "velocity error: {} (here f(2γΔt) − 1 = {:.2}%)",
+            f.velocity_error,
+            100.0 * b
+        ),
+        None => writeln!(out, "velocity error: {}", f.velocity_error),
+    };
+}
+
+/// `observe --spring`: D at each restrained window's mean position.
+pub fn observe_windows(r: &super::observe::WindowsReport) -> String {
+    let mut out = String::new();
+    let u = U::new(&r.units);
+    let _ = writeln!(
+        out,
+        "restrained windows · {}: positions in {}, times in {}, springs in {}/{}²; D = var²/∫C at each window's mean (Woolf & Roux 1994, Hummer 2005), 95% interval by batch means; 1/k (k in kT/{}²) is the variance a flat free energy gives",
+        match &r.scenario {
+            Some(s) => format!("units of scenario {s}"),
+            None => "reduced units".to_string(),
+        },
+        u.l,
+        u.t,
+        u.e,
+        u.l,
+        u.l
+    );
+    let mut t = table();
+    t.set_header(vec![
+        "window".to_string(),
+        "samples".to_string(),
+        format!("spring ({}/{}²)", u.e, u.l),
+        format!("mean x ({})", u.l),
+        format!("var x ({}²)", u.l),
+        format!("1/k ({}²)", u.l),
+        format!("D ({}²/{})", u.l, u.t),
+        "95% interval".to_string(),
+    ]);
+    for w in &r.windows {
+        let d = &w.window.diffusion;
+        t.add_row(vec![
+            w.window.trajectory.name.clone(),
+            w.window.trajectory.samples.to_string(),
+            num(w.spring),
+            num(d.mean),
+            format!("{} ± {}", num(d.variance), num(d.variance_se)),
+            num(d.variance_flat),
+            format!("{} ± {}", num(d.d), num(d.d_se)),
+            format!("[{}, {}]", num(d.d_ci95[0]), num(d.d_ci95[1])),
+        ]);
+    }
+    show(&mut out, t);
+    for n in &r.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
+    warnings(&mut out, &r.warnings);
     out
 }
 
