@@ -1,4 +1,5 @@
-//! User formulas in one variable `x`: a small parser, exact symbolic derivatives and a tree evaluator.
+//! User formulas in one variable `x` ([`Formula`]) or two variables `x`, `y` ([`Formula2`]): a
+//! small parser, exact symbolic derivatives (partials for two variables) and a tree evaluator.
 //!
 //! Grammar (precedence low to high): `+ -`, `* /`, unary `-`, `^` (right-associative, so `-x^2` is
 //! `-(x^2)` and `2^-x` is allowed), function calls and parentheses. Functions: exp, ln, sqrt, sin,
@@ -94,11 +95,12 @@ impl Func {
     }
 }
 
-/// An expression tree in `x`.
+/// An expression tree in `x` (and `y` for two-variable formulas).
 #[derive(Debug, Clone, PartialEq)]
 enum Node {
     Num(f64),
     X,
+    Y,
     Neg(Box<Node>),
     Add(Box<Node>, Box<Node>),
     Sub(Box<Node>, Box<Node>),
@@ -180,49 +182,55 @@ fn call(f: Func, a: Node) -> Node {
 impl Node {
     fn size(&self) -> usize {
         match self {
-            Num(_) | X => 1,
+            Num(_) | X | Y => 1,
             Neg(a) | PowI(a, _) | Call(_, a) => 1 + a.size(),
             Add(a, b) | Sub(a, b) | Mul(a, b) | Div(a, b) | Pow(a, b) => 1 + a.size() + b.size(),
         }
     }
 
-    fn eval(&self, x: f64) -> f64 {
+    /// The value at (x, y); one-variable trees never read `y`.
+    fn eval(&self, x: f64, y: f64) -> f64 {
         match self {
             Num(v) => *v,
             X => x,
-            Neg(a) => -a.eval(x),
-            Add(a, b) => a.eval(x) + b.eval(x),
-            Sub(a, b) => a.eval(x) - b.eval(x),
-            Mul(a, b) => a.eval(x) * b.eval(x),
-            Div(a, b) => a.eval(x) / b.eval(x),
-            PowI(a, n) => a.eval(x).powi(*n),
-            Pow(a, b) => a.eval(x).powf(b.eval(x)),
-            Call(f, a) => f.apply(a.eval(x)),
+            Y => y,
+            Neg(a) => -a.eval(x, y),
+            Add(a, b) => a.eval(x, y) + b.eval(x, y),
+            Sub(a, b) => a.eval(x, y) - b.eval(x, y),
+            Mul(a, b) => a.eval(x, y) * b.eval(x, y),
+            Div(a, b) => a.eval(x, y) / b.eval(x, y),
+            PowI(a, n) => a.eval(x, y).powi(*n),
+            Pow(a, b) => a.eval(x, y).powf(b.eval(x, y)),
+            Call(f, a) => f.apply(a.eval(x, y)),
         }
     }
 
+    /// The derivative with respect to `x`.
     fn deriv(&self) -> Node {
+        self.partial(&X)
+    }
+
+    /// The partial derivative with respect to `var` (`X` or `Y`).
+    fn partial(&self, var: &Node) -> Node {
+        let d = |n: &Node| n.partial(var);
         match self {
             Num(_) => num(0.0),
-            X => num(1.0),
-            Neg(a) => neg(a.deriv()),
-            Add(a, b) => add(a.deriv(), b.deriv()),
-            Sub(a, b) => sub(a.deriv(), b.deriv()),
-            Mul(a, b) => add(mul(a.deriv(), (**b).clone()), mul((**a).clone(), b.deriv())),
+            X | Y => num(if self == var { 1.0 } else { 0.0 }),
+            Neg(a) => neg(d(a)),
+            Add(a, b) => add(d(a), d(b)),
+            Sub(a, b) => sub(d(a), d(b)),
+            Mul(a, b) => add(mul(d(a), (**b).clone()), mul((**a).clone(), d(b))),
             Div(a, b) => div(
-                sub(mul(a.deriv(), (**b).clone()), mul((**a).clone(), b.deriv())),
+                sub(mul(d(a), (**b).clone()), mul((**a).clone(), d(b))),
                 powi((**b).clone(), 2),
             ),
-            PowI(a, n) => mul(
-                mul(num(f64::from(*n)), powi((**a).clone(), n - 1)),
-                a.deriv(),
-            ),
+            PowI(a, n) => mul(mul(num(f64::from(*n)), powi((**a).clone(), n - 1)), d(a)),
             Pow(a, b) => {
                 // d a^b = a^b (b' ln a + b a' / a)
                 let here = pow((**a).clone(), (**b).clone());
                 let term = add(
-                    mul(b.deriv(), call(Func::Ln, (**a).clone())),
-                    div(mul((**b).clone(), a.deriv()), (**a).clone()),
+                    mul(d(b), call(Func::Ln, (**a).clone())),
+                    div(mul((**b).clone(), d(a)), (**a).clone()),
                 );
                 mul(here, term)
             }
@@ -241,25 +249,31 @@ impl Node {
                     Func::Abs => call(Func::Sign, inner),
                     Func::Sign => num(0.0),
                 };
-                mul(outer, a.deriv())
+                mul(outer, d(a))
             }
         }
     }
 }
 
-impl fmt::Display for Node {
+/// A tree printed with the user's variable names.
+struct Shown<'a>(&'a Node, [&'a str; 2]);
+
+impl<'a> fmt::Display for Shown<'a> {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
+        let names = self.1;
+        let s = |n: &'a Node| Shown(n, names);
+        match self.0 {
             Num(v) => write!(f, "{v}"),
-            X => write!(f, "x"),
-            Neg(a) => write!(f, "(-{a})"),
-            Add(a, b) => write!(f, "({a} + {b})"),
-            Sub(a, b) => write!(f, "({a} - {b})"),
-            Mul(a, b) => write!(f, "({a}*{b})"),
-            Div(a, b) => write!(f, "({a}/{b})"),
-            PowI(a, n) => write!(f, "({a})^{n}"),
-            Pow(a, b) => write!(f, "({a})^({b})"),
-            Call(g, a) => write!(f, "{}({a})", g.name()),
+            X => write!(f, "{}", names[0]),
+            Y => write!(f, "{}", names[1]),
+            Neg(a) => write!(f, "(-{})", s(a)),
+            Add(a, b) => write!(f, "({} + {})", s(a), s(b)),
+            Sub(a, b) => write!(f, "({} - {})", s(a), s(b)),
+            Mul(a, b) => write!(f, "({}*{})", s(a), s(b)),
+            Div(a, b) => write!(f, "({}/{})", s(a), s(b)),
+            PowI(a, n) => write!(f, "({})^{n}", s(a)),
+            Pow(a, b) => write!(f, "({})^({})", s(a), s(b)),
+            Call(g, a) => write!(f, "{}({})", g.name(), s(a)),
         }
     }
 }
@@ -278,6 +292,8 @@ struct Parser<'a> {
     toks: Vec<(Tok, usize)>,
     pos: usize,
     constants: &'a BTreeMap<String, f64>,
+    /// the variable names: one (`x`) or two (`x`, `y`)
+    vars: &'a [&'a str],
     /// nesting depth of parentheses, calls and unary signs (bounded: the parser recurses)
     depth: usize,
 }
@@ -460,8 +476,10 @@ impl Parser<'_> {
                     let arg = self.expr()?;
                     self.expect_close(open)?;
                     call(f, arg)
-                } else if name == "x" {
+                } else if name == self.vars[0] {
                     X
+                } else if self.vars.get(1) == Some(&name.as_str()) {
+                    Y
                 } else if let Some(v) = self.constants.get(&name) {
                     Num(*v)
                 } else if name == "pi" {
@@ -469,13 +487,17 @@ impl Parser<'_> {
                 } else if name == "e" {
                     Num(std::f64::consts::E)
                 } else {
-                    let mut known: Vec<&str> = vec!["x", "pi", "e"];
+                    let mut known: Vec<&str> = vec!["pi", "e"];
                     known.extend(self.constants.keys().map(String::as_str));
+                    let variables = match self.vars {
+                        [one] => format!("variable {one}"),
+                        more => format!("variables {}", more.join(", ")),
+                    };
                     return Err(err(
                         at,
                         format!(
-                            "unknown name \"{name}\" (variable x; constants {}; functions exp, ln, sqrt, sin, cos, tan, sinh, cosh, tanh, abs)",
-                            known[1..].join(", ")
+                            "unknown name \"{name}\" ({variables}; constants {}; functions exp, ln, sqrt, sin, cos, tan, sinh, cosh, tanh, abs)",
+                            known.join(", ")
                         ),
                     ));
                 }
@@ -517,56 +539,68 @@ pub struct Formula {
     d2: Node,
 }
 
+/// Parses `src` in the variables `vars` (one or two names) into its tree.
+fn parse_tree(
+    src: &str,
+    constants: &BTreeMap<String, f64>,
+    vars: &[&str],
+) -> Result<Node, FormulaError> {
+    for name in constants.keys() {
+        if vars.contains(&name.as_str()) || Func::from_name(name).is_some() {
+            let what = if vars.len() == 1 {
+                "the variable"
+            } else {
+                "a variable"
+            };
+            return Err(err(
+                1,
+                format!("constant name \"{name}\" is reserved ({what} or a function)"),
+            ));
+        }
+    }
+    let len = src.chars().count();
+    if len > MAX_LEN {
+        return Err(err(
+            MAX_LEN + 1,
+            format!("formula longer than {MAX_LEN} characters ({len})"),
+        ));
+    }
+    let toks = tokenize(src)?;
+    let mut p = Parser {
+        toks,
+        pos: 0,
+        constants,
+        vars,
+        depth: 0,
+    };
+    let f = p.expr()?;
+    match p.peek() {
+        Tok::End => Ok(f),
+        Tok::RParen => Err(err(p.at(), "unmatched ')'")),
+        _ => Err(err(p.at(), "unexpected text after the end of the formula")),
+    }
+}
+
+/// `n`, or an error if a derivative grew beyond [`MAX_NODES`].
+fn bounded(n: Node) -> Result<Node, FormulaError> {
+    if n.size() > MAX_NODES {
+        return Err(err(
+            1,
+            format!("formula too complex to differentiate (over {MAX_NODES} terms)"),
+        ));
+    }
+    Ok(n)
+}
+
 impl Formula {
     /// Parses `src` with the given named constants.
     ///
     /// # Errors
     /// Syntax errors and unknown names, with the 1-based position in `src`.
     pub fn parse(src: &str, constants: &BTreeMap<String, f64>) -> Result<Self, FormulaError> {
-        for name in constants.keys() {
-            if name == "x" || Func::from_name(name).is_some() {
-                return Err(err(
-                    1,
-                    format!("constant name \"{name}\" is reserved (the variable or a function)"),
-                ));
-            }
-        }
-        let len = src.chars().count();
-        if len > MAX_LEN {
-            return Err(err(
-                MAX_LEN + 1,
-                format!("formula longer than {MAX_LEN} characters ({len})"),
-            ));
-        }
-        let toks = tokenize(src)?;
-        let mut p = Parser {
-            toks,
-            pos: 0,
-            constants,
-            depth: 0,
-        };
-        let f = p.expr()?;
-        match p.peek() {
-            Tok::End => {}
-            Tok::RParen => return Err(err(p.at(), "unmatched ')'")),
-            _ => return Err(err(p.at(), "unexpected text after the end of the formula")),
-        }
-        let too_big = |n: &Node| {
-            (n.size() > MAX_NODES).then(|| {
-                err(
-                    1,
-                    format!("formula too complex to differentiate (over {MAX_NODES} terms)"),
-                )
-            })
-        };
-        let d1 = f.deriv();
-        if let Some(e) = too_big(&d1) {
-            return Err(e);
-        }
-        let d2 = d1.deriv();
-        if let Some(e) = too_big(&d2) {
-            return Err(e);
-        }
+        let f = parse_tree(src, constants, &["x"])?;
+        let d1 = bounded(f.deriv())?;
+        let d2 = bounded(d1.deriv())?;
         Ok(Self {
             source: src.to_string(),
             f,
@@ -582,23 +616,107 @@ impl Formula {
     /// f(x)
     #[inline]
     pub fn value(&self, x: f64) -> f64 {
-        self.f.eval(x)
+        self.f.eval(x, 0.0)
     }
     /// f'(x), from the symbolic derivative
     #[inline]
     pub fn d1(&self, x: f64) -> f64 {
-        self.d1.eval(x)
+        self.d1.eval(x, 0.0)
     }
     /// f''(x), from the symbolic second derivative
     #[inline]
     pub fn d2(&self, x: f64) -> f64 {
-        self.d2.eval(x)
+        self.d2.eval(x, 0.0)
     }
     /// The first derivative, printed (for diagnostics).
     pub fn derivative_text(&self) -> String {
-        self.d1.to_string()
+        Shown(&self.d1, ["x", "y"]).to_string()
     }
     /// True if the formula does not depend on x.
+    pub fn is_constant(&self) -> bool {
+        matches!(self.f, Num(_))
+    }
+}
+
+/// A parsed formula f(x, y) of two variables with its exact first and second partial
+/// derivatives.
+#[derive(Debug, Clone)]
+pub struct Formula2 {
+    source: String,
+    vars: [String; 2],
+    f: Node,
+    /// ∂f/∂x, ∂f/∂y
+    grad: [Node; 2],
+    /// ∂²f/∂x², ∂²f/∂x∂y, ∂²f/∂y²
+    second: [Node; 3],
+}
+
+impl Formula2 {
+    /// Parses `src` in the variables `vars` (e.g. `["x", "y"]`) with the given named constants.
+    /// The mixed partial is taken as ∂/∂y of ∂f/∂x.
+    ///
+    /// # Errors
+    /// Syntax errors and unknown names (a third variable such as `z` is an unknown name), with the
+    /// 1-based position in `src`; a constant named like a variable or a function; two equal
+    /// variable names.
+    pub fn parse(
+        src: &str,
+        vars: [&str; 2],
+        constants: &BTreeMap<String, f64>,
+    ) -> Result<Self, FormulaError> {
+        if vars[0] == vars[1] {
+            return Err(err(
+                1,
+                format!("the two variables have one name \"{}\"", vars[0]),
+            ));
+        }
+        let f = parse_tree(src, constants, &vars)?;
+        let fx = bounded(f.partial(&X))?;
+        let fy = bounded(f.partial(&Y))?;
+        let second = [
+            bounded(fx.partial(&X))?,
+            bounded(fx.partial(&Y))?,
+            bounded(fy.partial(&Y))?,
+        ];
+        Ok(Self {
+            source: src.to_string(),
+            vars: vars.map(str::to_string),
+            f,
+            grad: [fx, fy],
+            second,
+        })
+    }
+
+    /// The formula as written.
+    pub fn source(&self) -> &str {
+        &self.source
+    }
+    /// f(x, y)
+    #[inline]
+    pub fn value(&self, x: f64, y: f64) -> f64 {
+        self.f.eval(x, y)
+    }
+    /// (∂f/∂x, ∂f/∂y), from the symbolic partials
+    #[inline]
+    pub fn gradient(&self, x: f64, y: f64) -> [f64; 2] {
+        [self.grad[0].eval(x, y), self.grad[1].eval(x, y)]
+    }
+    /// The Hessian [[f_xx, f_xy], [f_xy, f_yy]], from the symbolic second partials
+    #[inline]
+    pub fn hessian(&self, x: f64, y: f64) -> [[f64; 2]; 2] {
+        let [xx, xy, yy] = &self.second;
+        let xy = xy.eval(x, y);
+        [[xx.eval(x, y), xy], [xy, yy.eval(x, y)]]
+    }
+    /// The two partial derivatives, printed with the user's variable names (for diagnostics).
+    pub fn gradient_text(&self) -> [String; 2] {
+        let names = [self.vars[0].as_str(), self.vars[1].as_str()];
+        [
+            Shown(&self.grad[0], names).to_string(),
+            Shown(&self.grad[1], names).to_string(),
+        ]
+    }
+    /// True if the formula depends on neither variable.
     pub fn is_constant(&self) -> bool {
         matches!(self.f, Num(_))
     }
@@ -681,5 +799,70 @@ mod tests {
         assert_eq!(f.value(2.0), 0.0);
         c.insert("sin".to_string(), 1.0);
         assert!(Formula::parse("x", &c).is_err());
+    }
+
+    fn p2(s: &str) -> Formula2 {
+        Formula2::parse(s, ["x", "y"], &BTreeMap::new()).unwrap()
+    }
+
+    // Partials checked against the hand-derived closed forms (common practice, no source); the
+    // 1e-12 relative tolerance is a few roundings of terms of order one.
+    #[test]
+    fn two_variable_partials() {
+        let f = p2("(x^2 - 1)^2 + 3*x*y^2 + exp(-x*y) + sin(y)/x");
+        for (x, y) in [(0.7f64, -0.4f64), (-1.3, 0.9), (2.0, 0.1)] {
+            let e = (-x * y).exp();
+            let v = (x * x - 1.0).powi(2) + 3.0 * x * y * y + e + y.sin() / x;
+            let gx = 4.0 * x * (x * x - 1.0) + 3.0 * y * y - y * e - y.sin() / (x * x);
+            let gy = 6.0 * x * y - x * e + y.cos() / x;
+            let hxx = 12.0 * x * x - 4.0 + y * y * e + 2.0 * y.sin() / (x * x * x);
+            let hxy = 6.0 * y - e + x * y * e - y.cos() / (x * x);
+            let hyy = 6.0 * x + x * x * e - y.sin() / x;
+            let close = |a: f64, b: f64| (a - b).abs() < 1e-12 * (1.0 + b.abs());
+            assert!(close(f.value(x, y), v));
+            let g = f.gradient(x, y);
+            assert!(close(g[0], gx) && close(g[1], gy));
+            let h = f.hessian(x, y);
+            assert!(close(h[0][0], hxx) && close(h[0][1], hxy) && close(h[1][1], hyy));
+            assert_eq!(h[0][1], h[1][0]);
+        }
+        // the partials are printed with the user's names
+        let g = Formula2::parse("a^2*b", ["a", "b"], &BTreeMap::new()).unwrap();
+        assert_eq!(g.gradient_text(), ["((2*a)*b)", "(a)^2"]);
+        assert!(p2("2 + pi").is_constant() && !p2("y").is_constant());
+    }
+
+    #[test]
+    fn two_variable_errors() {
+        let none = BTreeMap::new();
+        // a third variable is an unknown name at its position
+        let e = Formula2::parse("x^2 + z", ["x", "y"], &none).unwrap_err();
+        assert_eq!(e.position, 7);
+        assert!(e.message.contains("\"z\"") && e.message.contains("variables x, y"));
+        let e = Formula2::parse("x*y +", ["x", "y"], &none).unwrap_err();
+        assert_eq!(e.position, 6);
+        let mut c = BTreeMap::new();
+        c.insert("y".to_string(), 1.0);
+        assert!(Formula2::parse("x", ["x", "y"], &c).is_err());
+        // y is an ordinary constant of a one-variable formula, an unknown name otherwise
+        assert_eq!(Formula::parse("x*y", &c).unwrap().value(2.0), 2.0);
+        let e = Formula::parse("x*y", &none).unwrap_err();
+        assert_eq!(e.position, 3);
+        assert!(e.message.contains("(variable x; constants pi, e;"));
+        assert!(Formula2::parse("x", ["x", "x"], &none).is_err());
+    }
+
+    /// The one-variable derivative text users see is unchanged by the two-variable trees.
+    #[test]
+    fn one_variable_text_unchanged() {
+        // texts printed by the one-variable code before two-variable formulas existed
+        assert_eq!(
+            p("4.5*(x^2-1)^2 + 0.6*sin(3*x)").derivative_text(),
+            "((4.5*((2*((x)^2 - 1))*(2*x))) + (0.6*(cos((3*x))*3)))"
+        );
+        assert_eq!(
+            p("x^x + sqrt(x)/x - abs(x-3)*exp(-x)").derivative_text(),
+            "((((x)^(x)*(ln(x) + (x/x))) + ((((0.5/sqrt(x))*x) - sqrt(x))/(x)^2)) - ((sign((x - 3))*exp((-x))) + (abs((x - 3))*(exp((-x))*-1))))"
+        );
     }
 }

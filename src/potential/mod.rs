@@ -10,6 +10,7 @@
 pub mod any;
 pub mod family;
 pub mod formula;
+pub mod grid;
 pub mod periodic;
 pub mod smooth;
 pub mod surface;
@@ -17,7 +18,9 @@ pub mod table;
 
 pub use any::AnyPotential;
 pub use family::Family;
-pub use formula::{Formula, FormulaError};
+pub use formula::{Formula, Formula2, FormulaError};
+pub use grid::{GridError, GridSurface};
+pub use surface::{FormulaSurface, Surface};
 pub use table::{FitChoice, FitSummary, Spline, Table, TableError, TableOptions};
 
 /// A one-dimensional potential on a finite domain `[lo, hi]` with reflecting ends.

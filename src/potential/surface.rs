@@ -5,10 +5,14 @@
 //! A surface may forbid part of its box (a grid table with missing corners: U = +∞ there);
 //! [`Surface::allowed`] tells, and every user of a surface treats a forbidden point as a wall.
 //!
+//! [`FormulaSurface`] is a user formula f(x, y) with exact symbolic partials; the grid table is
+//! [`super::grid::GridSurface`].
+//!
 //! [`MullerBrown`] is the four-Gaussian test surface of Müller & Brown (Theor. Chim. Acta 53, 75
 //! (1979)), U = Σ_k A_k exp(a_k (x − x_k)² + b_k (x − x_k)(y − y_k) + c_k (y − y_k)²), with the
 //! published parameters, scaled from its energy unit to kT.
 
+use super::formula::Formula2;
 use std::fmt::Debug;
 
 /// A point (x, y).
@@ -151,6 +155,46 @@ impl Surface for MullerBrown {
         let h = Self::terms(p).2;
         let s = self.scale;
         [[s * h[0][0], s * h[0][1]], [s * h[1][0], s * h[1][1]]]
+    }
+    fn domain(&self) -> Rect {
+        self.domain
+    }
+}
+
+/// A user formula f(x, y), scaled from the scenario's energy unit to kT.
+#[derive(Debug, Clone)]
+pub struct FormulaSurface {
+    formula: Formula2,
+    scale: f64,
+    domain: Rect,
+}
+
+impl FormulaSurface {
+    /// `scale` multiplies the formula's value to give kT (1 / kT-in-energy-unit).
+    pub fn new(formula: Formula2, scale: f64, domain: Rect) -> Self {
+        Self {
+            formula,
+            scale,
+            domain,
+        }
+    }
+    /// The formula as written.
+    pub fn formula(&self) -> &Formula2 {
+        &self.formula
+    }
+}
+
+impl Surface for FormulaSurface {
+    fn u(&self, p: Point) -> f64 {
+        self.scale * self.formula.value(p[0], p[1])
+    }
+    fn grad(&self, p: Point) -> [f64; 2] {
+        self.formula.gradient(p[0], p[1]).map(|g| self.scale * g)
+    }
+    fn hessian(&self, p: Point) -> Sym2 {
+        self.formula
+            .hessian(p[0], p[1])
+            .map(|row| row.map(|h| self.scale * h))
     }
     fn domain(&self) -> Rect {
         self.domain

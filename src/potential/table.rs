@@ -105,7 +105,7 @@ pub enum TableError {
     Whole(String),
 }
 
-fn line_err(line: usize, message: impl Into<String>) -> TableError {
+pub(super) fn line_err(line: usize, message: impl Into<String>) -> TableError {
     TableError::Line {
         line,
         message: message.into(),
@@ -147,6 +147,53 @@ fn header_name(s: &str) -> Option<Col> {
     }
 }
 
+/// The text of a table file, or the 1-based line holding its first byte that is not UTF-8.
+pub(super) fn utf8_text(bytes: &[u8]) -> Result<&str, usize> {
+    std::str::from_utf8(bytes).map_err(|e| {
+        bytes[..e.valid_up_to()]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count()
+            + 1
+    })
+}
+
+/// The columns a header line names (each once), through `name`; `expected` lists the names for
+/// the message.
+pub(super) fn header_columns<C: Copy + PartialEq>(
+    fields: &[&str],
+    name: impl Fn(&str) -> Option<C>,
+    expected: &str,
+) -> Result<Vec<C>, String> {
+    let mut named = Vec::new();
+    for f in fields {
+        match name(f) {
+            Some(c) if !named.contains(&c) => named.push(c),
+            Some(_) => return Err(format!("column \"{f}\" twice")),
+            None => {
+                return Err(format!(
+                    "unknown column {f:?} in the header (expected {expected}, separated by commas or whitespace)"
+                ));
+            }
+        }
+    }
+    Ok(named)
+}
+
+/// Each data line (not empty, not a `#` comment): its 1-based number, fields and the fields read
+/// as numbers.
+pub(super) fn data_lines(text: &str) -> impl Iterator<Item = (usize, Vec<&str>, Vec<Option<f64>>)> {
+    text.lines().enumerate().filter_map(|(i, raw)| {
+        let line = raw.trim();
+        if line.is_empty() || line.starts_with('#') {
+            return None;
+        }
+        let fields = split_fields(line);
+        let numbers = fields.iter().map(|f| f.parse::<f64>().ok()).collect();
+        Some((i + 1, fields, numbers))
+    })
+}
+
 fn split_fields(line: &str) -> Vec<&str> {
     if line.contains(',') {
         line.split(',').map(str::trim).collect()
@@ -164,48 +211,18 @@ fn split_fields(line: &str) -> Vec<&str> {
 /// x, ragged rows, negative σ_U or σ_D, non-positive D, σ_D without D, fewer than [`MIN_ROWS`]
 /// rows; each with its line.
 pub fn read_columns(bytes: &[u8]) -> Result<Columns, TableError> {
-    let text = match std::str::from_utf8(bytes) {
-        Ok(t) => t,
-        Err(e) => {
-            let line = bytes[..e.valid_up_to()]
-                .iter()
-                .filter(|&&b| b == b'\n')
-                .count()
-                + 1;
-            return Err(line_err(line, "the file is not UTF-8 text"));
-        }
-    };
+    let text = utf8_text(bytes).map_err(|line| line_err(line, "the file is not UTF-8 text"))?;
     let mut layout: Option<Vec<Col>> = None;
     let mut cols = Columns::default();
     let mut sigma = Vec::new();
     let mut dcol = Vec::new();
     let mut sigma_d = Vec::new();
-    for (i, raw) in text.lines().enumerate() {
-        let line_no = i + 1;
-        let line = raw.trim();
-        if line.is_empty() || line.starts_with('#') {
-            continue;
-        }
-        let fields = split_fields(line);
-        let numbers: Vec<Option<f64>> = fields.iter().map(|f| f.parse::<f64>().ok()).collect();
+    for (line_no, fields, numbers) in data_lines(text) {
         if layout.is_none() {
             if numbers.iter().all(Option::is_none) {
                 // a header line (no field is a number)
-                let mut named = Vec::new();
-                for f in &fields {
-                    match header_name(f) {
-                        Some(c) if !named.contains(&c) => named.push(c),
-                        Some(_) => return Err(line_err(line_no, format!("column \"{f}\" twice"))),
-                        None => {
-                            return Err(line_err(
-                                line_no,
-                                format!(
-                                    "unknown column {f:?} in the header (expected x, U, sigma_U, D, sigma_D, separated by commas or whitespace)"
-                                ),
-                            ));
-                        }
-                    }
-                }
+                let named = header_columns(&fields, header_name, "x, U, sigma_U, D, sigma_D")
+                    .map_err(|m| line_err(line_no, m))?;
                 if !(named.contains(&Col::X) && named.contains(&Col::U)) {
                     return Err(line_err(line_no, "the header must name columns x and U"));
                 }

@@ -1,11 +1,14 @@
-//! Landscape analysis: stationary points, the reactant minimum, barrier, product minimum and
-//! target, curvatures, frequencies and the action of the reactant-side orbit at the barrier energy.
+//! Landscape analysis of a potential of one coordinate (this file; [`surface`] for two):
+//! stationary points, the reactant minimum, barrier, product minimum and target, curvatures,
+//! frequencies and the action of the reactant-side orbit at the barrier energy.
 //!
 //! Stationary points come from a fine scan of U' for sign changes refined by Brent's method (or,
 //! for a spline, the exact roots of its piecewise-quadratic U'). Conventions (PHYSICS.md):
 //! ω_a = sqrt(U''(x_a)/m), ω_b = sqrt(|U''(x_b)|/m), I_b = 2 ∫ sqrt(2m(U(x_b) − U(x))) dx between
 //! the turning points of the reactant-side orbit (Kramers, Physica 7, 284 (1940); Hänggi, Talkner &
 //! Borkovec, Rev. Mod. Phys. 62, 251 (1990), Sec. IV). All energies in kT.
+
+pub mod surface;
 
 use crate::potential::Potential;
 use roots::{SimpleConvergency, find_root_brent};
