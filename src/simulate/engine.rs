@@ -52,7 +52,22 @@ pub const LM_ITO_DRIFT: f64 = 0.75;
 pub const LANES: usize = 8;
 /// Steps per lock-step block (Gaussians are drawn a block at a time; the stop flag is polled once
 /// per block).
-const BLOCK: usize = 64;
+pub(crate) const BLOCK: usize = 64;
+
+/// How a lane's trajectory stands after a block that began at step `base` and first reached the
+/// target at block step `first` (`u32::MAX`: not reached): escaped after `base + first + 1` steps
+/// when that is within the horizon, censored at the horizon when the block reached it, else
+/// still running (`None`). Integer logic shared by the lanes on a line and on a surface.
+#[inline]
+pub(crate) fn block_outcome(first: u32, base: u64, max_steps: u64) -> Option<(u64, bool)> {
+    if first != u32::MAX && base + u64::from(first) < max_steps {
+        Some((base + u64::from(first) + 1, true))
+    } else if base + BLOCK as u64 >= max_steps {
+        Some((max_steps, false))
+    } else {
+        None
+    }
+}
 
 /// Which integrator.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -139,7 +154,7 @@ impl Start {
 
 /// Specular reflection at the walls, written as selects so the lane loop needs no branch.
 #[inline(always)]
-fn reflect(x: &mut f64, v: &mut f64, lo: f64, hi: f64) {
+pub(crate) fn reflect(x: &mut f64, v: &mut f64, lo: f64, hi: f64) {
     let below = *x < lo;
     let above = *x > hi;
     let wall = if below { lo } else { hi };
@@ -515,13 +530,13 @@ pub fn run_chunk<F: Force, M: Mobility>(
     }
 }
 
-const BAOAB: u8 = 0;
-const LM: u8 = 1;
-const EM: u8 = 2;
-const GLE: u8 = 3;
+pub(crate) const BAOAB: u8 = 0;
+pub(crate) const LM: u8 = 1;
+pub(crate) const EM: u8 = 2;
+pub(crate) const GLE: u8 = 3;
 
 /// The integrator of a lane loop's constant.
-const fn kind_of(k: u8) -> Kind {
+pub(crate) const fn kind_of(k: u8) -> Kind {
     match k {
         BAOAB => Kind::Baoab,
         LM => Kind::LeimkuhlerMatthews,
@@ -624,14 +639,7 @@ fn lanes<F: Force, M: Mobility, const K: u8>(
             if !active[k] {
                 continue;
             }
-            let outcome = if first[k] != u32::MAX && base[k] + u64::from(first[k]) < p.max_steps {
-                Some((base[k] + u64::from(first[k]) + 1, true))
-            } else if base[k] + BLOCK as u64 >= p.max_steps {
-                Some((p.max_steps, false))
-            } else {
-                None
-            };
-            match outcome {
+            match block_outcome(first[k], base[k], p.max_steps) {
                 None => base[k] += BLOCK as u64,
                 Some((steps, escaped)) => {
                     done(Outcome {

@@ -19,6 +19,7 @@ pub mod force;
 pub mod methods;
 pub mod periodic;
 pub mod plan;
+pub mod plane;
 pub mod records;
 pub mod session;
 pub mod settings;
@@ -121,8 +122,32 @@ pub fn execute(
     indices: &[u64],
     threads: usize,
     stop: &AtomicBool,
-    mut on_done: impl FnMut(&Outcome) -> bool,
+    on_done: impl FnMut(&Outcome) -> bool,
 ) -> Vec<Outcome> {
+    execute_with(
+        indices,
+        threads,
+        stop,
+        on_done,
+        |idx, cursor, halt, send| {
+            run_worker(plan, idx, cursor, halt, send);
+        },
+    )
+}
+
+/// As [`execute`], with the trajectories run by `worker` (one call per worker thread, sharing the
+/// cursor into `indices`): the one thread pool, channel and stop handling of every ensemble, 1-D
+/// ([`execute`]) or on a surface ([`plane::execute`]).
+pub fn execute_with<W>(
+    indices: &[u64],
+    threads: usize,
+    stop: &AtomicBool,
+    mut on_done: impl FnMut(&Outcome) -> bool,
+    worker: W,
+) -> Vec<Outcome>
+where
+    W: Fn(&[u64], &AtomicUsize, &AtomicBool, &mut dyn FnMut(Outcome)) + Sync,
+{
     // the workers watch `halt`: the caller's stop, or this thread's own decision to end
     let halt = AtomicBool::new(stop.load(Ordering::Relaxed));
     let workers = effective_threads(threads.max(1)).0;
@@ -136,7 +161,8 @@ pub fn execute(
     std::thread::scope(|s| {
         let cursor = &cursor;
         let halt = &halt;
-        let worker = s.spawn(move || {
+        let worker = &worker;
+        let running = s.spawn(move || {
             pool.scope(|sc| {
                 for _ in 0..workers {
                     let tx = tx.clone();
@@ -144,7 +170,7 @@ pub fn execute(
                         let mut send = |o: Outcome| {
                             let _ = tx.send(o);
                         };
-                        run_worker(plan, indices, cursor, halt, &mut send);
+                        worker(indices, cursor, halt, &mut send);
                     });
                 }
             });
@@ -153,7 +179,7 @@ pub fn execute(
         // Poll rather than block: a receiver asleep in recv() makes every send a futex wake-up
         // (12% of the run time in a profile of short trajectories). 2 ms keeps records timely.
         loop {
-            let finished = worker.is_finished();
+            let finished = running.is_finished();
             if stop.load(Ordering::Relaxed) {
                 halt.store(true, Ordering::Relaxed);
             }
