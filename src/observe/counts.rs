@@ -12,7 +12,9 @@
 //!
 //! Range ([`range`]): the bins span the positions between the [`TAIL`] and 1 − [`TAIL`] quantiles
 //! of the histogram of pass 2, rounded outward to its bin edges, cut into [`DEFAULT_BINS`] equal
-//! bins unless told otherwise. Pairs with an end outside are dropped, so D near the ends rests
+//! bins (or [`place_bins`]: as many as keep the lattice's well factor F''Δx²/4 of the most curved
+//! well of U at most [`WELL_BIAS_TARGET`], within [`DEFAULT_BINS`]..=[`MAX_BINS`]; the fit costs
+//! O(n³) per likelihood evaluation) unless told otherwise. Pairs with an end outside are dropped, so D near the ends rests
 //! on fewer transitions (the ends also feel the reflecting walls of the lattice model).
 //!
 //! Reported lag ([`Diffusion::new`]): the shortest lag whose bin-spread bias Δx²/(12DΔt)
@@ -84,6 +86,159 @@ pub fn range(fe: &FreeEnergy, count: usize) -> Result<Bins, ObserveError> {
         option: "d_bins",
         message: e.to_string(),
     })
+}
+
+/// Largest F''Δx²/4 of a well the automatic bin count accepts: the fit corrects the lattice
+/// bias e^{F''Δx²/4} (propagator module doc), a correction checked against exact
+/// Ornstein–Uhlenbeck transition counts up to F''Δx² = 0.49 (tests/observe_lattice_bias.rs);
+/// finer bins keep it inside that range.
+pub const WELL_BIAS_TARGET: f64 = 0.1;
+/// Most bins the automatic count takes: every likelihood evaluation diagonalises an n × n
+/// matrix (O(n³)), so 120 bins cost about 60 times 30 bins.
+pub const MAX_BINS: usize = 120;
+/// Energy windows (kT above a minimum) tried in turn for the quadratic fit of a well.
+const WELL_WINDOWS: [f64; 3] = [1.0, 2.0, 3.0];
+/// Fewest histogram bins a well fit uses (3 parameters, so at least 2 degrees of freedom).
+const WELL_FIT_BINS: usize = 5;
+/// Smallest share of the samples a well must hold for its curvature to count (a noise dip in
+/// a sparse region is not a well).
+const WELL_SHARE: f64 = 0.01;
+
+/// The curvature of one well of the histogram U, from a quadratic fit around its minimum.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct WellCurvature {
+    /// the lowest histogram bin of the well
+    pub x: f64,
+    /// U'' (kT per length²) of the fit
+    pub curvature: f64,
+    /// the fit window: U at most this many kT above the minimum
+    pub window_kt: f64,
+    /// histogram bins in the window
+    pub bins: usize,
+}
+
+/// Weighted least squares of U ≈ a + b t + c t² (t = x − x0, weight = samples per bin, since
+/// Var U ≈ 1/count); returns 2c, or `None` when the normal equations are singular.
+fn quadratic_curvature(
+    fe: &FreeEnergy,
+    window: std::ops::RangeInclusive<usize>,
+    x0: f64,
+) -> Option<f64> {
+    let mut m = nalgebra::Matrix3::<f64>::zeros();
+    let mut r = nalgebra::Vector3::<f64>::zeros();
+    for b in &fe.bins[window] {
+        let t = b.x - x0;
+        let phi = nalgebra::Vector3::new(1.0, t, t * t);
+        let w = b.count as f64;
+        m += phi * phi.transpose() * w;
+        r += phi * (w * b.u);
+    }
+    m.lu().solve(&r).map(|c| 2.0 * c[2])
+}
+
+/// The wells of the histogram U and their curvatures: taking bins in order of rising U, each bin
+/// not yet in a window opens one, grown over neighbouring non-empty bins while U stays within
+/// `window_kt` of it (the smallest of [`WELL_WINDOWS`] giving [`WELL_FIT_BINS`] bins); the window
+/// counts as a well when its minimum is inside it (not against an earlier window: a slope), it
+/// holds [`WELL_SHARE`] of the samples and the weighted quadratic fit curves upward. A fit over a
+/// window of ±1 kT averages the noise of many histogram bins, unlike a second difference.
+pub fn well_curvatures(fe: &FreeEnergy) -> Vec<WellCurvature> {
+    let bins = &fe.bins;
+    let n = bins.len();
+    let total: u64 = bins.iter().map(|b| b.count).sum();
+    let adjacent = |i: usize| (bins[i + 1].x - bins[i].x) < 1.5 * fe.bin_width;
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&a, &b| bins[a].u.total_cmp(&bins[b].u));
+    let mut claimed = vec![false; n];
+    let mut wells = Vec::new();
+    for &i in &order {
+        if claimed[i] {
+            continue;
+        }
+        let grow = |kt: f64| {
+            let (mut lo, mut hi) = (i, i);
+            let fits = |j: usize| !claimed[j] && bins[j].u <= bins[i].u + kt;
+            while lo > 0 && adjacent(lo - 1) && fits(lo - 1) {
+                lo -= 1;
+            }
+            while hi + 1 < n && adjacent(hi) && fits(hi + 1) {
+                hi += 1;
+            }
+            (lo, hi)
+        };
+        let found = WELL_WINDOWS
+            .iter()
+            .map(|&kt| (kt, grow(kt)))
+            .find(|&(_, (lo, hi))| hi + 1 - lo >= WELL_FIT_BINS);
+        let (kt, (lo, hi)) = found.unwrap_or((WELL_WINDOWS[0], grow(WELL_WINDOWS[0])));
+        let against = |j: Option<usize>| j.is_some_and(|j| claimed[j]);
+        let slope = (lo == i && against(i.checked_sub(1)))
+            || (hi == i && against((i + 1 < n).then_some(i + 1)));
+        claimed[lo..=hi].iter_mut().for_each(|c| *c = true);
+        let share = bins[lo..=hi].iter().map(|b| b.count).sum::<u64>() as f64 / total as f64;
+        if found.is_none() || slope || share < WELL_SHARE {
+            continue;
+        }
+        if let Some(c) = quadratic_curvature(fe, lo..=hi, bins[i].x).filter(|c| *c > 0.0) {
+            wells.push(WellCurvature {
+                x: bins[i].x,
+                curvature: c,
+                window_kt: kt,
+                bins: hi + 1 - lo,
+            });
+        }
+    }
+    wells.sort_by(|a, b| a.x.total_cmp(&b.x));
+    wells
+}
+
+/// The automatic bin count over a range of `width`: the fewest bins keeping F''Δx²/4 of the most
+/// curved well at [`WELL_BIAS_TARGET`], n = ⌈width·√(F''/(4 × target))⌉, within
+/// [[`DEFAULT_BINS`], [`MAX_BINS`]] ([`DEFAULT_BINS`] without a well).
+pub fn auto_bin_count(wells: &[WellCurvature], width: f64) -> usize {
+    let k = wells.iter().map(|w| w.curvature).fold(0.0, f64::max);
+    let n = (width * (k / (4.0 * WELL_BIAS_TARGET)).sqrt()).ceil();
+    if n.is_finite() {
+        (n as usize).clamp(DEFAULT_BINS, MAX_BINS)
+    } else {
+        DEFAULT_BINS
+    }
+}
+
+/// The bins of `observe --diffusion`: the [`range`], cut into `requested` bins or, by default,
+/// the [`auto_bin_count`] of the histogram's wells; with the rule in words.
+///
+/// # Errors
+/// As [`range`].
+pub fn place_bins(
+    fe: &FreeEnergy,
+    requested: Option<usize>,
+) -> Result<(Bins, String), ObserveError> {
+    let span = range(fe, DEFAULT_BINS)?;
+    let quantiles = format!(
+        "between the {}% and {}% quantiles of the positions, read off the histogram and rounded outward to its bins",
+        100.0 * TAIL,
+        100.0 * (1.0 - TAIL)
+    );
+    let (count, how) = match requested {
+        Some(n) => (n, "as asked".to_string()),
+        None => {
+            let wells = well_curvatures(fe);
+            let n = auto_bin_count(&wells, span.hi - span.lo);
+            let steepest = wells.iter().map(|w| w.curvature).fold(0.0, f64::max);
+            let dx = (span.hi - span.lo) / n as f64;
+            (
+                n,
+                format!(
+                    "chosen so that the lattice bias F''Δx²/4 of the most curved well (F'' = {steepest:.3e} kT/length² from a quadratic fit of U around each minimum) is at most {:.0}% ({:.1}% here), within {DEFAULT_BINS}..={MAX_BINS} bins",
+                    100.0 * WELL_BIAS_TARGET,
+                    100.0 * steepest * dx * dx / 4.0
+                ),
+            )
+        }
+    };
+    let bins = range(fe, count)?;
+    Ok((bins, format!("{quantiles}; {count} bins {how}")))
 }
 
 /// Power sums of the increments starting in one bin.
@@ -383,7 +538,7 @@ impl Diffusion {
             ))
         )];
         notes.push(format!(
-            "the lattice model raises D by about Δx²/(12DΔt) where the free energy is flat ({:.1}% at lag {} frames, taken at the smallest D) and by about F''Δx²/4 in a well of curvature F'' (kT per length²)",
+            "the lattice model raises D by about Δx²/(12DΔt) where the free energy is flat ({:.1}% at lag {} frames, taken at the smallest D) and by about F''Δx²/4 in a well of curvature F'' (kT per length²) unless the lattice correction is on",
             100.0 * fit.bin_bias,
             fit.lag_frames
         ));
