@@ -56,7 +56,7 @@ fn surface<F: PlaneForce>(kind: Kind, f: &F) {
             normal: [1.0, 0.0],
             offset: 100.0,
         },
-        domain: Arc { e: E }.domain(),
+        domain: Arc::new(E).domain(),
         diffusion: DiffusionTensor([[1.0, 0.3], [0.3, 0.8]]),
         mass: [1.0, 0.5],
         gamma: 5.0,
@@ -99,7 +99,7 @@ fn main() {
         escapade::simulate::force::FORCE_TOL,
         -1.0,
     ));
-    let arc = Arc { e: E };
+    let arc = Arc::new(E);
     let grid2 = SurfaceGrid::build(&arc, plane::FORCE_TOL_2D);
     let exact2 = ExactForce(arc);
     println!(

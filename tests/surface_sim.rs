@@ -118,7 +118,7 @@ fn check(label: &str, s: &Summary, want: f64, bias: f64) {
 /// T'(1)·0.02 ≈ 0.1% (T'(1) ≈ 0.7 here), inside that allowance.
 #[test]
 fn separable_surface_matches_one_dimensional_mfpt() {
-    let s = Separable { e: 4.0, k: 4.0 };
+    let s = Separable::new(4.0, 4.0);
     let d = DiffusionTensor::scalar(1.0);
     let product = Region::HalfPlane {
         normal: [1.0, 0.0],
@@ -182,7 +182,7 @@ fn separable_surface_matches_one_dimensional_mfpt() {
 /// dt = 1e-3 for both, with 1% allowed plus 0.2% for the reference.
 #[test]
 fn arc_surface_with_anisotropic_tensor_matches_fv_mfpt() {
-    let s = Arc { e: 4.0 };
+    let s = Arc::new(4.0);
     let d = DiffusionTensor(rotated(0.5, 1.5, 0.6));
     assert!(
         d.0[0][1].abs() > 0.2,
@@ -232,7 +232,7 @@ fn arc_surface_with_anisotropic_tensor_matches_fv_mfpt() {
 /// integrator.
 #[test]
 fn baoab_at_high_friction_tends_to_overdamped_fv_mfpt() {
-    let s = Arc { e: 4.0 };
+    let s = Arc::new(4.0);
     let product = Region::Disk {
         centre: PRODUCT,
         radius: 0.3,
@@ -270,7 +270,7 @@ fn baoab_at_high_friction_tends_to_overdamped_fv_mfpt() {
 /// (common practice for reproducible engines, no source).
 #[test]
 fn outcomes_do_not_depend_on_threads_or_chunking() {
-    let s = Arc { e: 2.0 };
+    let s = Arc::new(2.0);
     let grid = SurfaceGrid::build(&s, FORCE_TOL_2D);
     let product = Region::Disk {
         centre: PRODUCT,

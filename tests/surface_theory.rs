@@ -9,79 +9,18 @@ use escapade::theory::langer::{HarmonicBarrier, unstable_overdamped};
 use escapade::theory::{kramers, mfpt, tst};
 use serde_json::Value;
 
-/// U = E (x² − 1)² + k y²/2.
-#[derive(Debug)]
-struct Separable {
-    e: f64,
-    k: f64,
-    domain: Rect,
-}
+mod surfaces;
+use surfaces::{ALPHA, Arc, BETA, Separable};
 
-impl Surface for Separable {
-    fn u(&self, p: Point) -> f64 {
-        let w = p[0] * p[0] - 1.0;
-        self.e * w * w + 0.5 * self.k * p[1] * p[1]
-    }
-    fn grad(&self, p: Point) -> [f64; 2] {
-        [4.0 * self.e * p[0] * (p[0] * p[0] - 1.0), self.k * p[1]]
-    }
-    fn hessian(&self, p: Point) -> Sym2 {
-        [
-            [4.0 * self.e * (3.0 * p[0] * p[0] - 1.0), 0.0],
-            [0.0, self.k],
-        ]
-    }
-    fn domain(&self) -> Rect {
-        self.domain
-    }
-}
-
-/// U = E [(x² − 1)² + κ g²], g = y − α(x² − 1) − βx: minima at (±1, ±β) (U = 0), saddle at
-/// (0, −α) (U = E), a curved valley with non-diagonal Hessians at the minima and the saddle.
-#[derive(Debug)]
-struct Coupled {
-    e: f64,
-}
-
-const KAPPA: f64 = 1.5;
-const ALPHA: f64 = 0.4;
-const BETA: f64 = 0.5;
-
-impl Surface for Coupled {
-    fn u(&self, p: Point) -> f64 {
-        let [x, y] = p;
-        let w = x * x - 1.0;
-        let g = y - ALPHA * w - BETA * x;
-        self.e * (w * w + KAPPA * g * g)
-    }
-    fn grad(&self, p: Point) -> [f64; 2] {
-        let [x, y] = p;
-        let w = x * x - 1.0;
-        let g = y - ALPHA * w - BETA * x;
-        let gx = -2.0 * ALPHA * x - BETA;
-        [
-            self.e * (4.0 * x * w + 2.0 * KAPPA * g * gx),
-            self.e * 2.0 * KAPPA * g,
-        ]
-    }
-    fn hessian(&self, p: Point) -> Sym2 {
-        let [x, y] = p;
-        let w = x * x - 1.0;
-        let g = y - ALPHA * w - BETA * x;
-        let gx = -2.0 * ALPHA * x - BETA;
-        let xx = 12.0 * x * x - 4.0 + 2.0 * KAPPA * (gx * gx - 2.0 * ALPHA * g);
-        let xy = 2.0 * KAPPA * gx;
-        [
-            [self.e * xx, self.e * xy],
-            [self.e * xy, self.e * 2.0 * KAPPA],
-        ]
-    }
-    fn domain(&self) -> Rect {
-        // x from −2 to 4: the target line x = 1 is the box's midline, on cell centres
-        Rect {
+/// The arc surface on [−2, 4] × [−2.5, 2.5]: the target line x = 1 is the box's midline, on
+/// cell centres.
+fn coupled(e: f64) -> Arc {
+    Arc {
+        e,
+        domain: Rect {
             x: (-2.0, 4.0),
             y: (-2.5, 2.5),
-        }
+        },
     }
 }
 
@@ -251,7 +190,7 @@ fn tensors() -> [(&'static str, DiffusionTensor); 2] {
 /// solver (nalgebra's Schur form) and its direction is an eigenvector; rounding tolerance.
 #[test]
 fn langer_unstable_eigenvalue_matches_direct_eigen() {
-    let s = Coupled { e: 6.0 };
+    let s = coupled(6.0);
     let h = s.hessian(SADDLE);
     for (_, d) in tensors() {
         let (l, v) = unstable_overdamped(&d, h).unwrap();
@@ -274,7 +213,7 @@ fn langer_unstable_eigenvalue_matches_direct_eigen() {
 /// grids are only entering the asymptotic range), and the two last values agree to 1e-3.
 #[test]
 fn coupled_mfpt_converges_second_order() {
-    let s = Coupled { e: 6.0 };
+    let s = coupled(6.0);
     for (name, d) in tensors() {
         let first = Grid::with_spacing(s.domain(), 0.2);
         let st = mfpt_refined(&s, &d, REACTANT, &beyond(1.0), first, 1e-3, 2_000_000).unwrap();
@@ -296,7 +235,7 @@ fn langer_approaches_mfpt_as_barrier_grows() {
     for (name, d) in tensors() {
         let mut dev = Vec::new();
         for e in [6.0, 10.0, 14.0] {
-            let s = Coupled { e };
+            let s = coupled(e);
             let b = HarmonicBarrier::new(s.hessian(REACTANT), s.hessian(SADDLE), e).unwrap();
             let k = b.ln_langer_overdamped(&d).unwrap().exp();
             let first = Grid::with_spacing(s.domain(), 0.1);
@@ -322,7 +261,7 @@ fn langer_approaches_mfpt_as_barrier_grows() {
 /// ν_AB = Σ_{i∈A} π_i Σ_j k_ij q_j (the flux out of A) holds to rounding.
 #[test]
 fn tpt_rate_matches_inverse_mfpt() {
-    let s = Coupled { e: 10.0 };
+    let s = coupled(10.0);
     for (name, d) in tensors() {
         let grid = Grid::with_spacing(s.domain(), 0.025);
         let op = Generator::new(&s, &d, grid).unwrap();
@@ -436,7 +375,7 @@ fn forbidden_cells_are_reflecting_walls() {
 /// Exact property of an M-matrix; 1e-12 allows the rounding of the solve.
 #[test]
 fn committor_obeys_the_maximum_principle() {
-    let s = Coupled { e: 6.0 };
+    let s = coupled(6.0);
     let d = DiffusionTensor(rotated(0.05, 2.0, 0.7));
     let op = Generator::new(&s, &d, Grid::with_spacing(s.domain(), 0.05)).unwrap();
     assert!(op.stencil().iter().all(|b| b.conductance > 0.0));

@@ -36,17 +36,22 @@
 //! sinh(F'Δx/2) against the continuum's −DF'; in a harmonic well (F'Δx)² is of the order of
 //! F''Δx², so both factors matter. The plain lattice therefore moves as one with
 //! D_lattice = D g, ln g = F''Δx²/4 + ln((ΔF/2)/sinh(ΔF/2)) (= F''Δx²/4 − ΔF²/24 + …), and its
-//! fitted D comes out high by g: 13% at the bottom of a well with F''Δx² = 0.49. The fit
-//! therefore uses the lattice D_{i+1/2} g_{i+1/2}(F) in R, with F''Δx² from the fitted F as
+//! fitted D comes out high by g: 13% at the bottom of a well with F''Δx² = 0.49. With
+//! `BayesSettings::lattice_correction` (opt-in; off in `observe`, see below) the fit uses the
+//! lattice D_{i+1/2} g_{i+1/2}(F) in R, with F''Δx² from the fitted F as
 //! (F_{i+2} − F_{i+1} − F_i + F_{i−1})/2 (the three-point difference at the end interfaces), and
-//! reports D (opt-in: `BayesSettings::lattice_correction`). g is symmetric in i ↔ i + 1, so detailed balance with e^{−F_i} is kept; the
+//! reports D. g is symmetric in i ↔ i + 1, so detailed balance with e^{−F_i} is kept; the
 //! posterior samples F and ln D, so the uncertainty of F'' enters the intervals. (ΔF/2)/sinh(ΔF/2)
 //! is the factor by which the Scharfetter–Gummel flux of a linear F between the centres,
 //! D ΔF/(e^{ΔF} − 1)/Δx², differs from e^{−ΔF/2}. Check: fitted to exact Ornstein–Uhlenbeck
 //! transition counts, the plain lattice gives D e^{F''Δx²/4 − F'²Δx²/24} × (1 + Δx²/(12DΔt)) to
 //! 0.3% at F''Δx² = 0.12–0.49 and every interface within 2σ of the bottom; with g only the
-//! bin-spread factor is left (tests/observe_lattice_bias.rs; simulated deep wells in
-//! tests/observe_deep_well.rs and examples/deep_well_diffusion.rs).
+//! bin-spread factor is left (tests/observe_lattice_bias.rs). Why it is not on by default: on
+//! simulated deep wells (examples/deep_well_diffusion.rs, 8 kT, F''Δx²/4 ≈ 12%) it cuts the well
+//! error from 14–17% to 2–5%, but the remaining bin-spread bias (up to 5% by the lag rule) still
+//! exceeds the ±3% intervals there, the barrier reads about 20% high with or without it, and at a
+//! 2.5 kT barrier it moves one lag's interval off the truth; the default stays the plain lattice
+//! until those are resolved.
 //!
 //! Lag-time independence: the analysis is repeated at several lags; a Markovian diffusion model
 //! gives the same D at every lag, so a spread larger than the intervals is reported with a warning.

@@ -1,4 +1,4 @@
-//! The deep double well of tests/observe_deep_well.rs and examples/deep_well_diffusion.rs:
+//! The deep double well of examples/deep_well_diffusion.rs (the lattice-bias study):
 //! U = E_b((x/a)² − 1)² with a = 1, kT = 1 (well curvature 8E_b, barrier curvature −4E_b),
 //! simulated by Itô Euler–Maruyama and fitted the way `observe --diffusion` does.
 #![allow(dead_code)]

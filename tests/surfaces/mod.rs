@@ -1,4 +1,4 @@
-//! Test surfaces shared by tests/surface_sim.rs and benches/plane.rs (included with `mod` /
+//! Test surfaces shared by tests/surface_sim.rs, tests/surface_theory.rs and benches/plane.rs (included with `mod` /
 //! `#[path]`): a separable double well and a double well along an arc.
 #![allow(dead_code)]
 
@@ -11,6 +11,22 @@ pub struct Separable {
     pub e: f64,
     /// transverse stiffness k
     pub k: f64,
+    /// the box
+    pub domain: Rect,
+}
+
+impl Separable {
+    /// The box [−2, 4] × [−1.5, 1.5]: the line x = 1 is its midline, on the FV cell centres.
+    pub fn new(e: f64, k: f64) -> Self {
+        Self {
+            e,
+            k,
+            domain: Rect {
+                x: (-2.0, 4.0),
+                y: (-1.5, 1.5),
+            },
+        }
+    }
 }
 
 impl Surface for Separable {
@@ -28,11 +44,7 @@ impl Surface for Separable {
         ]
     }
     fn domain(&self) -> Rect {
-        // the line x = 1 is the box's midline, on the FV cell centres
-        Rect {
-            x: (-2.0, 4.0),
-            y: (-1.5, 1.5),
-        }
+        self.domain
     }
 }
 
@@ -43,6 +55,21 @@ impl Surface for Separable {
 pub struct Arc {
     /// barrier E
     pub e: f64,
+    /// the box
+    pub domain: Rect,
+}
+
+impl Arc {
+    /// The box [−2, 2.5]².
+    pub fn new(e: f64) -> Self {
+        Self {
+            e,
+            domain: Rect {
+                x: (-2.0, 2.5),
+                y: (-2.0, 2.5),
+            },
+        }
+    }
 }
 
 pub const KAPPA: f64 = 1.5;
@@ -79,9 +106,6 @@ impl Surface for Arc {
         ]
     }
     fn domain(&self) -> Rect {
-        Rect {
-            x: (-2.0, 2.5),
-            y: (-2.0, 2.5),
-        }
+        self.domain
     }
 }
