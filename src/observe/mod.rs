@@ -21,8 +21,8 @@
 //! With [`Options::friction`] a fourth pass, run first so that a bad velocity column fails at
 //! once, keeps the positions and velocities (a velocity column, or central differences of the
 //! positions) of every trajectory in memory for [`velocity`]'s correlations, with the mean force
-//! U′(x) of the pass-2 free energy along them: 16 bytes per sample with a velocity column (the
-//! positions become U′(x) in place), 24 with central differences.
+//! U′(x) of the pass-2 free energy along them: 24 bytes per sample (positions, velocities,
+//! U′(x)).
 //!
 //! [`windows`] reads restrained (umbrella) windows instead: one file per window, each held in
 //! memory (8 bytes per sample), D at its mean position by [`umbrella::window_diffusion`]; no

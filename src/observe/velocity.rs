@@ -20,29 +20,53 @@
 //! W ≥ c τ_abs(W), τ_abs(W) = 1/2 + Σ_{k≤W} |ρ(k)| in samples, c = [`WINDOW_C`]: Sokal's
 //! automatic window (Madras & Sokal, J. Stat. Phys. 50, 109 (1988)) on |ρ|, so that a VACF with
 //! negative lobes (memory, a cage) is integrated over its whole envelope and not cut where its
-//! running integral is small. A particle held in a well has ∫C_v = 0 (its mean-square
-//! displacement is bounded): then the Green–Kubo route gives no γ and the memory kernel is used.
+//! running integral is small. Green–Kubo is exact for a free particle only: a well's force
+//! removes a share φ (below) of the velocity correlation within the window, and then γ_GK =
+//! γ/(1 − φ) for memoryless friction (integrate the equation below over the window: C(0) =
+//! ∫F + γ∫C, derived here); held in a well, φ → 1 and ∫C_v → 0.
 //!
-//! **Memory kernel** (Berne & Harp, Adv. Chem. Phys. 17, 63 (1970)). The generalised Langevin
-//! equation m v̇ = −m ω² x − m ∫₀^t K(t − s) v(s) ds + R(t) with ⟨R(0)v(0)⟩ = 0 gives
-//! dC_v/dt = −ω² ∫₀^t C_v ds − ∫₀^t K(s) C_v(t − s) ds (ω = 0 for a free particle; the kernel is
-//! a friction rate: the crate's kernel γ(t) = (γ/τ) e^{−|t|/τ} of `system::System`, with
-//! ∫₀^∞ K = γ). Differentiated once it is of the second kind and stable to invert:
+//! **Memory kernel with the observed force** (Berne & Harp, Adv. Chem. Phys. 17, 63 (1970) for
+//! the second-kind inversion; the force correlation ⟨U′(x(t)) v(0)⟩ in place of a harmonic term
+//! as in Kowalik et al., Phys. Rev. E 100, 012126 (2019), from memory). The generalised Langevin
+//! equation m v̇ = −U′(x) − m ∫₀^t K(t − s) v(s) ds + R(t), multiplied by v(0) and averaged with
+//! ⟨R(t)v(0)⟩ = 0, gives
 //!
-//!   K(t) C(0) = −C″(t) − ω² C(t) − ∫₀^t K(s) C′(t − s) ds,
+//!   C′(t) = −F(t) − ∫₀^t K(s) C(t − s) ds,   F(t) = ⟨U′(x(t)) v(0)⟩/m
 //!
-//! solved step by step with the trapezoid rule (C′(0) = 0 drops the unknown from the right)
-//! and central differences C′, C″ of the sampled VACF (C even, so C(−Δt) = C(Δt)). Memoryless
-//! friction inverts to a spike at t = 0 of area ≈ γ and K ≈ −γ³Δt/2 beyond. K(0) alone has a
-//! first-order error: C‴ jumps at 0 (C‴(0±) = ∓K′(0)C(0)), so the second difference there gives
-//! K(0) + K′(0)Δt/3, low by Δt/(3τ) relative for the exponential kernel; later lags are
-//! O(Δt²). The exponential K = (γ/τ) e^{−t/τ} is therefore fitted by weighted least squares
-//! on ln K over the lags from Δt on where K is resolved (K > 3 bootstrap standard errors),
-//! weights K²/σ_K²; γ = A τ from the intercept ln A and slope −1/τ. Memoryless friction leaves
-//! no resolved lag and no fit.
+//! (the kernel is a friction rate: the crate's kernel γ(t) = (γ/τ) e^{−|t|/τ} of
+//! `system::System`, with ∫₀^∞ K = γ; U = 0 for a free particle, U′ = mω²x gives the harmonic
+//! F = ω²∫₀^t C). Differentiated once it is of the second kind and stable to invert:
+//!
+//!   K(t) C(0) = −C″(t) − F′(t) − ∫₀^t K(s) C′(t − s) ds,
+//!
+//! solved step by step with the trapezoid rule (C′(0) = 0 drops the unknown from the right) and
+//! central differences C′, C″, F′ of the sampled correlations (C even, so C(−Δt) = C(Δt); F at
+//! lag −Δt is measured, ⟨U′(x_t) v_{t+1}⟩). U′ is the slope of the weighted cubic smoothing
+//! spline through the observed free energy U = −ln p(x) (`potential::smooth`, weights 1/σ_U²,
+//! α by the unbiased-risk rule for independent bins), continued linearly beyond the end bins.
+//! Its bias: the spline's smoothing, which the risk rule trades against σ_U (it flattens U′
+//! where U‴ is large against the noise), and the bins' average of p, O(h²U‴) for bin width h;
+//! an error δU′ enters K as ⟨δU′(x(t)) v(0)⟩′/(m C(0)), so a relative error ε of U′ moves K by
+//! about εω² against K(0) ≈ γ/τ (2γ/Δt for memoryless friction). The force share
+//! φ = ∫₀^W F dt / C(0) says how much the well takes from the Green–Kubo integral.
+//!
+//! Memoryless friction inverts to a spike at t = 0 of area A = ½K(0)Δt = (1 − e^{−γΔt})/Δt for
+//! an exponential VACF (exactly; BAOAB's O step gives that VACF), and K ≈ −γ³Δt/2 beyond; its
+//! γ = −ln(1 − AΔt)/Δt ([`Kernel::memoryless_gamma`]). K(0) alone has a first-order error with
+//! memory: C‴ jumps at 0 (C‴(0±) = ∓K′(0)C(0)), so the second difference there gives
+//! K(0) + K′(0)Δt/3, low by Δt/(3τ) relative for the exponential kernel; later lags are O(Δt²).
+//! The exponential K = (γ/τ) e^{−t/τ} is therefore fitted by weighted least squares on ln K over
+//! the lags from Δt on where K is resolved (K > 3 bootstrap standard errors), weights K²/σ_K²;
+//! γ = A τ from the intercept ln A and slope −1/τ.
+//!
+//! **Route**: with positions (always, through `observe`), Green–Kubo gives γ while the observed
+//! force's share φ ≤ [`FREE_SHARE`] (a free particle: Green–Kubo is exact and the more precise;
+//! at the switch both routes agree within 2%), else the kernel: its fit where the memory is
+//! resolved, else the memoryless γ of the spike. Both are reported. Without positions the
+//! particle is taken as free, and ∫C/∫|C| < [`CONFINED_RATIO`] only warns.
 //!
 //! **Intervals**: each trajectory is cut into consecutive blocks (≈ [`BLOCKS`] in all); lag
-//! products are summed within blocks, so a resample of whole blocks with replacement (the block
+//! products (v·v and, with positions, v·U′) are summed within blocks, so a resample of whole blocks with replacement (the block
 //! bootstrap, Künsch, Ann. Stat. 17, 1217 (1989)) re-estimates every quantity on the same window;
 //! the standard error is the resamples' standard deviation and the 95% interval their 2.5% and
 //! 97.5% percentiles. Blocks must be long against the window (warned otherwise).
