@@ -114,13 +114,14 @@ pub struct ObserveOpts {
     #[arg(long, value_name = "N", requires = "diffusion")]
     pub d_bins: Option<usize>,
     /// also friction and memory from a velocity column (its number from 1 or its header name;
-    /// velocities in length/time units): γ from the velocity autocorrelation, the memory kernel
-    /// by Volterra inversion with an exponential fit (γ, τ). Holds the velocities in memory,
-    /// 8 bytes per sample
+    /// velocities in length/time units): γ from the velocity autocorrelation (Green–Kubo, for a
+    /// free particle) and the memory kernel by Volterra inversion with the observed mean force
+    /// U′(x) of the free energy (in a well), with an exponential fit (γ, τ). Holds the positions,
+    /// velocities and U′(x) in memory, 24 bytes per sample
     #[arg(long, value_name = "COL", conflicts_with = "friction")]
     pub velocity: Option<String>,
     /// the same analysis on velocities taken from the positions by central differences
-    /// (x[n+1] − x[n−1])/(2Δt), with their bias stated; holds 16 bytes per sample in memory
+    /// (x[n+1] − x[n−1])/(2Δt), with their bias stated; holds 24 bytes per sample in memory
     #[arg(long)]
     pub friction: bool,
     /// the particle's mass, in the scenario's mass unit, for --velocity/--friction (default: the

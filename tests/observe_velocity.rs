@@ -5,7 +5,10 @@
 //! discretisation bias" (the crate's rule for stochastic tests), and each also checks that the
 //! standard error is small enough for the check to mean something.
 
-use escapade::observe::velocity::{self, Estimate, Friction, Options, Origin, Route, fd_factor};
+use escapade::observe::velocity::{
+    self, Estimate, Friction, MeanForce, Options, Origin, Route, fd_factor,
+};
+use escapade::observe::{self, Interval, Source};
 use escapade::seed;
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -275,44 +278,192 @@ fn finite_difference_coarse() {
     );
 }
 
+/// The observed mean force of positions `xs`: the free energy of `observe::analyse` (pass 2,
+/// U = −ln p with its block-bootstrap σ_U), smoothed by `MeanForce`. The cores lie where no
+/// sample goes (the kinetics are not needed here).
+fn observed_force(xs: &[f64], dt: f64) -> MeanForce {
+    let far = [
+        Interval {
+            lo: -1000.0,
+            hi: -900.0,
+        },
+        Interval {
+            lo: 900.0,
+            hi: 1000.0,
+        },
+    ];
+    let o = observe::Options {
+        cores: Some(far),
+        ..observe::Options::default()
+    };
+    let src = Source::Samples {
+        name: "test".into(),
+        values: xs.to_vec(),
+        dt,
+    };
+    let r = observe::analyse(&[src], &o).unwrap();
+    MeanForce::from_free_energy(&r.free_energy).expect("a profile")
+}
+
 /// A particle in a harmonic well, ω² = 1, memoryless friction γ = 0.5: (x, v) is a stationary
 /// linear process with Σ_eq = diag(kT/(mω²), kT/m), updated exactly as above. ∫C_v = 0, so
-/// Green–Kubo gives no γ; the kernel inversion with the force term gives the spike of area
-/// γ(1 − γΔt/2).
+/// Green–Kubo gives no γ; the kernel inversion with the observed mean force gives the spike of
+/// area (1 − e^{−γΔt})/Δt, turned into the memoryless γ.
 #[test]
 fn harmonic_well_falls_back_to_the_kernel() {
     let (m, w2, g, dt) = (1.0, 1.0, 0.5, 0.01);
     let a = [[0.0, 1.0], [-w2, -g]];
     let ex = Exact::new(a, [1.0 / (m * w2), 1.0 / m], dt);
-    let (_, vs) = ex.run(1_000_000, &mut seed::stream(41, 0));
+    let (xs, vs) = ex.run(1_000_000, &mut seed::stream(41, 0));
     let o = Options {
-        omega2: Some(w2),
+        force: Some(observed_force(&xs, dt)),
         ..opts(5)
     };
-    let f = velocity::from_velocities(&[&vs], dt, &o).unwrap();
-    assert!(f.confined, "ratio {}", f.integral_ratio);
-    assert!(f.warnings.iter().any(|w| w.contains("confined")));
+    let f = velocity::from_velocities_and_positions(&[&vs], &[&xs], dt, &o).unwrap();
+    let phi = f.force.as_ref().expect("a force term").share;
+    assert!(f.confined, "φ {phi:?}");
+    // held in the well: the force takes the whole velocity correlation (φ → 1 as W → ∞; the
+    // window W ≈ 8 τ_abs leaves a few per cent), 4 se
+    assert!((phi.value - 1.0).abs() < 0.05 + 4.0 * phi.se, "{phi:?}");
+    assert!(f.warnings.iter().any(|w| w.contains("mean force takes")));
     assert_eq!(f.gamma_route, Route::KernelArea);
-    // bias γΔt/2 = 0.25% of the spike area (module doc), allowed as 1%; se below 15%
+    // the memoryless γ of the spike is exact for an exponential VACF; the well bends C at
+    // O(ω²Δt²) = 1e-4 and the spline's U′ is off by its smoothing bias (a few 0.1% on a
+    // parabola over 10⁴ relaxation times): 1% allowed; se below 15%
     near("γ", &f.gamma, g, 0.01 * g, 0.15);
+    // the written scenario takes it (a force term, se ≤ 20%)
+    assert_eq!(f.for_scenario().friction, Some(f.gamma.value));
 }
 
-/// The same well sampled in position: confinement is found, and ω² = ⟨v̂²⟩/var(x) (equipartition
-/// in a harmonic well) is estimated for the kernel's force term.
+/// The same well sampled in position: confinement is found from the observed force, and the
+/// kernel's γ carries the central difference's bias f(2γΔt) − 1 = −0.3% (module doc), inside 1%.
 #[test]
-fn harmonic_well_from_positions_estimates_omega2() {
+fn harmonic_well_from_positions() {
     let (w2, g, dt) = (1.0, 0.5, 0.01);
     let ex = Exact::new([[0.0, 1.0], [-w2, -g]], [1.0 / w2, 1.0], dt);
     let (xs, _) = ex.run(1_000_000, &mut seed::stream(42, 0));
-    let f = velocity::from_positions(&[&xs], dt, &opts(6)).unwrap();
-    assert!(f.confined, "ratio {}", f.integral_ratio);
-    // var(x) over T = 10⁴ with a position correlation time ~2γ/ω² + 1/γ ≈ 3 (harmonic
-    // oscillator, common practice, no source) has a relative se of about sqrt(2·3/10⁴) ≈ 2.5%;
-    // 4 of them plus the 0.3% finite-difference bias of ⟨v̂²⟩ make 11%
-    assert!(
-        (f.kernel.omega2 - w2).abs() < 0.11 * w2,
-        "{}",
-        f.kernel.omega2
+    let o = Options {
+        force: Some(observed_force(&xs, dt)),
+        ..opts(6)
+    };
+    let f = velocity::from_positions(&[&xs], dt, &o).unwrap();
+    assert!(f.confined && f.kernel.force_term, "{:?}", f.force);
+    assert_ne!(f.gamma_route, Route::GreenKubo);
+    near("γ", &f.gamma, g, 0.01 * g, 0.15);
+}
+
+/// Underdamped particle in U = E_b (x² − 1)² (kT = 1, m = 1; ω₀² = U″(±1) = 8E_b) by BAOAB
+/// (Leimkuhler & Matthews, Appl. Math. Res. Express 2013, 34), step `h`, every step sampled;
+/// with `memory` = Some(τ) the friction is the exponential kernel K = (γ/τ) e^{−t/τ}, its
+/// Markovian embedding (v, z) (as for `gle` above) advanced by its exact Ornstein–Uhlenbeck step
+/// in place of BAOAB's O step.
+fn double_well(
+    eb: f64,
+    g: f64,
+    memory: Option<f64>,
+    h: f64,
+    n: usize,
+    s: u64,
+) -> (Vec<f64>, Vec<f64>) {
+    let force = |x: f64| -4.0 * eb * x * (x * x - 1.0);
+    let c = (-g * h).exp();
+    let sc = (1.0 - c * c).sqrt();
+    let ou = memory.map(|tau| Exact::new([[0.0, 1.0], [-g / tau, -1.0 / tau]], [1.0, g / tau], h));
+    let mut rng = seed::stream(s, 0);
+    let mut gauss = move || rng.sample::<f64, _>(StandardNormal);
+    let (mut x, mut v) = (-1.0, gauss());
+    let mut z = memory.map_or(0.0, |tau| (g / tau).sqrt() * gauss());
+    let mut f = force(x);
+    let (mut xs, mut vs) = (Vec::with_capacity(n), Vec::with_capacity(n));
+    for _ in 0..n {
+        v += 0.5 * h * f;
+        x += 0.5 * h * v;
+        match &ou {
+            None => v = c * v + sc * gauss(),
+            Some(e) => {
+                let (r0, r1) = (gauss(), gauss());
+                (v, z) = (
+                    e.e[0][0] * v + e.e[0][1] * z + e.l[0][0] * r0,
+                    e.e[1][0] * v + e.e[1][1] * z + e.l[1][0] * r0 + e.l[1][1] * r1,
+                );
+            }
+        }
+        x += 0.5 * h * v;
+        f = force(x);
+        v += 0.5 * h * f;
+        xs.push(x);
+        vs.push(v);
+    }
+    (xs, vs)
+}
+
+/// A double well (E_b = 3 kT, ω₀² = 24) with memoryless friction γ: given velocities and their
+/// positions. Before the observed force entered the inversion, γ = 2 took the Green–Kubo route
+/// (∫C/∫|C| ≈ 0.09) and came out near 27.
+fn double_well_case(g: f64, h: f64, n: usize, s: u64) -> Friction {
+    let (xs, vs) = double_well(3.0, g, None, h, n, s);
+    let o = Options {
+        force: Some(observed_force(&xs, h)),
+        ..opts(s)
+    };
+    let f = velocity::from_velocities_and_positions(&[&vs], &[&xs], h, &o).unwrap();
+    assert!(f.confined, "{:?}", f.force);
+    assert_eq!(f.gamma_route, Route::KernelArea, "{:?}", f.kernel.fit);
+    eprintln!(
+        "γ = {g}: {:?} (Green–Kubo {:?}, φ {:?}, ∫C/∫|C| {})",
+        f.gamma,
+        f.gamma_green_kubo,
+        f.force.as_ref().map(|t| t.share),
+        f.integral_ratio
     );
-    assert!(f.warnings.iter().any(|w| w.contains("ω² = ⟨v²⟩/var(x)")));
+    // BAOAB's O step makes the free VACF e^{−γt} exactly, so the memoryless γ of the spike is
+    // γ up to the O(h²) splitting error in the well (ω₀²h² ≤ 0.1%) and the spline's smoothing
+    // bias of U′; 2% allowed for both, 4 se beside it; se below 10%
+    near("γ", &f.gamma, g, 0.02 * g, 0.1);
+    assert!(
+        f.gamma.ci95[0] < g * 1.02 && g * 0.98 < f.gamma.ci95[1],
+        "{:?}",
+        f.gamma
+    );
+    assert_eq!(f.for_scenario().friction, Some(f.gamma.value));
+    f
+}
+
+#[test]
+fn double_well_weak_friction() {
+    let f = double_well_case(2.0, 0.005, 2_000_000, 51);
+    // Green–Kubo is far off here (the case that failed before): reported, not used
+    assert!(f.gamma_green_kubo.value > 4.0, "{:?}", f.gamma_green_kubo);
+}
+
+#[test]
+fn double_well_strong_friction() {
+    double_well_case(20.0, 0.005, 2_000_000, 52);
+}
+
+/// A double well (E_b = 3 kT) with the exponential memory kernel (γ = 5, τ = 0.1): the kernel
+/// inversion with the observed force resolves the memory; its fit gives γ and τ.
+#[test]
+fn double_well_with_memory() {
+    let (g, tau, h) = (5.0, 0.1, 0.005);
+    let (xs, vs) = double_well(3.0, g, Some(tau), h, 2_000_000, 53);
+    let o = Options {
+        force: Some(observed_force(&xs, h)),
+        ..opts(53)
+    };
+    let f = velocity::from_velocities_and_positions(&[&vs], &[&xs], h, &o).unwrap();
+    let fit = f.kernel.fit.as_ref().expect("memory resolved");
+    eprintln!(
+        "memory: γ {:?} τ {:?} points {} (Green–Kubo {:?}, φ {:?})",
+        fit.gamma,
+        fit.memory_time,
+        fit.points,
+        f.gamma_green_kubo,
+        f.force.as_ref().map(|t| t.share)
+    );
+    assert_eq!(f.gamma_route, Route::KernelFit);
+    // discretisation of the inversion O(h²/τ²) = 0.25% (unit test `exponential_kernel_inverts`)
+    // plus the spline's U′ bias: 2% allowed; se below 15% (the kernel's tail is noisy)
+    near("kernel γ", &fit.gamma, g, 0.02 * g, 0.15);
+    near("kernel τ", &fit.memory_time, tau, 0.02 * tau, 0.15);
 }

@@ -19,9 +19,10 @@
 //!    lags on bins placed from the histogram ([`counts`]), from which D(x) is fitted.
 //!
 //! With [`Options::friction`] a fourth pass, run first so that a bad velocity column fails at
-//! once, keeps the velocities (a velocity column, or the positions for central differences) of
-//! every trajectory in memory, 8 bytes per sample (16 for central differences, which copy the
-//! positions into velocities), for [`velocity`]'s correlations.
+//! once, keeps the positions and velocities (a velocity column, or central differences of the
+//! positions) of every trajectory in memory for [`velocity`]'s correlations, with the mean force
+//! U′(x) of the pass-2 free energy along them: 24 bytes per sample (positions, velocities,
+//! U′(x)).
 //!
 //! [`windows`] reads restrained (umbrella) windows instead: one file per window, each held in
 //! memory (8 bytes per sample), D at its mean position by [`umbrella::window_diffusion`]; no
@@ -340,7 +341,7 @@ pub fn analyse(sources: &[Source], opts: &Options) -> Result<ObservedReport, Obs
     let position = moments.summary();
     let friction = match (kept, &opts.friction) {
         (Some((series, dt)), Some(f)) => {
-            let r = friction(&series, dt, f, position.sd * position.sd, opts)?;
+            let r = friction(series, dt, f, &free_energy, opts)?;
             warnings.extend(r.warnings.iter().cloned());
             Some(r)
         }
@@ -394,28 +395,38 @@ fn friction_option(f: &FrictionOptions) -> &'static str {
     }
 }
 
-/// Every trajectory's velocities (or positions, for central differences) in memory, with the
-/// common sampling interval.
+/// The kept series of the friction analysis: positions, and the velocities of a column.
+struct Kept {
+    positions: Vec<Vec<f64>>,
+    velocities: Option<Vec<Vec<f64>>>,
+}
+
+/// Every trajectory's positions (and velocities, from a column) in memory, with the common
+/// sampling interval.
 fn keep_velocities(
     sources: &[Source],
     opts: &Options,
     f: &FrictionOptions,
-) -> Result<(Vec<Vec<f64>>, f64), ObserveError> {
-    let pick = match &f.velocities {
-        VelocitySource::Column(c) => Pick::Velocity(c.clone()),
-        VelocitySource::CentralDifference => Pick::Position,
+) -> Result<(Kept, f64), ObserveError> {
+    let collect = |pick: Pick| -> Result<read::Collect, ObserveError> {
+        let mut keep = read::Collect::default();
+        for s in sources {
+            read::stream_column(
+                s,
+                &opts.columns,
+                opts.dt,
+                opts.chunk.max(1),
+                pick.clone(),
+                &mut keep,
+            )?;
+        }
+        Ok(keep)
     };
-    let mut keep = read::Collect::default();
-    for s in sources {
-        read::stream_column(
-            s,
-            &opts.columns,
-            opts.dt,
-            opts.chunk.max(1),
-            pick.clone(),
-            &mut keep,
-        )?;
-    }
+    let velocities = match &f.velocities {
+        VelocitySource::Column(c) => Some(collect(Pick::Velocity(c.clone()))?),
+        VelocitySource::CentralDifference => None,
+    };
+    let keep = collect(Pick::Position)?;
     let dt = keep.series[0].1;
     if let Some((i, (_, other))) = keep
         .series
@@ -431,29 +442,37 @@ fn keep_velocities(
             ),
         });
     }
-    Ok((keep.series.into_iter().map(|(v, _)| v).collect(), dt))
+    let series = |c: read::Collect| c.series.into_iter().map(|(v, _)| v).collect();
+    Ok((
+        Kept {
+            velocities: velocities.map(series),
+            positions: series(keep),
+        },
+        dt,
+    ))
 }
 
-/// The friction analysis of the kept series; `var_x` is the positions' variance (for ω² of a
-/// confined particle with given velocities).
+/// The friction analysis of the kept series, with the mean force of the free energy `fe`.
 fn friction(
-    series: &[Vec<f64>],
+    kept: Kept,
     dt: f64,
     f: &FrictionOptions,
-    var_x: f64,
+    fe: &FreeEnergy,
     opts: &Options,
 ) -> Result<velocity::Friction, ObserveError> {
-    let refs: Vec<&[f64]> = series.iter().map(Vec::as_slice).collect();
     let vo = velocity::Options {
         mass: f.mass,
-        omega2: None,
-        position_variance: Some(var_x),
+        force: velocity::MeanForce::from_free_energy(fe),
         seed: opts.seed,
         resamples: opts.resamples,
     };
-    let r = match f.velocities {
-        VelocitySource::Column(_) => velocity::from_velocities(&refs, dt, &vo),
-        VelocitySource::CentralDifference => velocity::from_positions(&refs, dt, &vo),
+    let xs: Vec<&[f64]> = kept.positions.iter().map(Vec::as_slice).collect();
+    let r = match &kept.velocities {
+        Some(vs) => {
+            let vs: Vec<&[f64]> = vs.iter().map(Vec::as_slice).collect();
+            velocity::from_velocities_and_positions(&vs, &xs, dt, &vo)
+        }
+        None => velocity::from_positions(&xs, dt, &vo),
     };
     r.map_err(|e| ObserveError::Option {
         option: friction_option(f),

@@ -20,34 +20,60 @@
 //! W ≥ c τ_abs(W), τ_abs(W) = 1/2 + Σ_{k≤W} |ρ(k)| in samples, c = [`WINDOW_C`]: Sokal's
 //! automatic window (Madras & Sokal, J. Stat. Phys. 50, 109 (1988)) on |ρ|, so that a VACF with
 //! negative lobes (memory, a cage) is integrated over its whole envelope and not cut where its
-//! running integral is small. A particle held in a well has ∫C_v = 0 (its mean-square
-//! displacement is bounded): then the Green–Kubo route gives no γ and the memory kernel is used.
+//! running integral is small. Green–Kubo is exact for a free particle only: a well's force
+//! removes a share φ (below) of the velocity correlation within the window, and then γ_GK =
+//! γ/(1 − φ) for memoryless friction (integrate the equation below over the window: C(0) =
+//! ∫F + γ∫C, derived here); held in a well, φ → 1 and ∫C_v → 0.
 //!
-//! **Memory kernel** (Berne & Harp, Adv. Chem. Phys. 17, 63 (1970)). The generalised Langevin
-//! equation m v̇ = −m ω² x − m ∫₀^t K(t − s) v(s) ds + R(t) with ⟨R(0)v(0)⟩ = 0 gives
-//! dC_v/dt = −ω² ∫₀^t C_v ds − ∫₀^t K(s) C_v(t − s) ds (ω = 0 for a free particle; the kernel is
-//! a friction rate: the crate's kernel γ(t) = (γ/τ) e^{−|t|/τ} of `system::System`, with
-//! ∫₀^∞ K = γ). Differentiated once it is of the second kind and stable to invert:
+//! **Memory kernel with the observed force** (Berne & Harp, Adv. Chem. Phys. 17, 63 (1970) for
+//! the second-kind inversion; the force correlation ⟨U′(x(t)) v(0)⟩ in place of a harmonic term
+//! as in Kowalik et al., Phys. Rev. E 100, 012126 (2019), from memory). The generalised Langevin
+//! equation m v̇ = −U′(x) − m ∫₀^t K(t − s) v(s) ds + R(t), multiplied by v(0) and averaged with
+//! ⟨R(t)v(0)⟩ = 0, gives
 //!
-//!   K(t) C(0) = −C″(t) − ω² C(t) − ∫₀^t K(s) C′(t − s) ds,
+//!   C′(t) = −F(t) − ∫₀^t K(s) C(t − s) ds,   F(t) = ⟨U′(x(t)) v(0)⟩/m
 //!
-//! solved step by step with the trapezoid rule (C′(0) = 0 drops the unknown from the right)
-//! and central differences C′, C″ of the sampled VACF (C even, so C(−Δt) = C(Δt)). Memoryless
-//! friction inverts to a spike at t = 0 of area ≈ γ and K ≈ −γ³Δt/2 beyond. K(0) alone has a
-//! first-order error: C‴ jumps at 0 (C‴(0±) = ∓K′(0)C(0)), so the second difference there gives
-//! K(0) + K′(0)Δt/3, low by Δt/(3τ) relative for the exponential kernel; later lags are
-//! O(Δt²). The exponential K = (γ/τ) e^{−t/τ} is therefore fitted by weighted least squares
-//! on ln K over the lags from Δt on where K is resolved (K > 3 bootstrap standard errors),
-//! weights K²/σ_K²; γ = A τ from the intercept ln A and slope −1/τ. Memoryless friction leaves
-//! no resolved lag and no fit.
+//! (the kernel is a friction rate: the crate's kernel γ(t) = (γ/τ) e^{−|t|/τ} of
+//! `system::System`, with ∫₀^∞ K = γ; U = 0 for a free particle, U′ = mω²x gives the harmonic
+//! F = ω²∫₀^t C). Differentiated once it is of the second kind and stable to invert:
+//!
+//!   K(t) C(0) = −C″(t) − F′(t) − ∫₀^t K(s) C′(t − s) ds,
+//!
+//! solved step by step with the trapezoid rule (C′(0) = 0 drops the unknown from the right) and
+//! central differences C′, C″, F′ of the sampled correlations (C even, so C(−Δt) = C(Δt); F at
+//! lag −Δt is measured, ⟨U′(x_t) v_{t+1}⟩). U′ is the slope of the weighted cubic smoothing
+//! spline through the observed free energy U = −ln p(x) (`potential::smooth`, weights 1/σ_U²,
+//! α by the unbiased-risk rule for independent bins), continued linearly beyond the end bins.
+//! Its bias: the spline's smoothing, which the risk rule trades against σ_U (it flattens U′
+//! where U‴ is large against the noise), and the bins' average of p, O(h²U‴) for bin width h;
+//! an error δU′ enters K as ⟨δU′(x(t)) v(0)⟩′/(m C(0)), so a relative error ε of U′ moves K by
+//! about εω² against K(0) ≈ γ/τ (2γ/Δt for memoryless friction). The force share
+//! φ = ∫₀^W F dt / C(0) says how much the well takes from the Green–Kubo integral.
+//!
+//! Memoryless friction inverts to a spike at t = 0 of area A = ½K(0)Δt = (1 − e^{−γΔt})/Δt for
+//! an exponential VACF (exactly; BAOAB's O step gives that VACF), and K ≈ −γ³Δt/2 beyond; its
+//! γ = −ln(1 − AΔt)/Δt ([`Kernel::memoryless_gamma`]). K(0) alone has a first-order error with
+//! memory: C‴ jumps at 0 (C‴(0±) = ∓K′(0)C(0)), so the second difference there gives
+//! K(0) + K′(0)Δt/3, low by Δt/(3τ) relative for the exponential kernel; later lags are O(Δt²).
+//! The exponential K = (γ/τ) e^{−t/τ} is therefore fitted by weighted least squares on ln K over
+//! the lags from Δt on where K is resolved (K > 3 bootstrap standard errors), weights K²/σ_K²;
+//! γ = A τ from the intercept ln A and slope −1/τ.
+//!
+//! **Route**: with positions (always, through `observe`), Green–Kubo gives γ while the observed
+//! force's share φ ≤ [`FREE_SHARE`] (a free particle: Green–Kubo is exact and the more precise;
+//! at the switch both routes agree within 2%), else the kernel: its fit where the memory is
+//! resolved, else the memoryless γ of the spike. Both are reported. Without positions the
+//! particle is taken as free, and ∫C/∫|C| < [`CONFINED_RATIO`] only warns.
 //!
 //! **Intervals**: each trajectory is cut into consecutive blocks (≈ [`BLOCKS`] in all); lag
-//! products are summed within blocks, so a resample of whole blocks with replacement (the block
+//! products (v·v and, with positions, v·U′) are summed within blocks, so a resample of whole blocks with replacement (the block
 //! bootstrap, Künsch, Ann. Stat. 17, 1217 (1989)) re-estimates every quantity on the same window;
 //! the standard error is the resamples' standard deviation and the 95% interval their 2.5% and
 //! 97.5% percentiles. Blocks must be long against the window (warned otherwise).
 
 use super::DEFAULT_RESAMPLES;
+use super::free_energy::FreeEnergy;
+use crate::potential::smooth;
 use crate::{fit, seed};
 use rand::RngExt;
 use serde::Serialize;
@@ -67,8 +93,13 @@ pub const MIN_BLOCK: usize = 100;
 /// A blocks shorter than this many windows draws a warning (the bootstrap then misses the
 /// correlation across block ends).
 pub const BLOCK_WINDOWS: f64 = 10.0;
-/// ∫C / ∫|C| below this (or a D interval reaching 0) marks a confined particle.
+/// Without positions: ∫C / ∫|C| below this (or a D interval reaching 0) marks a confined
+/// particle.
 pub const CONFINED_RATIO: f64 = 0.05;
+/// With the observed mean force: Green–Kubo is used while the force share φ is at most this
+/// (Green–Kubo's γ is then high by φ/(1 − φ) ≤ 2%, below the usual standard error, and both
+/// routes agree where the choice switches).
+pub const FREE_SHARE: f64 = 0.02;
 /// A kernel point counts as resolved above this many standard errors.
 pub const RESOLVED_SE: f64 = 3.0;
 /// Finite-difference velocities with γΔt above this draw a warning: f(2γΔt) − 1 ≈ −6.5% there.
@@ -108,6 +139,12 @@ pub enum VelocityError {
     /// The velocity is always zero.
     #[error("the velocities are all zero")]
     NoVariance,
+    /// Positions and velocities of different lengths.
+    #[error("trajectory {trajectory}: as many positions as velocities are needed")]
+    Lengths {
+        /// trajectory (from 0)
+        trajectory: usize,
+    },
 }
 
 /// Where the velocities came from.
@@ -137,12 +174,9 @@ pub enum Route {
 pub struct Options {
     /// the mass (default: from equipartition, kT/⟨v²⟩)
     pub mass: Option<f64>,
-    /// ω² = U″/m of a harmonic well (1/time²), for the force term of the kernel inversion
-    /// (default: free particle; with positions, ⟨v²⟩/var(x) when the particle is confined)
-    pub omega2: Option<f64>,
-    /// var(x) of the positions beside given velocities: ω² = ⟨v²⟩/var(x) for a confined particle
-    /// when `omega2` is not given (with positions it is computed from them)
-    pub position_variance: Option<f64>,
+    /// the mean force U′(x) of the observed free energy, for the force term of the kernel
+    /// inversion (used with positions; without it the particle is taken as free)
+    pub force: Option<MeanForce>,
     /// seed of the bootstrap
     pub seed: u64,
     /// bootstrap resamples
@@ -153,8 +187,7 @@ impl Default for Options {
     fn default() -> Self {
         Self {
             mass: None,
-            omega2: None,
-            position_variance: None,
+            force: None,
             seed: 1,
             resamples: DEFAULT_RESAMPLES,
         }
@@ -203,13 +236,28 @@ pub struct KernelFit {
 pub struct Kernel {
     /// (t, K(t), bootstrap standard error) at the sampled lags
     pub points: Vec<[f64; 3]>,
-    /// ω² of the force term used (0: free particle)
-    pub omega2: f64,
+    /// whether the observed mean force entered the inversion (false: a free particle)
+    pub force_term: bool,
     /// the exponential fit, when at least three lags are resolved
     pub fit: Option<KernelFit>,
     /// ∫K over the resolved lags, ½K(0)Δt + Σ_{n≥1} K(nΔt)Δt (for memoryless friction the
     /// spike's area, (1 − e^{−γΔt})/Δt)
     pub resolved_area: Estimate,
+    /// the memoryless friction of that area, −ln(1 − AΔt)/Δt (the spike of an exponential VACF
+    /// sampled every Δt has A = (1 − e^{−γΔt})/Δt); NaN when AΔt ≥ 1
+    pub memoryless_gamma: Estimate,
+    /// the method, in words
+    pub rule: String,
+}
+
+/// The observed mean force in the kernel inversion.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ForceTerm {
+    /// φ = ∫₀^W ⟨U′(x(t)) v(0)⟩ dt / (m⟨v²⟩): the share of the velocity correlation the force
+    /// removes within the Green–Kubo window (0 free, 1 held in a well)
+    pub share: Estimate,
+    /// effective degrees of freedom of the smoothing spline of U
+    pub spline_edf: f64,
     /// the method, in words
     pub rule: String,
 }
@@ -239,12 +287,20 @@ pub struct Friction {
     pub integral_ratio: f64,
     /// Green–Kubo D = ∫C_v dt
     pub diffusion: Estimate,
-    /// whether the VACF integral vanishes (a particle in a well)
+    /// whether the particle is held by its mean force (φ above [`FREE_SHARE`]; without
+    /// positions, a vanishing VACF integral)
     pub confined: bool,
+    /// the mean force's part (null without positions)
+    pub force: Option<ForceTerm>,
     /// the friction γ (1/time), by `gamma_route`
     pub gamma: Estimate,
     /// how γ was obtained
     pub gamma_route: Route,
+    /// Green–Kubo's γ = kT/(m D) (high by 1/(1 − φ) in a well)
+    pub gamma_green_kubo: Estimate,
+    /// the kernel's γ (its fit, else the memoryless γ of its spike), with a force term or when
+    /// confined
+    pub gamma_kernel: Option<Estimate>,
     /// the memory kernel
     pub kernel: Kernel,
     /// relative bias of ⟨v²⟩ and γ from the central difference under memoryless friction,
@@ -262,12 +318,15 @@ pub struct Friction {
     pub warnings: Vec<String>,
 }
 
-/// A Green–Kubo γ is passed on to a scenario only when ∫C/∫|C| over the window is at least
-/// this: in a well of curvature ω² the VACF carries a negative tail of area ≈ D·ω²W/γ inside the
-/// window W ≈ 8/γ, so the integral is low by ≈ 8ω²/γ² and the ratio is ≈ (1 − x)/(1 + x) with
-/// x = 8ω²/γ² (derived here for the overdamped harmonic VACF); 0.8 keeps x, the bias of γ, near
-/// 10%.
+/// Without positions, a Green–Kubo γ is passed on to a scenario only when ∫C/∫|C| over the
+/// window is at least this: in a well of curvature ω² the VACF carries a negative tail of area
+/// ≈ D·ω²W/γ inside the window W ≈ 8/γ, so the integral is low by ≈ 8ω²/γ² and the ratio is
+/// ≈ (1 − x)/(1 + x) with x = 8ω²/γ² (derived here for the overdamped harmonic VACF); 0.8 keeps
+/// x, the bias of γ, near 10%.
 pub const SCENARIO_RATIO: f64 = 0.8;
+/// A kernel γ is passed on only when its standard error is at most this share of it (γ known to
+/// about ±40% at 95%).
+pub const SCENARIO_GAMMA_REL_SE: f64 = 0.2;
 /// τ is passed on only when its standard error is at most this share of it (τ known to about a
 /// factor 2 at 95%; a rougher τ would steer the memory formulas by noise).
 pub const SCENARIO_TAU_REL_SE: f64 = 1.0 / 3.0;
@@ -284,30 +343,38 @@ pub struct ScenarioFriction {
 }
 
 impl Friction {
-    /// The rule: γ only from the Green–Kubo route with ∫C/∫|C| ≥ [`SCENARIO_RATIO`] and a 95%
-    /// interval above zero (a confined particle's kernel routes use a harmonic ω² and are
-    /// reported, not passed on); τ only when that γ is, the exponential kernel fit is resolved,
-    /// fails on at most a tenth of the resamples, its interval lies above zero and its standard
-    /// error is at most [`SCENARIO_TAU_REL_SE`] of it.
+    /// The rule: γ needs a 95% interval above zero and, by its route: Green–Kubo, with the
+    /// observed force its share φ ≤ [`FREE_SHARE`] (the route's own condition), without positions
+    /// ∫C/∫|C| ≥ [`SCENARIO_RATIO`]; the kernel routes, the observed force in the inversion and a
+    /// standard error at most [`SCENARIO_GAMMA_REL_SE`] of γ. τ only when that γ is, the
+    /// exponential kernel fit is resolved, fails on at most a tenth of the resamples, its interval
+    /// lies above zero and its standard error is at most [`SCENARIO_TAU_REL_SE`] of it.
     pub fn for_scenario(&self) -> ScenarioFriction {
         let mut left_out = Vec::new();
         let g = &self.gamma;
-        let friction = if self.gamma_route != Route::GreenKubo {
-            left_out.push(format!(
-                "the VACF integral vanishes (∫C/∫|C| = {:.3}): the particle turns in its well before its velocity relaxes, and the velocities do not fix γ here",
-                self.integral_ratio
-            ));
-            None
-        } else if self.integral_ratio < SCENARIO_RATIO {
-            left_out.push(format!(
-                "∫C/∫|C| = {:.3} is below {SCENARIO_RATIO}: the well's pull cuts the Green–Kubo integral, so γ = {:.4e} is too high by an unknown factor",
-                self.integral_ratio, g.value
-            ));
-            None
-        } else if !(g.value > 0.0 && g.ci95[0] > 0.0) {
+        let kernel = self.gamma_route != Route::GreenKubo;
+        let friction = if !(g.value > 0.0 && g.ci95[0] > 0.0) {
             left_out.push(format!(
                 "the friction's 95% interval [{:e}, {:e}] reaches zero",
                 g.ci95[0], g.ci95[1]
+            ));
+            None
+        } else if kernel && !self.kernel.force_term {
+            left_out.push(format!(
+                "the VACF integral vanishes (∫C/∫|C| = {:.3}) and no positions gave the well's force: the kernel's γ is not the friction",
+                self.integral_ratio
+            ));
+            None
+        } else if kernel && g.se > SCENARIO_GAMMA_REL_SE * g.value {
+            left_out.push(format!(
+                "the kernel's γ = {:.4e} ± {:.4e} is not well determined (se above {SCENARIO_GAMMA_REL_SE} of it)",
+                g.value, g.se
+            ));
+            None
+        } else if !kernel && self.force.is_none() && self.integral_ratio < SCENARIO_RATIO {
+            left_out.push(format!(
+                "∫C/∫|C| = {:.3} is below {SCENARIO_RATIO} and no positions gave the well's force: the well's pull may cut the Green–Kubo integral, so γ = {:.4e} may be too high",
+                self.integral_ratio, g.value
             ));
             None
         } else {
@@ -335,6 +402,78 @@ impl Friction {
             memory_time,
             left_out,
         }
+    }
+}
+
+/// The mean force of the observed free energy: U′(x) of the weighted smoothing spline through
+/// the histogram's U(x) = −ln p(x), weights 1/σ_U² (module comment: "Force term").
+#[derive(Debug, Clone, PartialEq)]
+pub struct MeanForce {
+    /// knots (bin centres with a σ_U)
+    x: Vec<f64>,
+    /// fitted U at the knots (kT)
+    u: Vec<f64>,
+    /// second derivatives at the knots (natural ends)
+    m2: Vec<f64>,
+    /// effective degrees of freedom of the fit
+    edf: f64,
+}
+
+impl MeanForce {
+    /// The spline through rows (x, U, σ_U), x increasing; rows with a σ that is not positive
+    /// and finite are left out. None with fewer than 4 rows left.
+    pub fn from_rows(x: &[f64], u: &[f64], sigma: &[f64]) -> Option<Self> {
+        let keep: Vec<usize> = (0..x.len())
+            .filter(|&i| sigma[i].is_finite() && sigma[i] > 0.0 && u[i].is_finite())
+            .collect();
+        if keep.len() < 4 {
+            return None;
+        }
+        let pick = |v: &[f64]| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
+        let (x, u, sigma) = (pick(x), pick(u), pick(sigma));
+        let fit = smooth::fit(
+            &x,
+            &u,
+            &sigma,
+            smooth::Rule::Risk {
+                correlation_length: 0.0,
+            },
+        );
+        Some(Self {
+            x,
+            u: fit.values,
+            m2: fit.curvatures,
+            edf: fit.edf,
+        })
+    }
+
+    /// From the observed free energy (the bins with a σ_U, as the written profile).
+    pub fn from_free_energy(fe: &FreeEnergy) -> Option<Self> {
+        let rows: Vec<(f64, f64, f64)> = fe
+            .bins
+            .iter()
+            .filter_map(|b| b.sigma_u.map(|s| (b.x, b.u, s)))
+            .collect();
+        let col = |f: fn(&(f64, f64, f64)) -> f64| rows.iter().map(f).collect::<Vec<f64>>();
+        Self::from_rows(&col(|r| r.0), &col(|r| r.1), &col(|r| r.2))
+    }
+
+    /// U′(x) in kT per length: the spline's slope, continued linearly beyond the end knots
+    /// (natural ends: U″ = 0 there).
+    pub fn derivative(&self, x: f64) -> f64 {
+        let n = self.x.len();
+        let i = self.x.partition_point(|&k| k <= x).clamp(1, n - 1) - 1;
+        let (x0, x1) = (self.x[i], self.x[i + 1]);
+        let h = x1 - x0;
+        let (m0, m1) = (self.m2[i], self.m2[i + 1]);
+        let slope = (self.u[i + 1] - self.u[i]) / h - (m1 - m0) * h / 6.0;
+        let (a, b) = ((x1 - x).clamp(0.0, h), (x - x0).clamp(0.0, h));
+        slope - m0 * a * a / (2.0 * h) + m1 * b * b / (2.0 * h)
+    }
+
+    /// The effective degrees of freedom of the spline (2: a straight line).
+    pub fn edf(&self) -> f64 {
+        self.edf
     }
 }
 
@@ -369,27 +508,47 @@ fn dot(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// Lag-product sums per block: `sums[b][k]` = Σ v_t v_{t+k} within block b, `pairs[b][k]` their
-/// count.
+/// count; with a force series f_t = U′(x_t) beside the velocities, also `fsums[b][k]` =
+/// Σ v_t f_{t+k} and `fneg[b]` = Σ v_{t+1} f_t (lag −1, for the central difference at 0).
 struct Blocks<'a> {
     blocks: Vec<&'a [f64]>,
+    forces: Vec<&'a [f64]>,
     sums: Vec<Vec<f64>>,
+    fsums: Vec<Vec<f64>>,
+    fneg: Vec<f64>,
     pairs: Vec<Vec<f64>>,
 }
 
-impl<'a> Blocks<'a> {
-    fn new(trajs: &[&'a [f64]], len: usize) -> Self {
-        let mut blocks = Vec::new();
-        for t in trajs {
-            let nb = (t.len() / len).max(1);
-            for b in 0..nb {
-                let end = if b + 1 == nb { t.len() } else { (b + 1) * len };
-                blocks.push(&t[b * len..end]);
-            }
+/// Cuts every trajectory into consecutive blocks of `len` samples (the last one of each takes
+/// the rest).
+fn cut<'a>(trajs: &[&'a [f64]], len: usize) -> Vec<&'a [f64]> {
+    let mut blocks = Vec::new();
+    for t in trajs {
+        let nb = (t.len() / len).max(1);
+        for b in 0..nb {
+            let end = if b + 1 == nb { t.len() } else { (b + 1) * len };
+            blocks.push(&t[b * len..end]);
         }
+    }
+    blocks
+}
+
+impl<'a> Blocks<'a> {
+    fn new(trajs: &[&'a [f64]], forces: Option<&[&'a [f64]]>, len: usize) -> Self {
+        let blocks = cut(trajs, len);
+        let forces = forces.map_or_else(Vec::new, |f| cut(f, len));
         let n = blocks.len();
+        let fneg = forces
+            .iter()
+            .zip(&blocks)
+            .map(|(f, v)| dot(&f[..f.len().saturating_sub(1)], &v[1.min(v.len())..]))
+            .collect();
         Self {
             blocks,
+            forces,
             sums: vec![Vec::new(); n],
+            fsums: vec![Vec::new(); n],
+            fneg,
             pairs: vec![Vec::new(); n],
         }
     }
@@ -404,6 +563,14 @@ impl<'a> Blocks<'a> {
             } else {
                 (0.0, 0.0)
             };
+            if let Some(f) = self.forces.get(b) {
+                let fb = if v.len() > k {
+                    dot(&v[..v.len() - k], &f[k..])
+                } else {
+                    0.0
+                };
+                self.fsums[b].push(fb);
+            }
             self.sums[b].push(sb);
             self.pairs[b].push(pb);
             s += sb;
@@ -412,18 +579,35 @@ impl<'a> Blocks<'a> {
         if p > 0.0 { s / p } else { 0.0 }
     }
 
-    /// C(k) for k < lags under block weights `w`.
-    fn vacf(&self, w: &[f64], lags: usize) -> Vec<f64> {
-        (0..lags)
-            .map(|k| {
-                let (mut s, mut p) = (0.0, 0.0);
-                for (b, &wb) in w.iter().enumerate() {
-                    s += wb * self.sums[b][k];
-                    p += wb * self.pairs[b][k];
+    /// The pooled lag sums under block weights `w`: C(k) and, with forces, G(k) = ⟨v_t f_{t+k}⟩
+    /// for k < lags, G at lag −1 first (so G has lags + 1 entries, lag j at index j + 1).
+    fn correlations(&self, w: &[f64], lags: usize) -> (Vec<f64>, Vec<f64>) {
+        let mut c = Vec::with_capacity(lags);
+        let mut g = Vec::new();
+        if !self.forces.is_empty() {
+            let (mut s, mut p) = (0.0, 0.0);
+            for (b, &wb) in w.iter().enumerate() {
+                s += wb * self.fneg[b];
+                p += wb * self.pairs[b].get(1).copied().unwrap_or(0.0);
+            }
+            g.push(if p > 0.0 { s / p } else { 0.0 });
+        }
+        for k in 0..lags {
+            let (mut s, mut sf, mut p) = (0.0, 0.0, 0.0);
+            for (b, &wb) in w.iter().enumerate() {
+                s += wb * self.sums[b][k];
+                p += wb * self.pairs[b][k];
+                if let Some(f) = self.fsums[b].get(k) {
+                    sf += wb * f;
                 }
-                if p > 0.0 { s / p } else { 0.0 }
-            })
-            .collect()
+            }
+            let norm = |x: f64| if p > 0.0 { x / p } else { 0.0 };
+            c.push(norm(s));
+            if !self.forces.is_empty() {
+                g.push(norm(sf));
+            }
+        }
+        (c, g)
     }
 }
 
@@ -433,8 +617,9 @@ fn trapezoid(c: &[f64], w: usize, dt: f64) -> f64 {
 }
 
 /// The memory kernel K(nΔt), n < `lags`, from the VACF `c` (needs `lags + 1` values) by the
-/// second-kind Volterra inversion of the module comment, with the force term ω².
-pub fn volterra_kernel(c: &[f64], dt: f64, omega2: f64, lags: usize) -> Vec<f64> {
+/// second-kind Volterra inversion of the module comment, with the force term `force[n]` =
+/// d/dt ⟨U′(x(t)) v(0)⟩/m at t = nΔt (missing entries: 0, a free particle).
+pub fn volterra_kernel(c: &[f64], dt: f64, force: &[f64], lags: usize) -> Vec<f64> {
     let lags = lags.min(c.len().saturating_sub(1));
     let at = |n: isize| c[n.unsigned_abs()];
     let d1: Vec<f64> = (0..lags as isize)
@@ -450,9 +635,21 @@ pub fn volterra_kernel(c: &[f64], dt: f64, omega2: f64, lags: usize) -> Vec<f64>
         } else {
             dt * (0.5 * k[0] * d1[n] + (1..n).map(|j| k[j] * d1[n - j]).sum::<f64>())
         };
-        k.push((-d2 - omega2 * c[n] - conv) / c[0]);
+        let f = force.get(n).copied().unwrap_or(0.0);
+        k.push((-d2 - f - conv) / c[0]);
     }
     k
+}
+
+/// The force term of the inversion from G (lag −1 first, see [`Blocks::correlations`]) and the
+/// mass: d/dt G(t)/m by central differences at lags 0..lags.
+fn force_term(g: &[f64], m: f64, dt: f64, lags: usize) -> Vec<f64> {
+    if g.is_empty() {
+        return Vec::new();
+    }
+    (0..lags.min(g.len() - 2))
+        .map(|n| (g[n + 2] - g[n]) / (2.0 * dt * m))
+        .collect()
 }
 
 /// Weighted least squares of ln K = ln A − t/τ over lags 1..=points with standard errors `se`:
@@ -516,14 +713,6 @@ fn check(trajs: &[&[f64]], dt: f64, opts: &Options) -> Result<(), VelocityError>
     if let Some(m) = opts.mass {
         positive("the mass", m)?;
     }
-    if let Some(w) = opts.omega2
-        && !(w >= 0.0 && w.is_finite())
-    {
-        return Err(VelocityError::BadParameter {
-            name: "ω²",
-            value: w,
-        });
-    }
     if opts.resamples < 2 {
         return Err(VelocityError::BadParameter {
             name: "the number of resamples",
@@ -538,7 +727,8 @@ fn check(trajs: &[&[f64]], dt: f64, opts: &Options) -> Result<(), VelocityError>
     Ok(())
 }
 
-/// Friction and memory from velocity trajectories sampled every `dt`.
+/// Friction and memory from velocity trajectories sampled every `dt`, without positions: the
+/// particle is taken as free (a confined one is warned about, its kernel is not the friction).
 ///
 /// # Errors
 /// A non-finite sample, a non-positive interval or mass, fewer than [`BLOCKS`]·[`MIN_BLOCK`]
@@ -549,12 +739,42 @@ pub fn from_velocities(
     opts: &Options,
 ) -> Result<Friction, VelocityError> {
     check(trajs, dt, opts)?;
-    let var_x = opts.position_variance.filter(|v| v.is_finite() && *v > 0.0);
-    analyse(trajs, dt, opts, Origin::Given, var_x)
+    analyse(trajs, None, dt, opts, Origin::Given)
+}
+
+/// U′(x) along each trajectory, with the observed force.
+fn forces(f: &MeanForce, xs: &[&[f64]]) -> Vec<Vec<f64>> {
+    xs.iter()
+        .map(|x| x.iter().map(|&v| f.derivative(v)).collect())
+        .collect()
+}
+
+/// Friction and memory from velocity trajectories `vs` with their positions `xs` (same lengths),
+/// sampled every `dt`; with `opts.force` the mean force enters the kernel inversion.
+///
+/// # Errors
+/// As [`from_velocities`]; also positions of another length than their velocities.
+pub fn from_velocities_and_positions(
+    vs: &[&[f64]],
+    xs: &[&[f64]],
+    dt: f64,
+    opts: &Options,
+) -> Result<Friction, VelocityError> {
+    check(vs, dt, opts)?;
+    check(xs, dt, opts)?;
+    if let Some(trajectory) =
+        (0..vs.len()).find(|&i| xs.get(i).map(|x| x.len()) != Some(vs[i].len()))
+    {
+        return Err(VelocityError::Lengths { trajectory });
+    }
+    let f = opts.force.as_ref().map(|f| forces(f, xs));
+    let refs: Option<Vec<&[f64]>> = f.as_ref().map(|f| f.iter().map(Vec::as_slice).collect());
+    analyse(vs, refs.as_deref(), dt, opts, Origin::Given)
 }
 
 /// Friction and memory from position trajectories sampled every `dt`, through central-difference
-/// velocities (see the module comment for their error).
+/// velocities (see the module comment for their error); with `opts.force` the mean force at the
+/// centre sample enters the kernel inversion.
 ///
 /// # Errors
 /// As [`from_velocities`].
@@ -566,25 +786,49 @@ pub fn from_positions(
     check(trajs, dt, opts)?;
     let vs: Vec<Vec<f64>> = trajs.iter().map(|x| central_difference(x, dt)).collect();
     let refs: Vec<&[f64]> = vs.iter().map(Vec::as_slice).collect();
-    // position variance about the mean, for ω² of a well
-    let (mut n, mut s, mut s2) = (0.0, 0.0, 0.0);
-    let shift = trajs.iter().find_map(|t| t.first()).copied().unwrap_or(0.0);
-    for &x in trajs.iter().flat_map(|t| t.iter()) {
-        n += 1.0;
-        s += x - shift;
-        s2 += (x - shift).powi(2);
+    let centres: Vec<&[f64]> = trajs
+        .iter()
+        .map(|x| {
+            if x.len() > 2 {
+                &x[1..x.len() - 1]
+            } else {
+                &x[..0]
+            }
+        })
+        .collect();
+    let f = opts.force.as_ref().map(|f| forces(f, &centres));
+    let frefs: Option<Vec<&[f64]>> = f.as_ref().map(|f| f.iter().map(Vec::as_slice).collect());
+    analyse(&refs, frefs.as_deref(), dt, opts, Origin::CentralDifference)
+}
+
+/// The quantities of one set of correlations: ⟨v²⟩, m, D, ∫|C|, the force share φ (NaN without
+/// a force) and the kernel.
+struct Derived {
+    v2: f64,
+    mass: f64,
+    d: f64,
+    abs_int: f64,
+    share: f64,
+    kernel: Vec<f64>,
+}
+
+/// The memoryless friction whose spike has the inverted area `a`: (1 − e^{−γΔt})/Δt = a
+/// (module comment), NaN when aΔt ≥ 1.
+fn memoryless_gamma(a: f64, dt: f64) -> f64 {
+    if a * dt < 1.0 {
+        -(-a * dt).ln_1p() / dt
+    } else {
+        f64::NAN
     }
-    let var_x = (s2 - s * s / n) / (n - 1.0).max(1.0);
-    analyse(&refs, dt, opts, Origin::CentralDifference, Some(var_x))
 }
 
 #[allow(clippy::too_many_lines)]
 fn analyse(
     trajs: &[&[f64]],
+    forces: Option<&[&[f64]]>,
     dt: f64,
     opts: &Options,
     origin: Origin,
-    var_x: Option<f64>,
 ) -> Result<Friction, VelocityError> {
     let samples: usize = trajs.iter().map(|t| t.len()).sum();
     let needed = BLOCKS * MIN_BLOCK;
@@ -593,20 +837,18 @@ fn analyse(
     }
     let mut warnings = Vec::new();
     let block_len = samples / BLOCKS;
-    let mut blocks = Blocks::new(trajs, block_len);
+    let mut blocks = Blocks::new(trajs, forces, block_len);
     let c0 = blocks.push_lag();
     if c0 <= 0.0 {
         return Err(VelocityError::NoVariance);
     }
     // the window on |ρ|, computing lags as it goes
     let max_lag = (block_len / 4).clamp(2, MAX_LAGS);
-    let mut c = vec![c0];
     let mut tau_abs = 0.5;
     let mut window = None;
     for k in 1..=max_lag {
-        let ck = blocks.push_lag();
-        c.push(ck);
-        tau_abs += (ck / c0).abs();
+        let ck = blocks.push_lag() / c0;
+        tau_abs += ck.abs();
         if window.is_none() && k as f64 >= WINDOW_C * tau_abs {
             window = Some(k);
         }
@@ -631,23 +873,41 @@ fn analyse(
     }
     let nb = blocks.blocks.len();
     let klags = w.min(MAX_KERNEL_LAGS);
+    let has_force = forces.is_some();
 
-    // the quantities of one VACF: (⟨v²⟩, m, D, ∫|C|, kernel)
     let given_mass = opts.mass;
-    let derive = |c: &[f64], omega2: f64| {
+    let derive = |c: &[f64], g: &[f64]| {
         let v2 = c[0];
-        let m = given_mass.unwrap_or(1.0 / v2);
+        let mass = given_mass.unwrap_or(1.0 / v2);
         let d = trapezoid(c, w, dt);
         let abs_int =
             dt * (0.5 * c[0] + c[1..w].iter().map(|v| v.abs()).sum::<f64>() + 0.5 * c[w].abs());
-        (v2, m, d, abs_int, volterra_kernel(c, dt, omega2, klags))
+        // φ = ∫₀^W G/m dt / C(0) (G at lag j is g[j + 1])
+        let share = if g.is_empty() {
+            f64::NAN
+        } else {
+            trapezoid(&g[1..], w, dt) / (mass * v2)
+        };
+        let force = force_term(g, mass, dt, klags);
+        Derived {
+            v2,
+            mass,
+            d,
+            abs_int,
+            share,
+            kernel: volterra_kernel(c, dt, &force, klags),
+        }
     };
-    let (v2, mass, d, abs_int, _) = derive(&c, 0.0);
-    let integral_ratio = d / abs_int;
+    let all = vec![1.0; nb];
+    let (c, g) = blocks.correlations(&all, w + 2);
+    let main = derive(&c, &g);
+    let (v2, mass, d) = (main.v2, main.mass, main.d);
+    let integral_ratio = d / main.abs_int;
+    let kern = main.kernel.clone();
 
     // bootstrap weights, drawn before anything depends on the data's outcome
     let mut rng = seed::stream(seed::derive(opts.seed, seed::VELOCITY_BOOTSTRAP), 0);
-    let weights: Vec<Vec<f64>> = (0..opts.resamples)
+    let draws: Vec<Derived> = (0..opts.resamples)
         .map(|_| {
             let mut wb = vec![0.0; nb];
             for _ in 0..nb {
@@ -655,48 +915,30 @@ fn analyse(
             }
             wb
         })
+        .collect::<Vec<_>>()
+        .iter()
+        .map(|wb| {
+            let (cr, gr) = blocks.correlations(wb, w + 2);
+            derive(&cr, &gr)
+        })
         .collect();
-    let resampled: Vec<Vec<f64>> = weights.iter().map(|wb| blocks.vacf(wb, w + 2)).collect();
-    let mut d_draws: Vec<f64> = resampled.iter().map(|cr| trapezoid(cr, w, dt)).collect();
-    let d_est = estimate(d, &mut d_draws);
-    let confined = integral_ratio < CONFINED_RATIO || d_est.ci95[0] <= 0.0;
-
-    // ω² of the force term
-    let omega2 = match (opts.omega2, confined, var_x) {
-        (Some(o), _, _) => o,
-        (None, true, Some(vx)) if vx > 0.0 => {
-            warnings.push(format!(
-                "ω² = ⟨v²⟩/var(x) = {:.4e} (harmonic approximation of the well) enters the kernel \
-                 inversion",
-                v2 / vx
-            ));
-            v2 / vx
-        }
-        (None, true, _) => {
-            warnings.push(
-                "the particle is confined but no ω² was given: the inverted kernel includes the \
-                 well's constant ω² and its fit is not the friction"
-                    .into(),
-            );
-            0.0
-        }
-        (None, false, _) => 0.0,
+    let column = |f: &dyn Fn(&Derived) -> f64| draws.iter().map(f).collect::<Vec<f64>>();
+    let d_est = estimate(d, &mut column(&|r| r.d));
+    let force_share = has_force.then(|| estimate(main.share, &mut column(&|r| r.share)));
+    let confined = match &force_share {
+        Some(phi) => phi.value > FREE_SHARE || d_est.ci95[0] <= 0.0,
+        None => integral_ratio < CONFINED_RATIO || d_est.ci95[0] <= 0.0,
     };
-    let kern = volterra_kernel(&c, dt, omega2, klags);
-
-    let mut v2_draws = Vec::with_capacity(opts.resamples);
-    let mut m_draws = Vec::with_capacity(opts.resamples);
-    let mut g_draws = Vec::with_capacity(opts.resamples);
-    let mut k_draws = Vec::with_capacity(opts.resamples);
-    for cr in &resampled {
-        let (v2r, mr, dr, _, kr) = derive(cr, omega2);
-        v2_draws.push(v2r);
-        m_draws.push(mr);
-        g_draws.push(1.0 / (mr * dr));
-        k_draws.push(kr);
+    if confined && !has_force {
+        warnings.push(
+            "the particle looks confined but no positions were given: the inverted kernel \
+             includes the well's force and is not the friction"
+                .into(),
+        );
     }
+
     let k_se: Vec<f64> = (0..klags)
-        .map(|n| mean_sd(&k_draws.iter().map(|k| k[n]).collect::<Vec<_>>()).1)
+        .map(|n| mean_sd(&column(&|r| r.kernel[n])).1)
         .collect();
     // resolved lags from 1 (K(0) carries an O(Δt) error and, without memory, the spike)
     let points = (1..klags)
@@ -706,8 +948,8 @@ fn analyse(
         fit_kernel(&kern, &k_se, dt, points).map(|(g, tau)| {
             let mut gs = Vec::new();
             let mut ts = Vec::new();
-            for kr in &k_draws {
-                if let Some((gr, tr)) = fit_kernel(kr, &k_se, dt, points) {
+            for r in &draws {
+                if let Some((gr, tr)) = fit_kernel(&r.kernel, &k_se, dt, points) {
                     gs.push(gr);
                     ts.push(tr);
                 }
@@ -740,20 +982,38 @@ fn analyse(
 
     // ∫K over the resolved lags: ½K₀Δt + Σ_{1..=points} K_n Δt (the spike's area when memoryless)
     let area = |k: &[f64]| dt * (0.5 * k[0] + k[1..=points].iter().sum::<f64>());
-    let mut area_draws: Vec<f64> = k_draws.iter().map(|k| area(k)).collect();
-    let resolved_area = estimate(area(&kern), &mut area_draws);
-    let (gamma, gamma_route) = if confined {
-        warnings.push(format!(
-            "the VACF integral vanishes (∫C/∫|C| = {integral_ratio:.3}, D interval [{:.3e}, {:.3e}]): \
-             the particle is confined, Green–Kubo gives no friction; γ comes from the memory kernel",
-            d_est.ci95[0], d_est.ci95[1]
-        ));
-        match &fit {
-            Some(f) => (f.gamma, Route::KernelFit),
-            None => (resolved_area, Route::KernelArea),
+    let resolved_area = estimate(area(&kern), &mut column(&|r| area(&r.kernel)));
+    let spike = estimate(
+        memoryless_gamma(area(&kern), dt),
+        &mut column(&|r| memoryless_gamma(area(&r.kernel), dt))
+            .into_iter()
+            .filter(|v| v.is_finite())
+            .collect::<Vec<_>>(),
+    );
+    let gamma_gk = estimate(1.0 / (mass * d), &mut column(&|r| 1.0 / (r.mass * r.d)));
+    let gamma_kernel = (confined || has_force).then_some(match &fit {
+        Some(f) => (f.gamma, Route::KernelFit),
+        None => (spike, Route::KernelArea),
+    });
+    let (gamma, gamma_route) = match (confined, gamma_kernel) {
+        (true, Some(k)) => {
+            warnings.push(match &force_share {
+                Some(phi) => format!(
+                    "the mean force takes φ = {:.3} of the velocity correlation within the \
+                     window (more than {FREE_SHARE}): Green–Kubo's γ = {:.4e} is high by about \
+                     1/(1 − φ); γ comes from the memory kernel with the observed force",
+                    phi.value, gamma_gk.value
+                ),
+                None => format!(
+                    "the VACF integral vanishes (∫C/∫|C| = {integral_ratio:.3}, D interval \
+                     [{:.3e}, {:.3e}]): the particle is confined, Green–Kubo gives no friction; \
+                     γ comes from the memory kernel",
+                    d_est.ci95[0], d_est.ci95[1]
+                ),
+            });
+            k
         }
-    } else {
-        (estimate(1.0 / (mass * d), &mut g_draws), Route::GreenKubo)
+        _ => (gamma_gk, Route::GreenKubo),
     };
     let gamma_ref = Some(gamma.value).filter(|g| *g > 0.0);
 
@@ -803,7 +1063,7 @@ fn analyse(
             mean_velocity.abs() / mean_se
         ));
     }
-    let v2_est = estimate(v2, &mut v2_draws);
+    let v2_est = estimate(v2, &mut column(&|r| r.v2));
     if let Some(m) = given_mass {
         let kt = m * v2;
         if (kt - 1.0).abs() > 0.05 && (kt - 1.0).abs() > 4.0 * m * v2_est.se {
@@ -819,8 +1079,18 @@ fn analyse(
             se: 0.0,
             ci95: [m, m],
         },
-        None => estimate(mass, &mut m_draws),
+        None => estimate(mass, &mut column(&|r| r.mass)),
     };
+    let force = force_share.map(|share| ForceTerm {
+        share,
+        spline_edf: opts.force.as_ref().map_or(f64::NAN, MeanForce::edf),
+        rule: format!(
+            "U′(x) of the weighted smoothing spline through the observed U = −ln p(x) (weights \
+             1/σ_U², smoothing by the unbiased-risk rule), correlated as ⟨U′(x(t)) v(0)⟩ and \
+             differentiated by central differences; φ = ∫₀^W ⟨U′(x(t)) v(0)⟩ dt/(m⟨v²⟩), \
+             Green–Kubo is used while φ ≤ {FREE_SHARE}"
+        ),
+    });
     Ok(Friction {
         origin,
         samples,
@@ -845,18 +1115,24 @@ fn analyse(
         integral_ratio,
         diffusion: d_est,
         confined,
+        force,
         gamma,
         gamma_route,
+        gamma_green_kubo: gamma_gk,
+        gamma_kernel: gamma_kernel.map(|k| k.0),
         kernel: Kernel {
             points: (0..klags)
                 .map(|n| [n as f64 * dt, kern[n], k_se[n]])
                 .collect(),
-            omega2,
+            force_term: has_force,
             fit,
             resolved_area,
+            memoryless_gamma: spike,
             rule: format!(
-                "second-kind Volterra inversion (Berne & Harp 1970), trapezoid; exponential fit by \
-                 weighted least squares on ln K over the lags from Δt on above {RESOLVED_SE} standard errors"
+                "second-kind Volterra inversion (Berne & Harp 1970) with the observed mean force, \
+                 trapezoid; exponential fit by weighted least squares on ln K over the lags from \
+                 Δt on above {RESOLVED_SE} standard errors; without a resolved lag, the memoryless \
+                 γ = −ln(1 − AΔt)/Δt of the spike's area A"
             ),
         },
         fd_bias,
@@ -883,7 +1159,7 @@ mod tests {
     fn memoryless_kernel_is_a_spike() {
         let (g, dt) = (2.0_f64, 0.01);
         let c: Vec<f64> = (0..50).map(|k| (-g * k as f64 * dt).exp()).collect();
-        let k = volterra_kernel(&c, dt, 0.0, 40);
+        let k = volterra_kernel(&c, dt, &[], 40);
         let e = 1.0 - (-g * dt).exp();
         assert!((0.5 * k[0] * dt - e / dt).abs() < 1e-9);
         assert!((k[1] + e.powi(3) / (2.0 * dt * dt)).abs() < 1e-9);
@@ -916,7 +1192,7 @@ mod tests {
                     }
                 })
                 .collect();
-            let k = volterra_kernel(&c, dt, 0.0, 500);
+            let k = volterra_kernel(&c, dt, &[], 500);
             // K(0): the second difference across the kink of C‴ at 0 is off by (γ/τ)(Δt/τ)/3
             assert!(((k[0] - g / tau) / (g / tau) + dt / (3.0 * tau)).abs() < 1e-3);
             for (n, kn) in k.iter().enumerate().skip(1).step_by(25) {

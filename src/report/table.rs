@@ -1640,23 +1640,71 @@ fn observe_friction(
             f.window.lags,
             num(f.window.time),
             u.t,
-            if f.confined {
-                "; vanishes: confined"
-            } else {
-                ""
+            match (f.confined, &f.force) {
+                (true, Some(_)) => "; cut by the mean force",
+                (true, None) => "; vanishes: confined",
+                _ => "",
             }
         ),
     ]);
+    if let Some(force) = &f.force {
+        t.add_row(vec![
+            "force share φ".into(),
+            est(&force.share),
+            iv(&force.share),
+            format!(
+                "∫⟨U′(x(t)) v(0)⟩dt/(m⟨v²⟩) over the window; Green–Kubo while φ ≤ {}",
+                crate::observe::velocity::FREE_SHARE
+            ),
+        ]);
+    }
+    let kernel_how = |r: Route| match r {
+        Route::KernelFit => "memory-kernel fit",
+        _ => "memoryless −ln(1 − AΔt)/Δt of the kernel's spike area A",
+    };
+    let with_force = if f.kernel.force_term {
+        ", observed mean force"
+    } else {
+        ""
+    };
     t.add_row(vec![
         format!("γ (1/{})", u.t),
         est(&f.gamma),
         iv(&f.gamma),
         match f.gamma_route {
-            Route::GreenKubo => "Einstein kT/(m D)".into(),
-            Route::KernelFit => "memory-kernel fit".into(),
-            Route::KernelArea => "area of the resolved memory kernel".into(),
+            Route::GreenKubo => "used: Green–Kubo, Einstein kT/(m D)".into(),
+            r => format!("used: {}{with_force}", kernel_how(r)),
         },
     ]);
+    // the other route beside it
+    match (f.gamma_route, &f.gamma_kernel) {
+        (Route::GreenKubo, Some(k)) => t.add_row(vec![
+            format!("γ, kernel (1/{})", u.t),
+            est(k),
+            iv(k),
+            format!(
+                "{}{with_force}",
+                kernel_how(if f.kernel.fit.is_some() {
+                    Route::KernelFit
+                } else {
+                    Route::KernelArea
+                })
+            ),
+        ]),
+        (Route::GreenKubo, None) => &mut t,
+        _ => t.add_row(vec![
+            format!("γ, Green–Kubo (1/{})", u.t),
+            est(&f.gamma_green_kubo),
+            iv(&f.gamma_green_kubo),
+            match &f.force {
+                Some(force) => format!(
+                    "not used: the well's force makes it high by about 1/(1 − φ) = {}",
+                    num(1.0 / (1.0 - force.share.value))
+                ),
+                None => "not used: the particle is confined".into(),
+            },
+        ]),
+    };
     if let Some(k) = &f.kernel.fit {
         t.add_row(vec![
             format!("kernel γ (1/{})", u.t),
