@@ -9,6 +9,7 @@ pub mod kramers;
 pub mod langer;
 pub mod mfpt;
 pub mod periodic;
+pub mod plane;
 pub mod pgh;
 pub mod regime;
 pub mod tst;
