@@ -76,9 +76,9 @@ fn plane_cmd(m: &PlaneModel, rates: bool, as_json: bool) -> Result<Done, Failure
     if !rates {
         let l = escapade::landscape::surface::analyse_surface(s, m.system.start, m.system.target)
             .map_err(|e| {
-                let e = theory::plane::PlaneError::from(e);
-                Failure::user(format!("{}: {}: {e}", m.source, e.key()))
-            })?;
+            let e = theory::plane::PlaneError::from(e);
+            Failure::user(format!("{}: {}: {e}", m.source, e.key()))
+        })?;
         let r = PlaneSurveyReport::new(m, &l);
         return ok(if as_json {
             json::render(&r)

@@ -356,7 +356,11 @@ fn head(out: &mut String, h: &PlaneHeader) {
     if let Some(title) = &h.title {
         let _ = writeln!(out, "{title}");
     }
-    let _ = write!(out, "scenario {} · two coordinates · {}", h.source, h.surface);
+    let _ = write!(
+        out,
+        "scenario {} · two coordinates · {}",
+        h.source, h.surface
+    );
     match h.temperature {
         Some(t) => {
             let _ = writeln!(out, " · T = {t} K, kT = {} {}", num(h.kt), h.units.energy);
@@ -371,7 +375,12 @@ fn landscape_table(out: &mut String, l: &PlaneLandscapeOut, energy: &str) {
     // a second energy column in kT only when the scenario's unit is not kT
     let in_kt = energy != "kT";
     let mut t = table();
-    let mut h = vec!["point".to_string(), "x".into(), "y".into(), format!("U ({energy})")];
+    let mut h = vec![
+        "point".to_string(),
+        "x".into(),
+        "y".into(),
+        format!("U ({energy})"),
+    ];
     if in_kt {
         h.push("U (kT)".into());
     }
@@ -513,7 +522,10 @@ pub fn rate_table(r: &PlaneRateReport) -> String {
         format!("per {time}"),
     ]);
     for (name, v) in [
-        ("Smoluchowski (1-D Kramers, overdamped)", p.rates.smoluchowski),
+        (
+            "Smoluchowski (1-D Kramers, overdamped)",
+            p.rates.smoluchowski,
+        ),
         ("Kramers (1-D, with inertia)", p.rates.kramers),
         ("harmonic TST (1-D)", p.rates.tst),
         ("1 / MFPT (1-D exact)", p.rates.mfpt),

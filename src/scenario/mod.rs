@@ -154,23 +154,23 @@ impl crate::scan::Variants for FileVariants<'_> {
 /// The text of a scenario file (UTF-8 checked) and the folder its relative paths start from.
 fn read_text(path: &Path) -> Result<(String, std::path::PathBuf), ScenarioError> {
     let file = path.display().to_string();
-        let bytes = std::fs::read(path).map_err(|e| ScenarioError::Io {
+    let bytes = std::fs::read(path).map_err(|e| ScenarioError::Io {
+        file: file.clone(),
+        message: e.to_string(),
+    })?;
+    let text = String::from_utf8(bytes).map_err(|e| {
+        let line = e.as_bytes()[..e.utf8_error().valid_up_to()]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count()
+            + 1;
+        ScenarioError::Line {
             file: file.clone(),
-            message: e.to_string(),
-        })?;
-        let text = String::from_utf8(bytes).map_err(|e| {
-            let line = e.as_bytes()[..e.utf8_error().valid_up_to()]
-                .iter()
-                .filter(|&&b| b == b'\n')
-                .count()
-                + 1;
-            ScenarioError::Line {
-                file: file.clone(),
-                line,
-                key: String::new(),
-                message: "the file is not UTF-8 text".into(),
-            }
-        })?;
+            line,
+            key: String::new(),
+            message: "the file is not UTF-8 text".into(),
+        }
+    })?;
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     Ok((text, base))
 }
@@ -213,7 +213,8 @@ impl Study {
             base,
             overridden: overrides.iter().map(|o| o.path.join(".")).collect(),
         };
-        let pf: PlaneFile = parse_overridden(text, file, overrides, validator.scale(text, overrides)?)?;
+        let pf: PlaneFile =
+            parse_overridden(text, file, overrides, validator.scale(text, overrides)?)?;
         validator.build_plane(pf).map(|m| Study::Plane(Box::new(m)))
     }
 }
@@ -236,13 +237,13 @@ fn parse_overridden<T: serde::de::DeserializeOwned>(
         let mut last = None;
         for o in overrides {
             apply_override(&mut doc, o)?;
-            let checked: T = doc
-                .clone()
-                .try_into()
-                .map_err(|e: toml::de::Error| ScenarioError::Override {
-                    arg: o.arg.clone(),
-                    message: e.message().trim().replace('\n', " "),
-                })?;
+            let checked: T =
+                doc.clone()
+                    .try_into()
+                    .map_err(|e: toml::de::Error| ScenarioError::Override {
+                        arg: o.arg.clone(),
+                        message: e.message().trim().replace('\n', " "),
+                    })?;
             last = Some(checked);
         }
         Ok(last.expect("at least one override"))

@@ -14,8 +14,8 @@ use crate::potential::surface::{DiffusionTensor, FormulaSurface, MullerBrown, Po
 use crate::system::{PlaneSurface, PlaneSystem};
 use crate::units::UnitSystem;
 use crate::units::quantity;
-use serde::de::{self, Deserializer};
 use serde::Deserialize;
+use serde::de::{self, Deserializer};
 use std::collections::BTreeMap;
 
 /// A key that is a number or a small list of numbers (each a number or a string with a unit).
@@ -39,22 +39,22 @@ fn shape<'de, D: Deserializer<'de>>(
     let Some(v) = Option::<toml::Value>::deserialize(d)? else {
         return Ok(None);
     };
-    let one = |v: &toml::Value| -> Result<f64, D::Error> {
-        match v {
-            toml::Value::Integer(_) | toml::Value::Float(_) | toml::Value::String(_) => leaf(
-                v.clone(),
-            )
-            .map_err(|e| de::Error::custom(e.message().trim().replace('\n', " ")))?
-            .ok_or_else(|| de::Error::custom("expected a number")),
-            _ => Err(de::Error::custom("expected a number")),
-        }
-    };
     let expected = if matrix {
         "a number, [xx, yy] or [[xx, xy], [yx, yy]]"
     } else {
         "a number or [x, y]"
     };
     let wrong = || de::Error::custom(format!("expected {expected}"));
+    let one = |v: &toml::Value| -> Result<f64, D::Error> {
+        match v {
+            toml::Value::Integer(_) | toml::Value::Float(_) | toml::Value::String(_) => {
+                leaf(v.clone())
+                    .map_err(|e| de::Error::custom(e.message().trim().replace('\n', " ")))?
+                    .ok_or_else(|| de::Error::custom("expected a number"))
+            }
+            _ => Err(wrong()),
+        }
+    };
     match &v {
         toml::Value::Array(a) => match a.as_slice() {
             [toml::Value::Array(r0), toml::Value::Array(r1)] if matrix => {
@@ -212,7 +212,10 @@ impl Validator<'_> {
         if let Some(m) = mass {
             in_range("particle.mass", &m)?;
         }
-        in_range("particle.diffusion", &[diffusion.0[0][0], diffusion.0[1][1]])?;
+        in_range(
+            "particle.diffusion",
+            &[diffusion.0[0][0], diffusion.0[1][1]],
+        )?;
         let (surface, label) = self.surface(&sec, &units)?;
         let domain = surface.surface().domain();
         let point = |key: &str, v: &Option<Vec<f64>>| -> Result<Option<Point>, ScenarioError> {
@@ -274,10 +277,9 @@ impl Validator<'_> {
                 1.0 / (m[0] * g),
                 1.0 / (m[1] * g),
             )),
-            (None, None, _) => Err(self.err(
-                KEY,
-                "is required (or particle.mass with particle.friction)",
-            )),
+            (None, None, _) => {
+                Err(self.err(KEY, "is required (or particle.mass with particle.friction)"))
+            }
             (Some(s), None, _) => {
                 let d = match *s {
                     Shape::Scalar(v) => DiffusionTensor::scalar(v),
@@ -321,10 +323,14 @@ impl Validator<'_> {
         sec: &SurfaceSection,
         units: &UnitSystem,
     ) -> Result<(PlaneSurface, String), ScenarioError> {
-        let given = [sec.expr.is_some(), sec.table.is_some(), sec.family.is_some()]
-            .iter()
-            .filter(|&&b| b)
-            .count();
+        let given = [
+            sec.expr.is_some(),
+            sec.table.is_some(),
+            sec.family.is_some(),
+        ]
+        .iter()
+        .filter(|&&b| b)
+        .count();
         if given != 1 {
             return Err(self.err(
                 "surface",
@@ -354,7 +360,11 @@ impl Validator<'_> {
                 }
             }
             let (Some(x), Some(y)) = (x, y) else {
-                let key = if x.is_none() { "surface.x" } else { "surface.y" };
+                let key = if x.is_none() {
+                    "surface.x"
+                } else {
+                    "surface.y"
+                };
                 return Err(self.err(key, "is required with surface.expr (the box, [lo, hi])"));
             };
             let f = Formula2::parse(src, ["x", "y"], &constants)
@@ -364,8 +374,15 @@ impl Validator<'_> {
         }
         if let Some(t) = &sec.table {
             if x.is_some() || y.is_some() {
-                let key = if x.is_some() { "surface.x" } else { "surface.y" };
-                return Err(self.err(key, "a table's box is its grid: drop surface.x and surface.y"));
+                let key = if x.is_some() {
+                    "surface.x"
+                } else {
+                    "surface.y"
+                };
+                return Err(self.err(
+                    key,
+                    "a table's box is its grid: drop surface.x and surface.y",
+                ));
             }
             let path = self.base.join(t);
             let shown = path.display().to_string();
@@ -401,10 +418,7 @@ impl Validator<'_> {
             x: x.unwrap_or(s.domain.x),
             y: y.unwrap_or(s.domain.y),
         };
-        let label = format!(
-            "Müller–Brown, one unit = {unit} {}",
-            units.names.energy
-        );
+        let label = format!("Müller–Brown, one unit = {unit} {}", units.names.energy);
         Ok((PlaneSurface::MullerBrown(s), label))
     }
 }

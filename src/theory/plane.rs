@@ -251,10 +251,7 @@ pub struct PlaneTheory {
 
 /// The default regions (module doc): (A, B).
 pub fn regions(l: &SurfaceLandscape, product_radius: Option<f64>, slack: f64) -> (Region, Region) {
-    let (ma, mb) = (
-        l.minima[l.reactant].position,
-        l.minima[l.product].position,
-    );
+    let (ma, mb) = (l.minima[l.reactant].position, l.minima[l.product].position);
     if let Some(radius) = product_radius {
         return (
             Region::Disk { centre: ma, radius },
@@ -314,10 +311,7 @@ pub fn analyse_plane(sys: &PlaneSystem) -> Result<PlaneTheory, PlaneError> {
 /// # Errors
 /// Landscape problems; a reactant or saddle Hessian of the wrong signature; an empty region or
 /// a walled-off start; the 1-D analysis of the MEP profile failing.
-pub fn analyse_plane_with(
-    sys: &PlaneSystem,
-    o: &PlaneOptions,
-) -> Result<PlaneTheory, PlaneError> {
+pub fn analyse_plane_with(sys: &PlaneSystem, o: &PlaneOptions) -> Result<PlaneTheory, PlaneError> {
     let s = sys.surface.surface();
     let l = analyse_surface(s, sys.start, sys.target)?;
     let mut warnings = Vec::new();
