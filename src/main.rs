@@ -97,12 +97,7 @@ fn plane_cmd(m: &PlaneModel, rates: bool, as_json: bool) -> Result<Done, Failure
 }
 
 fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
-    let overrides = common
-        .set
-        .iter()
-        .map(|s| Override::parse(s))
-        .collect::<Result<Vec<_>, _>>()
-        .map_err(|e| Failure::user(e.to_string()))?;
+    let overrides = overrides_of(common)?;
     match file {
         Some(f) => Model::load(f, &overrides),
         None => Model::from_text(
@@ -232,12 +227,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             threads,
             all_columns,
         } => {
-            let overrides = common
-                .set
-                .iter()
-                .map(|s| Override::parse(s))
-                .collect::<Result<Vec<_>, _>>()
-                .map_err(|e| Failure::user(e.to_string()))?;
+            let overrides = overrides_of(&common)?;
             let spec = escapade::scan::Spec {
                 key: vary,
                 from,

@@ -243,3 +243,148 @@ fn other_commands_refuse_two_coordinates() {
         );
     }
 }
+
+/// The keys of the two-coordinate JSON as the README documents them (common practice, no
+/// source: our own contract).
+#[test]
+fn plane_json_follows_the_contract() {
+    let ex = example("muller_brown.toml");
+    let j = json(&["rate", ex.to_str().unwrap(), "--json"]);
+    for k in [
+        "dimension",
+        "source",
+        "title",
+        "surface",
+        "units",
+        "temperature",
+        "kt",
+    ] {
+        assert!(j.get(k).is_some(), "{k}");
+    }
+    let l = &j["landscape"];
+    for k in [
+        "minima",
+        "saddles",
+        "reactant",
+        "product",
+        "rate_limiting_saddle",
+        "barrier",
+        "barrier_kt",
+        "reverse_barrier",
+        "path",
+        "mep",
+    ] {
+        assert!(l.get(k).is_some(), "landscape.{k}");
+    }
+    for k in ["x", "y", "u", "u_kt", "eigenvalues"] {
+        assert!(l["minima"][0].get(k).is_some(), "minima.{k}");
+    }
+    for k in [
+        "from",
+        "saddle",
+        "to",
+        "forward_barrier",
+        "backward_barrier",
+        "s",
+    ] {
+        assert!(l["path"][0].get(k).is_some(), "path.{k}");
+    }
+    for k in ["s", "x", "y", "u"] {
+        assert!(l["mep"]["points"][0].get(k).is_some(), "mep.points.{k}");
+    }
+    let groups: [(&str, &[&str]); 5] = [
+        (
+            "harmonic",
+            &[
+                "reactant_hessian",
+                "saddle_hessian",
+                "unstable_rate",
+                "unstable_direction",
+            ],
+        ),
+        (
+            "rates",
+            &["langer_overdamped", "langer", "harmonic_tst", "mfpt", "tpt"],
+        ),
+        (
+            "mfpt",
+            &[
+                "start",
+                "product_region",
+                "time",
+                "grids",
+                "last_change",
+                "converged",
+                "tolerance",
+                "max_cells",
+                "observed_order",
+                "extrapolated",
+            ],
+        ),
+        (
+            "tpt",
+            &[
+                "nx",
+                "ny",
+                "reactant_region",
+                "reactive_frequency",
+                "last_in_a",
+                "rate",
+            ],
+        ),
+        (
+            "mep_1d",
+            &[
+                "tangent",
+                "diffusion",
+                "friction",
+                "length",
+                "barrier_kt",
+                "mfpt_time",
+                "rates",
+            ],
+        ),
+    ];
+    for (g, keys) in groups {
+        for k in keys {
+            assert!(j[g].get(k).is_some(), "{g}.{k}");
+        }
+    }
+    assert!(j["warnings"].is_array());
+    let s = json(&["survey", ex.to_str().unwrap(), "--json"]);
+    assert_eq!(s["landscape"], j["landscape"]);
+    assert!(s.get("rates").is_none());
+}
+
+/// Unit strings in lists, `--set` on a two-coordinate file and a disk product region: D given
+/// as ["0.7 nm^2/ns", "2000 nm^2/us"] is diag(0.7, 2) nm²/ns, so overdamped Langer is the
+/// reference's (reference/surface2d_values.json; 1e-6 as above); product_radius makes both
+/// regions disks. The library's `Model::load` refuses the file naming `surface`, and
+/// `Study::load` reads it as dimension 2.
+#[test]
+fn units_overrides_and_disk_regions() {
+    use escapade::scenario::{Model, Override, Study};
+    let text = SEPARABLE.replace(
+        "[surface]",
+        "[units]\nlength = \"nm\"\ntime = \"ns\"\n[surface]",
+    ) + "[particle]\ndiffusion = [\"0.7 nm^2/ns\", \"2000 nm^2/us\"]\n";
+    let p = scenario("units", &text, &[]);
+    let file = p.to_str().unwrap();
+    let j = json(&["rate", file, "--json", "--set", "states.product_radius=0.3"]);
+    let smol = f(&reference()["ln_smoluchowski_diag"]).exp();
+    assert!(
+        rel(f(&j["rates"]["langer_overdamped"]), smol) < 1e-6,
+        "{}",
+        j["rates"]
+    );
+    assert_eq!(j["mfpt"]["product_region"]["rule"], "disk");
+    assert_eq!(j["tpt"]["reactant_region"]["rule"], "disk");
+    assert_eq!(f(&j["mfpt"]["product_region"]["radius"]), 0.3);
+    let e = Model::load(&p, &[]).unwrap_err().to_string();
+    assert!(e.contains("surface") && e.contains("two-coordinate"), "{e}");
+    let o = [Override::parse("particle.diffusion=1.5").unwrap()];
+    let s = Study::load(&p, &o).unwrap();
+    assert_eq!(s.dimension(), 2);
+    let Study::Plane(m) = s else { unreachable!() };
+    assert_eq!(m.system.diffusion.0, [[1.5, 0.0], [0.0, 1.5]]);
+}

@@ -74,11 +74,11 @@ fn shape<'de, D: Deserializer<'de>>(
 }
 
 fn diffusion_shape<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Shape>, D::Error> {
-    shape(d, |v| quantity::diffusion(v), true)
+    shape(d, quantity::diffusion, true)
 }
 
 fn mass_shape<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Shape>, D::Error> {
-    shape(d, |v| quantity::mass(v), false)
+    shape(d, quantity::mass, false)
 }
 
 /// `[particle]` of a two-coordinate scenario.
