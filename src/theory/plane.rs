@@ -463,3 +463,28 @@ fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, Pla
         rates: r.rates,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::potential::surface::MullerBrown;
+
+    /// On Müller–Brown the default regions hold their own minimum and none of the others (the
+    /// half-plane alone would reach across the box; the nearest-minimum limit keeps it in its
+    /// basin), and a disk holds exactly the points within its radius (exact geometry).
+    #[test]
+    fn regions_stay_in_their_basins() {
+        let s = MullerBrown::new(0.15);
+        let l = analyse_surface(&s, None, None).unwrap();
+        let (a, b) = regions(&l, None, 1e-9);
+        let pos = |k: usize| l.minima[k].position;
+        assert!(a.contains(pos(l.reactant)) && !a.contains(pos(l.product)));
+        assert!(b.contains(pos(l.product)) && !b.contains(pos(l.reactant)));
+        for k in l.intermediate_minima() {
+            assert!(!a.contains(pos(k)) && !b.contains(pos(k)));
+        }
+        let (_, d) = regions(&l, Some(0.1), 0.0);
+        let m = pos(l.product);
+        assert!(d.contains([m[0] + 0.099, m[1]]) && !d.contains([m[0], m[1] + 0.101]));
+    }
+}
