@@ -371,7 +371,12 @@ fn head(out: &mut String, h: &PlaneHeader) {
     }
 }
 
-fn landscape_table(out: &mut String, l: &PlaneLandscapeOut, energy: &str) {
+fn landscape_table(out: &mut String, l: &PlaneLandscapeOut, names: &UnitNames) {
+    let energy = names.energy.as_str();
+    let length = match names.length.as_str() {
+        "1" => "L",
+        l => l,
+    };
     // a second energy column in kT only when the scenario's unit is not kT
     let in_kt = energy != "kT";
     let mut t = table();
@@ -384,7 +389,10 @@ fn landscape_table(out: &mut String, l: &PlaneLandscapeOut, energy: &str) {
     if in_kt {
         h.push("U (kT)".into());
     }
-    h.extend(["Hessian eigenvalues".to_string(), "role".into()]);
+    h.extend([
+        format!("Hessian eigenvalues ({energy}/{length}²)"),
+        "role".into(),
+    ]);
     t.set_header(h);
     let on_path = |k: usize| l.path.iter().skip(1).any(|s| s.from == k);
     for (kind, pts) in [("minimum", &l.minima), ("saddle", &l.saddles)] {
@@ -448,7 +456,7 @@ fn landscape_table(out: &mut String, l: &PlaneLandscapeOut, energy: &str) {
 pub fn survey_table(r: &PlaneSurveyReport) -> String {
     let mut out = String::new();
     head(&mut out, &r.header);
-    landscape_table(&mut out, &r.landscape, &r.header.units.energy);
+    landscape_table(&mut out, &r.landscape, &r.header.units);
     out
 }
 
@@ -456,7 +464,7 @@ pub fn survey_table(r: &PlaneSurveyReport) -> String {
 pub fn rate_table(r: &PlaneRateReport) -> String {
     let mut out = String::new();
     head(&mut out, &r.header);
-    landscape_table(&mut out, &r.landscape, &r.header.units.energy);
+    landscape_table(&mut out, &r.landscape, &r.header.units);
     let time = match r.header.units.time.as_str() {
         "1" => "time unit",
         t => t,

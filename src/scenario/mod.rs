@@ -9,7 +9,9 @@
 //!
 //! Parts: `file` (the sections as written, serde), `validate` (checks across sections and the
 //! reduction to a [`Model`]), `potential` (the `[potential]` section: formula, family or table,
-//! domain, periodic extension).
+//! domain, periodic extension), `plane` (two-coordinate scenarios: `[surface]`, the tensor
+//! `[particle]` keys, point `[states]`, reduced to a [`PlaneModel`]; [`Study::load`] reads
+//! either dimension, [`Model::load`] only one).
 
 mod file;
 mod plane;
