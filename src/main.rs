@@ -11,7 +11,7 @@ use escapade::report::observe::{ObserveReport, WindowsReport};
 use escapade::report::{
     CompareReport, RateReport, SimulateReport, SurveyReport, compare_rows, json, table, vs_observed,
 };
-use escapade::scenario::{Model, Override};
+use escapade::scenario::{Model, Override, PlaneModel, Study};
 use escapade::simulate::session::{Phase, SessionError, SessionOptions};
 use escapade::simulate::{self, Plan, SimError, records};
 use escapade::{landscape::Landscape, stats, theory};
@@ -54,13 +54,50 @@ fn ok(text: String) -> Result<Done, Failure> {
     })
 }
 
-fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
-    let overrides = common
+/// The `--set` overrides of a command.
+fn overrides_of(common: &Common) -> Result<Vec<Override>, Failure> {
+    common
         .set
         .iter()
         .map(|s| Override::parse(s))
         .collect::<Result<Vec<_>, _>>()
-        .map_err(|e| Failure::user(e.to_string()))?;
+        .map_err(|e| Failure::user(e.to_string()))
+}
+
+/// A scenario of either dimension (survey and rate).
+fn load_study(file: &Path, common: &Common) -> Result<Study, Failure> {
+    Study::load(file, &overrides_of(common)?).map_err(|e| Failure::user(e.to_string()))
+}
+
+/// `survey` and `rate` on a two-coordinate scenario.
+fn plane_cmd(m: &PlaneModel, rates: bool, as_json: bool) -> Result<Done, Failure> {
+    use escapade::report::plane::{self, PlaneRateReport, PlaneSurveyReport};
+    let s = m.system.surface.surface();
+    if !rates {
+        let l = escapade::landscape::surface::analyse_surface(s, m.system.start, m.system.target)
+            .map_err(|e| {
+            let e = theory::plane::PlaneError::from(e);
+            Failure::user(format!("{}: {}: {e}", m.source, e.key()))
+        })?;
+        let r = PlaneSurveyReport::new(m, &l);
+        return ok(if as_json {
+            json::render(&r)
+        } else {
+            plane::survey_table(&r)
+        });
+    }
+    let t = theory::plane::analyse_plane(&m.system)
+        .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
+    let r = PlaneRateReport::new(m, &t);
+    ok(if as_json {
+        json::render(&r)
+    } else {
+        plane::rate_table(&r)
+    })
+}
+
+fn load(file: Option<&Path>, common: &Common) -> Result<Model, Failure> {
+    let overrides = overrides_of(common)?;
     match file {
         Some(f) => Model::load(f, &overrides),
         None => Model::from_text(
@@ -88,7 +125,18 @@ fn run(cli: Cli) -> Result<Done, Failure> {
     let quiet = cli.quiet;
     match cli.command {
         Command::Survey { file, plot, common } => {
-            let m = load(Some(&file), &common)?;
+            let m = match load_study(&file, &common)? {
+                Study::Line(m) => *m,
+                Study::Plane(m) => {
+                    if plot.is_some() {
+                        return Err(Failure::user(format!(
+                            "{}: surface: survey --plot is not yet available for two-coordinate scenarios",
+                            m.source
+                        )));
+                    }
+                    return plane_cmd(&m, false, common.json);
+                }
+            };
             let l = Landscape::analyse(
                 &m.system.potential,
                 m.system.start,
@@ -111,7 +159,10 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             })
         }
         Command::Rate { file, common } => {
-            let m = load(Some(&file), &common)?;
+            let m = match load_study(&file, &common)? {
+                Study::Line(m) => *m,
+                Study::Plane(m) => return plane_cmd(&m, true, common.json),
+            };
             let analysis = theory::analyse_or_running(&m.system)
                 .map_err(|e| Failure::user(format!("{}: {}: {e}", m.source, e.key())))?;
             let t = match analysis {
@@ -176,12 +227,7 @@ fn run(cli: Cli) -> Result<Done, Failure> {
             threads,
             all_columns,
         } => {
-            let overrides = common
-                .set
-                .iter()
-                .map(|s| Override::parse(s))
-                .collect::<Result<Vec<_>, _>>()
-                .map_err(|e| Failure::user(e.to_string()))?;
+            let overrides = overrides_of(&common)?;
             let spec = escapade::scan::Spec {
                 key: vary,
                 from,

@@ -35,3 +35,37 @@ impl Model {
         self.uncertainty
     }
 }
+
+/// A validated two-coordinate study in internal units.
+#[derive(Debug, Clone)]
+pub struct PlaneModel {
+    /// the file the scenario came from (for messages)
+    pub source: String,
+    /// free text
+    pub title: Option<String>,
+    /// unit conversion
+    pub units: UnitSystem,
+    /// the physical system
+    pub system: crate::system::PlaneSystem,
+    /// a short description of the surface for reports
+    pub surface_label: String,
+}
+
+/// A study of either dimension: the dimension is a property of the loaded system.
+#[derive(Debug, Clone)]
+pub enum Study {
+    /// one coordinate (`[potential]`)
+    Line(Box<Model>),
+    /// two coordinates (`[surface]`)
+    Plane(Box<PlaneModel>),
+}
+
+impl Study {
+    /// 1 or 2.
+    pub fn dimension(&self) -> usize {
+        match self {
+            Study::Line(_) => 1,
+            Study::Plane(_) => 2,
+        }
+    }
+}

@@ -316,7 +316,12 @@ fn noisy_tables_of_every_example_keep_their_landscape() {
     let mut checked = 0;
     for entry in std::fs::read_dir("examples").unwrap() {
         let path = entry.unwrap().path();
-        if path.extension().is_none_or(|e| e != "toml") {
+        // two-coordinate examples have no U(x) to tabulate
+        if path.extension().is_none_or(|e| e != "toml")
+            || std::fs::read_to_string(&path)
+                .unwrap()
+                .contains("[surface]")
+        {
             continue;
         }
         let m = Model::load(&path, &[]).unwrap();

@@ -6,6 +6,7 @@
 pub mod csv;
 pub mod json;
 pub mod observe;
+pub mod plane;
 pub mod svg;
 pub mod table;
 pub mod vs_observed;

@@ -10,6 +10,7 @@ pub mod langer;
 pub mod mfpt;
 pub mod periodic;
 pub mod pgh;
+pub mod plane;
 pub mod regime;
 pub mod tst;
 pub mod turnover;

@@ -1,0 +1,490 @@
+//! The rates of a two-coordinate system ([`PlaneSystem`]), kT = 1: the landscape
+//! ([`analyse_surface`]), the harmonic rates over the rate-limiting saddle ([`super::langer`]:
+//! overdamped Langer with D, Langer with inertia and Vineyard's harmonic TST with a mass), the
+//! exact overdamped MFPT from the reactant minimum to the product region on refined
+//! finite-volume grids ([`super::fv2d`]) and its inverse, the transition-path-theory rate from the
+//! committor on the finest of those grids, and the one-coordinate projection along the MEP (what
+//! a 1-D analysis of U(s) along the path would give) through the crate's 1-D theory.
+//!
+//! **Regions.** The product region B is, by default, the half-plane beyond the product minimum
+//! m_B, facing away from the path, {p : (p − m_B)·t_B ≥ 0} with t_B the MEP's unit tangent at its
+//! product end, restricted to the points nearer m_B than any other minimum (so it never reaches
+//! into another basin). On a separable surface U₁(x) + U₂(y) this is x ≥ x_B, where the 2-D MFPT
+//! equals the 1-D MFPT to x_B exactly (the backward equation separates). The reactant region A of
+//! the committor is the mirror rule at the reactant minimum. With `product_radius` r both are
+//! disks of radius r around their minima.
+//!
+//! **MEP projection.** U(s) along the MEP's arc length s, mirrored beyond both ends up to the
+//! first and last saddle (U(−s) = U(s)) so that the end minima are interior minima of a 1-D
+//! profile and each well is whole; D_s = tᵀDt and m_s = tᵀMt with t the MEP's tangent at the
+//! rate-limiting saddle, γ_s = kT/(m_s D_s). The 1-D MFPT goes from s = 0 to the product
+//! minimum's s with the reflecting wall at the mirrored end.
+
+use super::fv2d::{Fv2dError, Generator, Grid, MfptStudy, RefinementStep, mfpt_refined};
+use super::langer::{HarmonicBarrier, LangerError, unstable_overdamped};
+use super::{Rates, TheoryError};
+use crate::landscape::surface::{SurfaceLandscape, SurfaceLandscapeError, analyse_surface};
+use crate::potential::surface::{Point, Sym2};
+use crate::potential::table::{Columns, Table};
+use crate::potential::{AnyPotential, Diffusion};
+use crate::system::{PlaneSystem, System};
+use serde::Serialize;
+use thiserror::Error;
+
+/// Settings of the MFPT refinement: the first grid's spacing (as a fraction of the box's shorter
+/// side), the relative change that ends it, and the cell cap that keeps `rate` fast.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PlaneOptions {
+    /// first grid spacing / shorter box side
+    pub first_spacing: f64,
+    /// refinement ends when T changes by less than this (relative)
+    pub tolerance: f64,
+    /// no grid beyond this many cells
+    pub max_cells: usize,
+}
+
+impl Default for PlaneOptions {
+    fn default() -> Self {
+        // 1/30 of the box, then 61, 123, 247, 495 cells a side (a quarter million at most:
+        // about a second per solve on one core)
+        Self {
+            first_spacing: 1.0 / 30.0,
+            tolerance: 1e-3,
+            max_cells: 300_000,
+        }
+    }
+}
+
+/// Problems of the two-coordinate analysis.
+#[derive(Debug, Error)]
+#[non_exhaustive]
+pub enum PlaneError {
+    /// the landscape
+    #[error(transparent)]
+    Landscape(#[from] SurfaceLandscapeError),
+    /// the harmonic data
+    #[error(transparent)]
+    Harmonic(#[from] LangerError),
+    /// the finite-volume reference
+    #[error(transparent)]
+    Fv(#[from] Fv2dError),
+    /// the 1-D analysis along the MEP
+    #[error("the one-coordinate profile along the MEP: {0}")]
+    Line(#[from] TheoryError),
+}
+
+impl PlaneError {
+    /// The scenario key to look at.
+    pub fn key(&self) -> &'static str {
+        match self {
+            Self::Landscape(SurfaceLandscapeError::BadPoint { which: "start", .. }) => {
+                "states.start"
+            }
+            Self::Landscape(SurfaceLandscapeError::BadPoint { .. }) => "states.target",
+            Self::Landscape(SurfaceLandscapeError::SameMinimum { .. }) => "states.target",
+            Self::Fv(Fv2dError::EmptyRegion { .. }) => "states.product_radius",
+            Self::Harmonic(LangerError::NotPositiveDefinite(_) | LangerError::Friction) => {
+                "particle"
+            }
+            _ => "surface",
+        }
+    }
+}
+
+/// A reactant or product region.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "rule", rename_all = "kebab-case")]
+pub enum Region {
+    /// {p : (p − m)·n ≥ 0}, nearer m than any other minimum
+    HalfPlane {
+        /// the minimum
+        minimum: Point,
+        /// the outward unit normal
+        normal: [f64; 2],
+        /// the other minima (the region stays nearer `minimum` than these)
+        #[serde(skip)]
+        others: Vec<Point>,
+        /// slack for points on the boundary (rounding of cell centres)
+        #[serde(skip)]
+        slack: f64,
+    },
+    /// |p − centre| ≤ radius
+    Disk {
+        /// the minimum
+        centre: Point,
+        /// the radius
+        radius: f64,
+    },
+}
+
+fn dist(a: Point, b: Point) -> f64 {
+    (a[0] - b[0]).hypot(a[1] - b[1])
+}
+
+impl Region {
+    /// Whether `p` lies in the region.
+    pub fn contains(&self, p: Point) -> bool {
+        match self {
+            Region::HalfPlane {
+                minimum,
+                normal,
+                others,
+                slack,
+            } => {
+                let ahead =
+                    (p[0] - minimum[0]) * normal[0] + (p[1] - minimum[1]) * normal[1] >= -slack;
+                let d = dist(p, *minimum);
+                ahead && others.iter().all(|o| dist(p, *o) > d)
+            }
+            Region::Disk { centre, radius } => dist(p, *centre) <= *radius,
+        }
+    }
+}
+
+/// The harmonic data at the reactant and the rate-limiting saddle.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Harmonic {
+    /// H_a (kT per length²)
+    pub reactant_hessian: Sym2,
+    /// H_b
+    pub saddle_hessian: Sym2,
+    /// U_b − U_a (kT)
+    pub barrier: f64,
+    /// the negative eigenvalue of D·H_b (1/time) and its unit eigenvector
+    pub unstable_rate: f64,
+    /// the unstable direction of the overdamped flow
+    pub unstable_direction: [f64; 2],
+}
+
+/// The rates (per time unit); `None` where a formula does not apply (no mass).
+#[derive(Debug, Clone, Copy, Default, Serialize)]
+pub struct PlaneRates {
+    /// overdamped Langer with the tensor D
+    pub langer_overdamped: f64,
+    /// Langer with inertia (mass and friction)
+    pub langer: Option<f64>,
+    /// Vineyard's harmonic TST (mass)
+    pub harmonic_tst: Option<f64>,
+    /// 1 / exact overdamped MFPT
+    pub mfpt: f64,
+    /// TPT rate k_AB = ν_AB / π_A from the committor
+    pub tpt: f64,
+}
+
+/// The MFPT refinement and the regions.
+#[derive(Debug, Clone, Serialize)]
+pub struct PlaneMfpt {
+    /// from the reactant minimum
+    pub start: Point,
+    /// the product region
+    pub product: Region,
+    /// T on the finest grid (time)
+    pub time: f64,
+    /// each grid and its T
+    pub grids: Vec<RefinementStep>,
+    /// relative change of T at the last refinement
+    pub last_change: f64,
+    /// whether that change is below the tolerance
+    pub converged: bool,
+    /// the observed order of convergence, from the last three grids
+    pub observed_order: Option<f64>,
+    /// Richardson's estimate with that order
+    pub extrapolated: Option<f64>,
+    /// the refinement settings
+    pub options: PlaneOptions,
+}
+
+/// The committor and the TPT rate.
+#[derive(Debug, Clone, Serialize)]
+pub struct PlaneTpt {
+    /// the grid (the finest of the MFPT refinement)
+    pub grid: Grid,
+    /// the reactant region A
+    pub reactant: Region,
+    /// ν_AB (1/time)
+    pub reactive_frequency: f64,
+    /// π_A, the probability of having last visited A
+    pub last_in_a: f64,
+    /// k_AB = ν_AB/π_A
+    pub rate: f64,
+}
+
+/// The one-coordinate projection along the MEP.
+#[derive(Debug, Clone, Serialize)]
+pub struct MepProjection {
+    /// the MEP's unit tangent at the rate-limiting saddle
+    pub tangent: [f64; 2],
+    /// D along the path, tᵀDt
+    pub diffusion: f64,
+    /// the mass along the path, tᵀMt
+    pub mass: Option<f64>,
+    /// γ = kT/(m D) along the path
+    pub friction: Option<f64>,
+    /// the MEP's length
+    pub length: f64,
+    /// the 1-D barrier (kT)
+    pub barrier: f64,
+    /// the 1-D exact MFPT from s = 0 to the product minimum (time)
+    pub mfpt: f64,
+    /// the crate's 1-D rates of U(s) with these D, m, γ
+    pub rates: Rates,
+}
+
+/// Everything the analytic half computes on a surface.
+#[derive(Debug, Clone, Serialize)]
+pub struct PlaneTheory {
+    /// the landscape
+    pub landscape: SurfaceLandscape,
+    /// the harmonic data over the rate-limiting saddle
+    pub harmonic: Harmonic,
+    /// the rates
+    pub rates: PlaneRates,
+    /// the MFPT refinement
+    pub mfpt: PlaneMfpt,
+    /// the committor's TPT rate
+    pub tpt: PlaneTpt,
+    /// the projection along the MEP
+    pub mep_1d: MepProjection,
+    /// what a user should know
+    pub warnings: Vec<String>,
+}
+
+/// The default regions (module doc): (A, B).
+pub fn regions(l: &SurfaceLandscape, product_radius: Option<f64>, slack: f64) -> (Region, Region) {
+    let (ma, mb) = (l.minima[l.reactant].position, l.minima[l.product].position);
+    if let Some(radius) = product_radius {
+        return (
+            Region::Disk { centre: ma, radius },
+            Region::Disk { centre: mb, radius },
+        );
+    }
+    let pts = &l.mep.points;
+    let unit = |a: Point, b: Point| {
+        let d = dist(a, b);
+        [(b[0] - a[0]) / d, (b[1] - a[1]) / d]
+    };
+    let n = pts.len();
+    let t_a = unit(pts[1].position, pts[0].position);
+    let t_b = unit(pts[n - 2].position, pts[n - 1].position);
+    let others = |k: usize| {
+        l.minima
+            .iter()
+            .enumerate()
+            .filter(|&(i, _)| i != k)
+            .map(|(_, m)| m.position)
+            .collect::<Vec<_>>()
+    };
+    (
+        Region::HalfPlane {
+            minimum: ma,
+            normal: t_a,
+            others: others(l.reactant),
+            slack,
+        },
+        Region::HalfPlane {
+            minimum: mb,
+            normal: t_b,
+            others: others(l.product),
+            slack,
+        },
+    )
+}
+
+fn inverse(m: Sym2) -> Sym2 {
+    let det = m[0][0] * m[1][1] - m[0][1] * m[1][0];
+    [
+        [m[1][1] / det, -m[0][1] / det],
+        [-m[1][0] / det, m[0][0] / det],
+    ]
+}
+
+/// The surface's rates with the default refinement settings.
+///
+/// # Errors
+/// See [`analyse_plane_with`].
+pub fn analyse_plane(sys: &PlaneSystem) -> Result<PlaneTheory, PlaneError> {
+    analyse_plane_with(sys, &PlaneOptions::default())
+}
+
+/// The landscape, the harmonic rates, the refined MFPT, the TPT rate and the MEP projection.
+///
+/// # Errors
+/// Landscape problems; a reactant or saddle Hessian of the wrong signature; an empty region or
+/// a walled-off start; the 1-D analysis of the MEP profile failing.
+pub fn analyse_plane_with(sys: &PlaneSystem, o: &PlaneOptions) -> Result<PlaneTheory, PlaneError> {
+    let s = sys.surface.surface();
+    let l = analyse_surface(s, sys.start, sys.target)?;
+    let mut warnings = Vec::new();
+    let d = sys.diffusion;
+    let (ma, saddle) = (
+        l.minima[l.reactant].position,
+        l.saddles[l.rate_limiting_saddle].position,
+    );
+    let h = HarmonicBarrier::new(s.hessian(ma), s.hessian(saddle), l.barrier)?;
+    let (lu, dir) = unstable_overdamped(&d, h.saddle)?;
+    let harmonic = Harmonic {
+        reactant_hessian: h.reactant,
+        saddle_hessian: h.saddle,
+        barrier: h.barrier,
+        unstable_rate: lu.abs(),
+        unstable_direction: dir,
+    };
+    if l.steps.len() > 1 {
+        warnings.push(format!(
+            "the path passes {} intermediate minimum(a): the harmonic rates (Langer, harmonic TST) treat the escape as one step over the rate-limiting saddle (the highest, {:.3} kT above the reactant); the MFPT and TPT rates cover the whole path",
+            l.steps.len() - 1,
+            l.barrier
+        ));
+    }
+    let mass = sys.mass.map(|m| [[m[0], 0.0], [0.0, m[1]]]);
+    let (langer, harmonic_tst) = match mass {
+        Some(m) => {
+            // Γ = M⁻¹ζ with ζ = kT D⁻¹ (= γ I when D = kT/(m_i γ))
+            let z = inverse(d.0);
+            let gamma = [
+                [z[0][0] / m[0][0], z[0][1] / m[0][0]],
+                [z[1][0] / m[1][1], z[1][1] / m[1][1]],
+            ];
+            (
+                Some(h.ln_langer(m, gamma)?.exp()),
+                Some(h.ln_vineyard(m)?.exp()),
+            )
+        }
+        None => (None, None),
+    };
+    // the MFPT and the committor
+    let dom = s.domain();
+    let slack = 1e-7 * (dom.x.1 - dom.x.0).hypot(dom.y.1 - dom.y.0);
+    let (reg_a, reg_b) = regions(&l, sys.product_radius, slack);
+    let short = (dom.x.1 - dom.x.0).min(dom.y.1 - dom.y.0);
+    let first = Grid::with_spacing(dom, o.first_spacing * short);
+    let target = |p: Point| reg_b.contains(p);
+    let run = |tol: f64| mfpt_refined(s, &d, ma, &target, first, tol, o.max_cells);
+    let (study, converged): (MfptStudy, bool) = match run(o.tolerance) {
+        Ok(st) => (st, true),
+        Err(Fv2dError::NotConverged { change, .. }) => {
+            warnings.push(format!(
+                "the exact MFPT changed by {change:.1e} (relative) at the last refinement, above the asked {:.0e}: the grid is capped at {} cells to keep this fast",
+                o.tolerance, o.max_cells
+            ));
+            // the same grids again, accepted at the change they reached
+            (run(change * (1.0 + 1e-9))?, false)
+        }
+        Err(e) => return Err(e.into()),
+    };
+    let last = study.steps[study.steps.len() - 1];
+    let fine = Grid::new(dom, last.nx, last.ny);
+    let c = Generator::new(s, &d, fine)?.committor(&|p| reg_a.contains(p), &target)?;
+    let mep_1d = project(sys, &l)?;
+    let rates = PlaneRates {
+        langer_overdamped: h.ln_langer_overdamped(&d)?.exp(),
+        langer,
+        harmonic_tst,
+        mfpt: 1.0 / study.time,
+        tpt: c.rate,
+    };
+    Ok(PlaneTheory {
+        harmonic,
+        rates,
+        mfpt: PlaneMfpt {
+            start: ma,
+            product: reg_b,
+            time: study.time,
+            grids: study.steps,
+            last_change: study.last_change,
+            converged,
+            observed_order: study.observed_order,
+            extrapolated: study.extrapolated,
+            options: *o,
+        },
+        tpt: PlaneTpt {
+            grid: fine,
+            reactant: reg_a,
+            reactive_frequency: c.reactive_frequency,
+            last_in_a: c.last_in_a,
+            rate: c.rate,
+        },
+        mep_1d,
+        landscape: l,
+        warnings,
+    })
+}
+
+/// The 1-D profile U(s) along the MEP and its rates (module doc).
+fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, PlaneError> {
+    let pts = &l.mep.points;
+    let length = pts[pts.len() - 1].s;
+    let first = l.steps.first().map_or(0.5 * length, |st| st.s);
+    let last = l.steps.last().map_or(0.5 * length, |st| st.s);
+    let mut rows: Vec<(f64, f64)> = pts.iter().map(|p| (p.s, p.u)).collect();
+    rows.extend(
+        pts.iter()
+            .filter(|p| p.s > 0.0 && p.s <= first)
+            .map(|p| (-p.s, p.u)),
+    );
+    rows.extend(
+        pts.iter()
+            .filter(|p| p.s < length && p.s >= last)
+            .map(|p| (2.0 * length - p.s, p.u)),
+    );
+    rows.sort_by(|a, b| a.0.total_cmp(&b.0));
+    rows.dedup_by(|a, b| a.0 == b.0);
+    let cols = Columns {
+        x: rows.iter().map(|r| r.0).collect(),
+        u: rows.iter().map(|r| r.1).collect(),
+        ..Columns::default()
+    };
+    let saddle = l.saddles[l.rate_limiting_saddle].position;
+    let t = l.mep.tangent_near(saddle);
+    let d = sys.diffusion.apply(t);
+    let d_s = t[0] * d[0] + t[1] * d[1];
+    let m_s = sys.mass.map(|m| m[0] * t[0] * t[0] + m[1] * t[1] * t[1]);
+    let gamma = m_s.map(|m| 1.0 / (m * d_s));
+    let line = System {
+        potential: AnyPotential::Table(Table::new(&cols, 1.0)),
+        diffusion: Diffusion::Constant(d_s),
+        mass: m_s,
+        friction: gamma,
+        memory_time: None,
+        period: None,
+        start: Some(0.0),
+        target: Some(length),
+        temperature_k: sys.temperature_k,
+    };
+    let r = super::analyse(&line)?;
+    Ok(MepProjection {
+        tangent: t,
+        diffusion: d_s,
+        mass: m_s,
+        friction: gamma,
+        length,
+        barrier: r.landscape.barrier_height,
+        mfpt: r.mfpt.time,
+        rates: r.rates,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::potential::surface::MullerBrown;
+
+    /// On Müller–Brown the default regions hold their own minimum and none of the others (the
+    /// half-plane alone would reach across the box; the nearest-minimum limit keeps it in its
+    /// basin), and a disk holds exactly the points within its radius (exact geometry).
+    #[test]
+    fn regions_stay_in_their_basins() {
+        let s = MullerBrown::new(0.15);
+        let l = analyse_surface(&s, None, None).unwrap();
+        let (a, b) = regions(&l, None, 1e-9);
+        let pos = |k: usize| l.minima[k].position;
+        assert!(a.contains(pos(l.reactant)) && !a.contains(pos(l.product)));
+        assert!(b.contains(pos(l.product)) && !b.contains(pos(l.reactant)));
+        for k in l.intermediate_minima() {
+            assert!(!a.contains(pos(k)) && !b.contains(pos(k)));
+        }
+        let (_, d) = regions(&l, Some(0.1), 0.0);
+        let m = pos(l.product);
+        assert!(d.contains([m[0] + 0.099, m[1]]) && !d.contains([m[0], m[1] + 0.101]));
+    }
+}
