@@ -146,12 +146,12 @@ pub struct MfptOut {
     pub start: Point,
     /// the product region
     pub product_region: Region,
-    /// T on the finest grid (units.time)
-    pub time: f64,
+    /// T on the finest grid (units.time); null when the solve broke down
+    pub time: Option<f64>,
     /// every grid with its T
     pub grids: Vec<RefinementStep>,
-    /// relative change of T at the last refinement
-    pub last_change: f64,
+    /// relative change of T at the last refinement; null when the solve broke down
+    pub last_change: Option<f64>,
     /// whether that is below `tolerance`
     pub converged: bool,
     /// the asked relative change
@@ -214,8 +214,8 @@ pub struct PlaneRateReport {
     pub rates: PlaneRates,
     /// the exact MFPT
     pub mfpt: MfptOut,
-    /// the TPT rate
-    pub tpt: TptOut,
+    /// the TPT rate (null when the solve broke down)
+    pub tpt: Option<TptOut>,
     /// the 1-D projection along the MEP
     pub mep_1d: MepLineOut,
     /// what a user should know
@@ -318,14 +318,14 @@ impl PlaneRateReport {
                 observed_order: t.mfpt.observed_order,
                 extrapolated: t.mfpt.extrapolated,
             },
-            tpt: TptOut {
-                nx: t.tpt.grid.nx,
-                ny: t.tpt.grid.ny,
-                reactant_region: t.tpt.reactant.clone(),
-                reactive_frequency: t.tpt.reactive_frequency,
-                last_in_a: t.tpt.last_in_a,
-                rate: t.tpt.rate,
-            },
+            tpt: t.tpt.as_ref().map(|c| TptOut {
+                nx: c.grid.nx,
+                ny: c.grid.ny,
+                reactant_region: c.reactant.clone(),
+                reactive_frequency: c.reactive_frequency,
+                last_in_a: c.last_in_a,
+                rate: c.rate,
+            }),
             mep_1d: MepLineOut {
                 tangent: p.tangent,
                 diffusion: p.diffusion,
@@ -494,14 +494,10 @@ pub fn rate_table(r: &PlaneRateReport) -> String {
         ),
         (
             "1 / MFPT (exact, overdamped)",
-            Some(rt.mfpt),
+            rt.mfpt,
             "finite volumes, refined grids",
         ),
-        (
-            "TPT (committor)",
-            Some(rt.tpt),
-            "finite volumes, finest grid",
-        ),
+        ("TPT (committor)", rt.tpt, "finite volumes, finest grid"),
     ];
     for (name, v, note) in rows {
         t.add_row(vec![name.to_string(), opt(v), note.to_string()]);
@@ -513,16 +509,18 @@ pub fn rate_table(r: &PlaneRateReport) -> String {
         .iter()
         .map(|g| format!("{}x{}: {}", g.nx, g.ny, num(g.time)))
         .collect();
-    let _ = writeln!(
-        out,
-        "MFPT {} {time} from the reactant to the product region; grids {}; last change {:.1e} ({} {:.0e}, at most {} cells)",
-        num(m.time),
-        grids.join(", "),
-        m.last_change,
-        if m.converged { "below" } else { "above" },
-        m.tolerance,
-        m.max_cells
-    );
+    if let (Some(time_value), Some(change)) = (m.time, m.last_change) {
+        let _ = writeln!(
+            out,
+            "MFPT {} {time} from the reactant to the product region; grids {}; last change {:.1e} ({} {:.0e}, at most {} cells)",
+            num(time_value),
+            grids.join(", "),
+            change,
+            if m.converged { "below" } else { "above" },
+            m.tolerance,
+            m.max_cells
+        );
+    }
     let p = &r.mep_1d;
     let mut t = table();
     t.set_header(vec![

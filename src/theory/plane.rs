@@ -71,6 +71,24 @@ pub enum PlaneError {
     /// the 1-D analysis along the MEP
     #[error("the one-coordinate profile along the MEP: {0}")]
     Line(#[from] TheoryError),
+    /// the product disk holds the reactant minimum
+    #[error(
+        "the product region (a disk of radius {radius} around the product minimum ({bx:.4}, {by:.4})) holds the reactant minimum ({ax:.4}, {ay:.4}): take a radius below {distance:.4}"
+    )]
+    StartInProduct {
+        /// the disk's radius
+        radius: f64,
+        /// the reactant minimum
+        ax: f64,
+        /// its y
+        ay: f64,
+        /// the product minimum
+        bx: f64,
+        /// its y
+        by: f64,
+        /// their distance
+        distance: f64,
+    },
 }
 
 impl PlaneError {
@@ -82,7 +100,8 @@ impl PlaneError {
             }
             Self::Landscape(SurfaceLandscapeError::BadPoint { .. }) => "states.target",
             Self::Landscape(SurfaceLandscapeError::SameMinimum { .. }) => "states.target",
-            Self::Fv(Fv2dError::EmptyRegion { .. }) => "states.product_radius",
+            Self::Fv(Fv2dError::EmptyRegion { .. } | Fv2dError::Overlap)
+            | Self::StartInProduct { .. } => "states.product_radius",
             Self::Harmonic(LangerError::NotPositiveDefinite(_) | LangerError::Friction) => {
                 "particle"
             }
@@ -165,10 +184,10 @@ pub struct PlaneRates {
     pub langer: Option<f64>,
     /// Vineyard's harmonic TST (mass)
     pub harmonic_tst: Option<f64>,
-    /// 1 / exact overdamped MFPT
-    pub mfpt: f64,
-    /// TPT rate k_AB = ν_AB / π_A from the committor
-    pub tpt: f64,
+    /// 1 / exact overdamped MFPT (`None` when the solve broke down)
+    pub mfpt: Option<f64>,
+    /// TPT rate k_AB = ν_AB / π_A from the committor (`None` when the solve broke down)
+    pub tpt: Option<f64>,
 }
 
 /// The MFPT refinement and the regions.
@@ -178,12 +197,12 @@ pub struct PlaneMfpt {
     pub start: Point,
     /// the product region
     pub product: Region,
-    /// T on the finest grid (time)
-    pub time: f64,
-    /// each grid and its T
+    /// T on the finest grid (time); `None` when the solve broke down
+    pub time: Option<f64>,
+    /// each grid and its T (up to a breakdown)
     pub grids: Vec<RefinementStep>,
-    /// relative change of T at the last refinement
-    pub last_change: f64,
+    /// relative change of T at the last refinement; `None` when the solve broke down
+    pub last_change: Option<f64>,
     /// whether that change is below the tolerance
     pub converged: bool,
     /// the observed order of convergence, from the last three grids
@@ -241,8 +260,8 @@ pub struct PlaneTheory {
     pub rates: PlaneRates,
     /// the MFPT refinement
     pub mfpt: PlaneMfpt,
-    /// the committor's TPT rate
-    pub tpt: PlaneTpt,
+    /// the committor's TPT rate (`None` when the MFPT solve broke down)
+    pub tpt: Option<PlaneTpt>,
     /// the projection along the MEP
     pub mep_1d: MepProjection,
     /// what a user should know
@@ -358,30 +377,63 @@ pub fn analyse_plane_with(sys: &PlaneSystem, o: &PlaneOptions) -> Result<PlaneTh
     let (reg_a, reg_b) = regions(&l, sys.product_radius, slack);
     let short = (dom.x.1 - dom.x.0).min(dom.y.1 - dom.y.0);
     let first = Grid::with_spacing(dom, o.first_spacing * short);
+    if reg_b.contains(ma)
+        && let Region::Disk { radius, centre } = reg_b
+    {
+        return Err(PlaneError::StartInProduct {
+            radius,
+            ax: ma[0],
+            ay: ma[1],
+            bx: centre[0],
+            by: centre[1],
+            distance: dist(ma, centre),
+        });
+    }
     let target = |p: Point| reg_b.contains(p);
-    let run = |tol: f64| mfpt_refined(s, &d, ma, &target, first, tol, o.max_cells);
-    let (study, converged): (MfptStudy, bool) = match run(o.tolerance) {
-        Ok(st) => (st, true),
-        Err(Fv2dError::NotConverged { change, .. }) => {
+    let refined = mfpt_refined(s, &d, ma, &target, first, o.tolerance, o.max_cells);
+    let mut broken_steps = Vec::new();
+    let (study, converged): (Option<MfptStudy>, bool) = match refined {
+        Ok(st) => (Some(st), true),
+        Err(Fv2dError::NotConverged { change, study, .. }) => {
             warnings.push(format!(
                 "the exact MFPT changed by {change:.1e} (relative) at the last refinement, above the asked {:.0e}: the grid is capped at {} cells to keep this fast",
                 o.tolerance, o.max_cells
             ));
-            // the same grids again, accepted at the change they reached
-            (run(change * (1.0 + 1e-9))?, false)
+            (Some(*study), false)
+        }
+        Err(e @ Fv2dError::Breakdown { .. }) => {
+            warnings.push(breakdown_warning(&e, l.barrier));
+            if let Fv2dError::Breakdown { steps, .. } = e {
+                broken_steps = steps;
+            }
+            (None, false)
         }
         Err(e) => return Err(e.into()),
     };
-    let last = study.steps[study.steps.len() - 1];
-    let fine = Grid::new(dom, last.nx, last.ny);
-    let c = Generator::new(s, &d, fine)?.committor(&|p| reg_a.contains(p), &target)?;
+    let (steps, tpt) = match &study {
+        Some(st) => {
+            let last = st.steps[st.steps.len() - 1];
+            let fine = Grid::new(dom, last.nx, last.ny);
+            let c = Generator::new(s, &d, fine)?.committor(&|p| reg_a.contains(p), &target);
+            let c = match c {
+                Ok(c) => Some(c),
+                Err(e @ Fv2dError::Solver(_)) => {
+                    warnings.push(breakdown_warning(&e, l.barrier));
+                    None
+                }
+                Err(e) => return Err(e.into()),
+            };
+            (st.steps.clone(), c.map(|c| (fine, c)))
+        }
+        None => (broken_steps, None),
+    };
     let mep_1d = project(sys, &l)?;
     let rates = PlaneRates {
         langer_overdamped: h.ln_langer_overdamped(&d)?.exp(),
         langer,
         harmonic_tst,
-        mfpt: 1.0 / study.time,
-        tpt: c.rate,
+        mfpt: study.as_ref().map(|st| 1.0 / st.time),
+        tpt: tpt.as_ref().map(|(_, c)| c.rate),
     };
     Ok(PlaneTheory {
         harmonic,
@@ -389,25 +441,32 @@ pub fn analyse_plane_with(sys: &PlaneSystem, o: &PlaneOptions) -> Result<PlaneTh
         mfpt: PlaneMfpt {
             start: ma,
             product: reg_b,
-            time: study.time,
-            grids: study.steps,
-            last_change: study.last_change,
+            time: study.as_ref().map(|st| st.time),
+            grids: steps,
+            last_change: study.as_ref().map(|st| st.last_change),
             converged,
-            observed_order: study.observed_order,
-            extrapolated: study.extrapolated,
+            observed_order: study.as_ref().and_then(|st| st.observed_order),
+            extrapolated: study.as_ref().and_then(|st| st.extrapolated),
             options: *o,
         },
-        tpt: PlaneTpt {
-            grid: fine,
+        tpt: tpt.map(|(grid, c)| PlaneTpt {
+            grid,
             reactant: reg_a,
             reactive_frequency: c.reactive_frequency,
             last_in_a: c.last_in_a,
             rate: c.rate,
-        },
+        }),
         mep_1d,
         landscape: l,
         warnings,
     })
+}
+
+/// The warning for an MFPT or committor solve that lost its accuracy.
+fn breakdown_warning(e: &Fv2dError, barrier: f64) -> String {
+    format!(
+        "{e}: the barrier of {barrier:.1} kT is too high for the finite-volume solve (its condition number grows like e^(barrier)/h^2), so the exact MFPT and TPT rates are left out; the harmonic rates and the MEP's 1-D rates stand"
+    )
 }
 
 /// The 1-D profile U(s) along the MEP and its rates (module doc).
@@ -467,7 +526,7 @@ fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, Pla
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::potential::surface::MullerBrown;
+    use crate::potential::surface::{DiffusionTensor, MullerBrown};
 
     /// On Müller–Brown the default regions hold their own minimum and none of the others (the
     /// half-plane alone would reach across the box; the nearest-minimum limit keeps it in its
@@ -486,5 +545,44 @@ mod tests {
         let (_, d) = regions(&l, Some(0.1), 0.0);
         let m = pos(l.product);
         assert!(d.contains([m[0] + 0.099, m[1]]) && !d.contains([m[0], m[1] + 0.101]));
+    }
+
+    /// Refinement stopped by the cell cap keeps every grid it solved and reports the finest:
+    /// on Müller–Brown (scale 0.05, D = diag(1, 0.1), first spacing 0.07 of the box, capped at
+    /// the third grid) the relative changes go 0.017, 0.023 (not monotone), so accepting the
+    /// result at the last change would stop one grid early. Exact bookkeeping, no tolerance.
+    #[test]
+    fn capped_refinement_keeps_the_finest_grid() {
+        let sys = PlaneSystem {
+            surface: crate::system::PlaneSurface::MullerBrown(MullerBrown::new(0.05)),
+            diffusion: DiffusionTensor::diagonal(1.0, 0.1),
+            mass: None,
+            friction: None,
+            start: None,
+            target: None,
+            product_radius: None,
+            temperature_k: None,
+        };
+        let dom = sys.surface.surface().domain();
+        let short = (dom.x.1 - dom.x.0).min(dom.y.1 - dom.y.0);
+        let third = Grid::with_spacing(dom, 0.07 * short).refined().refined();
+        let o = PlaneOptions {
+            first_spacing: 0.07,
+            tolerance: 1e-3,
+            max_cells: third.cells(),
+        };
+        let t = analyse_plane_with(&sys, &o).unwrap();
+        let g = &t.mfpt.grids;
+        let nx: Vec<usize> = g.iter().map(|s| s.nx).collect();
+        assert_eq!(nx, [15, 31, 63]);
+        let (prev, last) = (g[g.len() - 2], g[g.len() - 1]);
+        assert!(!t.mfpt.converged);
+        assert_eq!(t.mfpt.time, Some(last.time));
+        assert_eq!(
+            t.mfpt.last_change,
+            Some((last.time - prev.time).abs() / last.time)
+        );
+        assert_eq!(t.tpt.unwrap().grid.nx, 63);
+        assert!(t.warnings.iter().any(|w| w.contains("capped")));
     }
 }
