@@ -413,3 +413,35 @@ fn high_barrier_mfpt_breakdown_is_a_warning() {
         assert!(w.contains("kT") && w.contains("MFPT"), "{w}");
     }
 }
+
+/// The separable U = 5 (x² − 1)² + 2y² on [−2, 2]², mass [1, 4], friction 3 (so D = 1/(mγ) =
+/// diag(1/3, 1/12)): the MEP is the x axis, so the 1-D MFPT along it is the 1-D MFPT of
+/// 5 (x² − 1)² with D = 1/3, which the 2-D MFPT equals exactly for the half-plane product
+/// region (the backward equation separates; module doc of theory::plane). 1e-3 is the
+/// refinement's tolerance.
+#[test]
+fn mep_projection_equals_two_dimensional_on_a_separable_surface() {
+    let p = scenario(
+        "separable_mass",
+        "[surface]\nexpr = \"5*(x^2 - 1)^2 + 2*y^2\"\nx = [-2, 2]\ny = [-2, 2]\n[particle]\nmass = [1, 4]\nfriction = 3.0\n",
+        &[],
+    );
+    let j = json(&["rate", p.to_str().unwrap(), "--json"]);
+    let (line, plane) = (f(&j["mep_1d"]["mfpt_time"]), f(&j["mfpt"]["time"]));
+    assert!(rel(line, plane) < 1e-3, "{line} {plane}");
+}
+
+/// U = 5 ((x + y)²/2 − 1)² + (x − y)²: the MEP runs along (1, 1)/√2. With mass [1, 4] and
+/// friction 3 the friction matrix is ζ = γM, so ζ_s/m_s = γ = 3 along any direction (exact
+/// algebra; 1e-9 allows the tangent's rounding).
+#[test]
+fn mep_friction_is_the_scalar_friction_rate() {
+    let p = scenario(
+        "diagonal_mass",
+        "[surface]\nexpr = \"5*((x + y)^2/2 - 1)^2 + (x - y)^2\"\nx = [-2, 2]\ny = [-2, 2]\n[particle]\nmass = [1, 4]\nfriction = 3.0\n",
+        &[],
+    );
+    let j = json(&["rate", p.to_str().unwrap(), "--json"]);
+    let g = f(&j["mep_1d"]["friction"]);
+    assert!((g - 3.0).abs() < 1e-9, "{}", j["mep_1d"]);
+}

@@ -14,17 +14,23 @@
 //! the committor is the mirror rule at the reactant minimum. With `product_radius` r both are
 //! disks of radius r around their minima.
 //!
-//! **MEP projection.** U(s) along the MEP's arc length s, mirrored beyond both ends up to the
-//! first and last saddle (U(−s) = U(s)) so that the end minima are interior minima of a 1-D
-//! profile and each well is whole; D_s = tᵀDt and m_s = tᵀMt with t the MEP's tangent at the
-//! rate-limiting saddle, γ_s = kT/(m_s D_s). The 1-D MFPT goes from s = 0 to the product
-//! minimum's s with the reflecting wall at the mirrored end.
+//! **MEP projection.** U(s) along the MEP's arc length s, continued beyond each end minimum
+//! along the path's end tangent on the real surface, out to the box wall, a forbidden point or
+//! the first point where U falls (a ridge: the profile never enters another basin), so that the
+//! end minima are interior minima of a 1-D profile and each well is whole. On a separable
+//! surface U₁(x) + U₂(y) this is U₁ on the whole box, and the 1-D MFPT equals the 2-D one.
+//! Where an end minimum has no room (it sits on the wall or the next step falls) the profile is
+//! mirrored there up to the first or last saddle (U(−s) = U(s)). One embedding for the
+//! transport coefficients, with t the MEP's tangent at the rate-limiting saddle: the friction
+//! matrix ζ = kT D⁻¹, ζ_s = tᵀζt, D_s = kT/ζ_s, m_s = tᵀMt and γ_s = ζ_s/m_s (= γ for one
+//! friction rate, D = kT/(m_i γ)). The 1-D MFPT goes from s = 0 to the product minimum's s
+//! with reflecting walls at the profile's ends.
 
 use super::fv2d::{Fv2dError, Generator, Grid, MfptStudy, RefinementStep, mfpt_refined};
 use super::langer::{HarmonicBarrier, LangerError, unstable_overdamped};
 use super::{Rates, TheoryError};
 use crate::landscape::surface::{SurfaceLandscape, SurfaceLandscapeError, analyse_surface};
-use crate::potential::surface::{Point, Sym2};
+use crate::potential::surface::{DiffusionTensor, Point, Surface, Sym2};
 use crate::potential::table::{Columns, Table};
 use crate::potential::{AnyPotential, Diffusion};
 use crate::system::{PlaneSystem, System};
@@ -233,11 +239,11 @@ pub struct PlaneTpt {
 pub struct MepProjection {
     /// the MEP's unit tangent at the rate-limiting saddle
     pub tangent: [f64; 2],
-    /// D along the path, tᵀDt
+    /// D along the path, kT/ζ_s with ζ_s = tᵀζt, ζ = kT D⁻¹
     pub diffusion: f64,
     /// the mass along the path, tᵀMt
     pub mass: Option<f64>,
-    /// γ = kT/(m D) along the path
+    /// γ = ζ_s/m_s along the path
     pub friction: Option<f64>,
     /// the MEP's length
     pub length: f64,
@@ -469,23 +475,73 @@ fn breakdown_warning(e: &Fv2dError, barrier: f64) -> String {
     )
 }
 
+/// U along the ray `from` + r·`dir`, r = `step`, 2 `step`, … and the point on the box wall,
+/// while the point is allowed, U is finite and U does not fall (a ridge ends the well): the
+/// (r, U) pairs. Empty when the first step already fails.
+fn ray(s: &dyn Surface, from: Point, dir: [f64; 2], step: f64) -> Vec<(f64, f64)> {
+    let dom = s.domain();
+    let reach = |p: f64, d: f64, (lo, hi): (f64, f64)| match d {
+        d if d > 0.0 => (hi - p) / d,
+        d if d < 0.0 => (lo - p) / d,
+        _ => f64::INFINITY,
+    };
+    let wall = reach(from[0], dir[0], dom.x).min(reach(from[1], dir[1], dom.y));
+    let mut out: Vec<(f64, f64)> = Vec::new();
+    let mut prev = s.u(from);
+    let mut r = step;
+    loop {
+        // the last point exactly on the wall, none closer to it than a tenth of a step
+        let at = if r > wall - 0.1 * step { wall } else { r };
+        let p = [from[0] + at * dir[0], from[1] + at * dir[1]];
+        let u = s.u(p);
+        if at <= 0.0 || !s.allowed(p) || !u.is_finite() || u < prev {
+            return out;
+        }
+        out.push((at, u));
+        if at == wall {
+            return out;
+        }
+        prev = u;
+        r += step;
+    }
+}
+
 /// The 1-D profile U(s) along the MEP and its rates (module doc).
 fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, PlaneError> {
+    let surface = sys.surface.surface();
     let pts = &l.mep.points;
-    let length = pts[pts.len() - 1].s;
+    let n = pts.len();
+    let length = pts[n - 1].s;
+    let step = length / (n - 1) as f64;
     let first = l.steps.first().map_or(0.5 * length, |st| st.s);
     let last = l.steps.last().map_or(0.5 * length, |st| st.s);
+    let unit = |a: Point, b: Point| {
+        let d = dist(a, b);
+        [(b[0] - a[0]) / d, (b[1] - a[1]) / d]
+    };
+    let (pa, pb) = (pts[0].position, pts[n - 1].position);
+    let before = ray(surface, pa, unit(pts[1].position, pa), step);
+    let after = ray(surface, pb, unit(pts[n - 2].position, pb), step);
     let mut rows: Vec<(f64, f64)> = pts.iter().map(|p| (p.s, p.u)).collect();
-    rows.extend(
-        pts.iter()
-            .filter(|p| p.s > 0.0 && p.s <= first)
-            .map(|p| (-p.s, p.u)),
-    );
-    rows.extend(
-        pts.iter()
-            .filter(|p| p.s < length && p.s >= last)
-            .map(|p| (2.0 * length - p.s, p.u)),
-    );
+    // the real surface beyond each end where there is room, else the mirror image
+    if before.is_empty() {
+        rows.extend(
+            pts.iter()
+                .filter(|p| p.s > 0.0 && p.s <= first)
+                .map(|p| (-p.s, p.u)),
+        );
+    } else {
+        rows.extend(before.iter().map(|&(r, u)| (-r, u)));
+    }
+    if after.is_empty() {
+        rows.extend(
+            pts.iter()
+                .filter(|p| p.s < length && p.s >= last)
+                .map(|p| (2.0 * length - p.s, p.u)),
+        );
+    } else {
+        rows.extend(after.iter().map(|&(r, u)| (length + r, u)));
+    }
     rows.sort_by(|a, b| a.0.total_cmp(&b.0));
     rows.dedup_by(|a, b| a.0 == b.0);
     let cols = Columns {
@@ -495,10 +551,12 @@ fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, Pla
     };
     let saddle = l.saddles[l.rate_limiting_saddle].position;
     let t = l.mep.tangent_near(saddle);
-    let d = sys.diffusion.apply(t);
-    let d_s = t[0] * d[0] + t[1] * d[1];
+    // one embedding: the friction matrix ζ = kT D⁻¹ and the mass M projected on t, D = kT/ζ_s
+    let zeta = DiffusionTensor(inverse(sys.diffusion.0)).apply(t);
+    let zeta_s = t[0] * zeta[0] + t[1] * zeta[1];
+    let d_s = 1.0 / zeta_s;
     let m_s = sys.mass.map(|m| m[0] * t[0] * t[0] + m[1] * t[1] * t[1]);
-    let gamma = m_s.map(|m| 1.0 / (m * d_s));
+    let gamma = m_s.map(|m| zeta_s / m);
     let line = System {
         potential: AnyPotential::Table(Table::new(&cols, 1.0)),
         diffusion: Diffusion::Constant(d_s),
