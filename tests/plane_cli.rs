@@ -445,3 +445,33 @@ fn mep_friction_is_the_scalar_friction_rate() {
     let g = f(&j["mep_1d"]["friction"]);
     assert!((g - 3.0).abs() < 1e-9, "{}", j["mep_1d"]);
 }
+
+/// A grid table with absent nodes: `survey` and `rate` warn how many (they forbid the cells
+/// around them, which a user may not mean); the same nodes listed with U = inf draw no warning
+/// (our own behaviour, no source).
+#[test]
+fn absent_grid_nodes_are_warned_about() {
+    for (name, listed) in [("grid_absent", false), ("grid_inf", true)] {
+        let mut rows = String::from("x,y,U\n");
+        for i in 0..=30 {
+            for k in 0..=20 {
+                let (x, y) = (-1.5 + 0.1 * f64::from(i), -1.0 + 0.1 * f64::from(k));
+                // two corner nodes far from the path
+                let corner = (i == 0 && k == 0) || (i == 30 && k == 20);
+                let u = 4.0 * (x * x - 1.0) * (x * x - 1.0) + 2.0 * y * y;
+                match (corner, listed) {
+                    (true, false) => {}
+                    (true, true) => rows.push_str(&format!("{x},{y},inf\n")),
+                    _ => rows.push_str(&format!("{x},{y},{u}\n")),
+                }
+            }
+        }
+        let text = "[surface]\ntable = \"grid.csv\"\n[particle]\ndiffusion = 1.0\n";
+        let p = scenario(name, text, &[("grid.csv", &rows)]);
+        for cmd in ["survey", "rate"] {
+            let j = json(&[cmd, p.to_str().unwrap(), "--json"]);
+            let w = j["warnings"].to_string();
+            assert_eq!(w.contains("2 nodes absent"), !listed, "{name} {cmd}: {w}");
+        }
+    }
+}

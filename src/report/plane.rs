@@ -124,6 +124,9 @@ pub struct PlaneSurveyReport {
     pub header: PlaneHeader,
     /// the landscape
     pub landscape: PlaneLandscapeOut,
+    /// what a user should know about the surface (left out when empty)
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// The harmonic data over the rate-limiting saddle.
@@ -285,6 +288,7 @@ impl PlaneSurveyReport {
         Self {
             header: header(m),
             landscape: landscape(m, l),
+            warnings: crate::theory::plane::surface_warnings(&m.system),
         }
     }
 }
@@ -457,6 +461,9 @@ pub fn survey_table(r: &PlaneSurveyReport) -> String {
     let mut out = String::new();
     head(&mut out, &r.header);
     landscape_table(&mut out, &r.landscape, &r.header.units);
+    for w in &r.warnings {
+        let _ = writeln!(out, "warning: {w}");
+    }
     out
 }
 

@@ -33,7 +33,7 @@ use crate::landscape::surface::{SurfaceLandscape, SurfaceLandscapeError, analyse
 use crate::potential::surface::{DiffusionTensor, Point, Surface, Sym2};
 use crate::potential::table::{Columns, Table};
 use crate::potential::{AnyPotential, Diffusion};
-use crate::system::{PlaneSystem, System};
+use crate::system::{PlaneSurface, PlaneSystem, System};
 use serde::Serialize;
 use thiserror::Error;
 
@@ -274,6 +274,17 @@ pub struct PlaneTheory {
     pub warnings: Vec<String>,
 }
 
+/// What a user should know about the surface itself: absent nodes of a grid table.
+pub fn surface_warnings(sys: &PlaneSystem) -> Vec<String> {
+    match &sys.surface {
+        PlaneSurface::Grid(g) if g.absent_nodes() > 0 => vec![format!(
+            "{} nodes absent: the cells around them are forbidden; list forbidden nodes with U = inf to say so on purpose",
+            g.absent_nodes()
+        )],
+        _ => Vec::new(),
+    }
+}
+
 /// The default regions (module doc): (A, B).
 pub fn regions(l: &SurfaceLandscape, product_radius: Option<f64>, slack: f64) -> (Region, Region) {
     let (ma, mb) = (l.minima[l.reactant].position, l.minima[l.product].position);
@@ -339,7 +350,7 @@ pub fn analyse_plane(sys: &PlaneSystem) -> Result<PlaneTheory, PlaneError> {
 pub fn analyse_plane_with(sys: &PlaneSystem, o: &PlaneOptions) -> Result<PlaneTheory, PlaneError> {
     let s = sys.surface.surface();
     let l = analyse_surface(s, sys.start, sys.target)?;
-    let mut warnings = Vec::new();
+    let mut warnings = surface_warnings(sys);
     let d = sys.diffusion;
     let (ma, saddle) = (
         l.minima[l.reactant].position,
