@@ -388,3 +388,90 @@ fn units_overrides_and_disk_regions() {
     let Study::Plane(m) = s else { unreachable!() };
     assert_eq!(m.system.diffusion.0, [[1.5, 0.0], [0.0, 1.5]]);
 }
+
+/// The quartic double well U = A (x² − 1)² + 2y² on [−1.5, 1.5] × [−1, 1], D = 1.
+fn high_barrier(a: f64) -> String {
+    format!(
+        "[surface]\nexpr = \"A*(x^2 - 1)^2 + 2*y^2\"\nx = [-1.5, 1.5]\ny = [-1, 1]\n[surface.constants]\nA = {a}\n[particle]\ndiffusion = 1.0\n"
+    )
+}
+
+/// At barriers of 30 and 40 kT the MFPT system is too ill-conditioned for the sparse solve
+/// (condition ~ e^{ΔU}/h²): `rate` still succeeds, reports the breakdown as a warning naming the
+/// barrier, leaves the MFPT and TPT rates null and keeps the harmonic and MEP rates (our own
+/// behaviour, no source).
+#[test]
+fn high_barrier_mfpt_breakdown_is_a_warning() {
+    for a in [30.0, 40.0] {
+        let p = scenario(&format!("high_barrier_{a}"), &high_barrier(a), &[]);
+        let j = json(&["rate", p.to_str().unwrap(), "--json"]);
+        let r = &j["rates"];
+        assert!(r["mfpt"].is_null() && r["tpt"].is_null(), "A = {a}: {r}");
+        assert!(f(&r["langer_overdamped"]) > 0.0, "{r}");
+        assert!(f(&j["mep_1d"]["rates"]["mfpt"]) > 0.0, "{}", j["mep_1d"]);
+        let w = j["warnings"].to_string();
+        assert!(w.contains("kT") && w.contains("MFPT"), "{w}");
+    }
+}
+
+/// The separable U = 5 (x² − 1)² + 2y² on [−2, 2]², mass [1, 4], friction 3 (so D = 1/(mγ) =
+/// diag(1/3, 1/12)): the MEP is the x axis, so the 1-D MFPT along it is the 1-D MFPT of
+/// 5 (x² − 1)² with D = 1/3, which the 2-D MFPT equals exactly for the half-plane product
+/// region (the backward equation separates; module doc of theory::plane). 1e-3 is the
+/// refinement's tolerance.
+#[test]
+fn mep_projection_equals_two_dimensional_on_a_separable_surface() {
+    let p = scenario(
+        "separable_mass",
+        "[surface]\nexpr = \"5*(x^2 - 1)^2 + 2*y^2\"\nx = [-2, 2]\ny = [-2, 2]\n[particle]\nmass = [1, 4]\nfriction = 3.0\n",
+        &[],
+    );
+    let j = json(&["rate", p.to_str().unwrap(), "--json"]);
+    let (line, plane) = (f(&j["mep_1d"]["mfpt_time"]), f(&j["mfpt"]["time"]));
+    assert!(rel(line, plane) < 1e-3, "{line} {plane}");
+}
+
+/// U = 5 ((x + y)²/2 − 1)² + (x − y)²: the MEP runs along (1, 1)/√2. With mass [1, 4] and
+/// friction 3 the friction matrix is ζ = γM, so ζ_s/m_s = γ = 3 along any direction (exact
+/// algebra; 1e-9 allows the tangent's rounding).
+#[test]
+fn mep_friction_is_the_scalar_friction_rate() {
+    let p = scenario(
+        "diagonal_mass",
+        "[surface]\nexpr = \"5*((x + y)^2/2 - 1)^2 + (x - y)^2\"\nx = [-2, 2]\ny = [-2, 2]\n[particle]\nmass = [1, 4]\nfriction = 3.0\n",
+        &[],
+    );
+    let j = json(&["rate", p.to_str().unwrap(), "--json"]);
+    let g = f(&j["mep_1d"]["friction"]);
+    assert!((g - 3.0).abs() < 1e-9, "{}", j["mep_1d"]);
+}
+
+/// A grid table with absent nodes: `survey` and `rate` warn how many (they forbid the cells
+/// around them, which a user may not mean); the same nodes listed with U = inf draw no warning
+/// (our own behaviour, no source).
+#[test]
+fn absent_grid_nodes_are_warned_about() {
+    for (name, listed) in [("grid_absent", false), ("grid_inf", true)] {
+        let mut rows = String::from("x,y,U\n");
+        for i in 0..=30 {
+            for k in 0..=20 {
+                let (x, y) = (-1.5 + 0.1 * f64::from(i), -1.0 + 0.1 * f64::from(k));
+                // two corner nodes far from the path
+                let corner = (i == 0 && k == 0) || (i == 30 && k == 20);
+                let u = 4.0 * (x * x - 1.0) * (x * x - 1.0) + 2.0 * y * y;
+                match (corner, listed) {
+                    (true, false) => {}
+                    (true, true) => rows.push_str(&format!("{x},{y},inf\n")),
+                    _ => rows.push_str(&format!("{x},{y},{u}\n")),
+                }
+            }
+        }
+        let text = "[surface]\ntable = \"grid.csv\"\n[particle]\ndiffusion = 1.0\n";
+        let p = scenario(name, text, &[("grid.csv", &rows)]);
+        for cmd in ["survey", "rate"] {
+            let j = json(&[cmd, p.to_str().unwrap(), "--json"]);
+            let w = j["warnings"].to_string();
+            assert_eq!(w.contains("2 nodes absent"), !listed, "{name} {cmd}: {w}");
+        }
+    }
+}

@@ -200,6 +200,8 @@ pub struct GridSurface {
     /// per cell (index i + (nx−1)·j): all four corners finite
     cell_ok: Vec<bool>,
     sigma_u: Option<Vec<f64>>,
+    /// nodes no row lists (forbidden like U = +inf, but perhaps not on purpose)
+    absent: usize,
 }
 
 /// Derivatives at the knots of the interpolant of (x, f) over each unbroken stretch of finite f
@@ -344,6 +346,7 @@ impl GridSurface {
             u[k] = scale * r.u;
             sigma[k] = r.sigma_u.map_or(f64::NAN, |s| scale * s);
         }
+        let absent = nx * ny - first_line.len();
         let cell_ok: Vec<bool> = (0..(nx - 1) * (ny - 1))
             .map(|c| {
                 let (i, j) = (c % (nx - 1), c / (nx - 1));
@@ -389,6 +392,7 @@ impl GridSurface {
             nodes,
             cell_ok,
             sigma_u: with_sigma.then_some(sigma),
+            absent,
         })
     }
 
@@ -407,6 +411,10 @@ impl GridSurface {
     /// The grid's y values.
     pub fn ys(&self) -> &[f64] {
         &self.ys
+    }
+    /// The number of nodes that no row lists.
+    pub fn absent_nodes(&self) -> usize {
+        self.absent
     }
     /// U at node (i, j) in kT (+inf if missing).
     pub fn node_u(&self, i: usize, j: usize) -> f64 {

@@ -124,6 +124,9 @@ pub struct PlaneSurveyReport {
     pub header: PlaneHeader,
     /// the landscape
     pub landscape: PlaneLandscapeOut,
+    /// what a user should know about the surface (left out when empty)
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// The harmonic data over the rate-limiting saddle.
@@ -146,12 +149,12 @@ pub struct MfptOut {
     pub start: Point,
     /// the product region
     pub product_region: Region,
-    /// T on the finest grid (units.time)
-    pub time: f64,
+    /// T on the finest grid (units.time); null when the solve broke down
+    pub time: Option<f64>,
     /// every grid with its T
     pub grids: Vec<RefinementStep>,
-    /// relative change of T at the last refinement
-    pub last_change: f64,
+    /// relative change of T at the last refinement; null when the solve broke down
+    pub last_change: Option<f64>,
     /// whether that is below `tolerance`
     pub converged: bool,
     /// the asked relative change
@@ -214,8 +217,8 @@ pub struct PlaneRateReport {
     pub rates: PlaneRates,
     /// the exact MFPT
     pub mfpt: MfptOut,
-    /// the TPT rate
-    pub tpt: TptOut,
+    /// the TPT rate (null when the solve broke down)
+    pub tpt: Option<TptOut>,
     /// the 1-D projection along the MEP
     pub mep_1d: MepLineOut,
     /// what a user should know
@@ -285,6 +288,7 @@ impl PlaneSurveyReport {
         Self {
             header: header(m),
             landscape: landscape(m, l),
+            warnings: crate::theory::plane::surface_warnings(&m.system),
         }
     }
 }
@@ -318,14 +322,14 @@ impl PlaneRateReport {
                 observed_order: t.mfpt.observed_order,
                 extrapolated: t.mfpt.extrapolated,
             },
-            tpt: TptOut {
-                nx: t.tpt.grid.nx,
-                ny: t.tpt.grid.ny,
-                reactant_region: t.tpt.reactant.clone(),
-                reactive_frequency: t.tpt.reactive_frequency,
-                last_in_a: t.tpt.last_in_a,
-                rate: t.tpt.rate,
-            },
+            tpt: t.tpt.as_ref().map(|c| TptOut {
+                nx: c.grid.nx,
+                ny: c.grid.ny,
+                reactant_region: c.reactant.clone(),
+                reactive_frequency: c.reactive_frequency,
+                last_in_a: c.last_in_a,
+                rate: c.rate,
+            }),
             mep_1d: MepLineOut {
                 tangent: p.tangent,
                 diffusion: p.diffusion,
@@ -457,6 +461,9 @@ pub fn survey_table(r: &PlaneSurveyReport) -> String {
     let mut out = String::new();
     head(&mut out, &r.header);
     landscape_table(&mut out, &r.landscape, &r.header.units);
+    for w in &r.warnings {
+        let _ = writeln!(out, "warning: {w}");
+    }
     out
 }
 
@@ -494,14 +501,10 @@ pub fn rate_table(r: &PlaneRateReport) -> String {
         ),
         (
             "1 / MFPT (exact, overdamped)",
-            Some(rt.mfpt),
+            rt.mfpt,
             "finite volumes, refined grids",
         ),
-        (
-            "TPT (committor)",
-            Some(rt.tpt),
-            "finite volumes, finest grid",
-        ),
+        ("TPT (committor)", rt.tpt, "finite volumes, finest grid"),
     ];
     for (name, v, note) in rows {
         t.add_row(vec![name.to_string(), opt(v), note.to_string()]);
@@ -513,16 +516,18 @@ pub fn rate_table(r: &PlaneRateReport) -> String {
         .iter()
         .map(|g| format!("{}x{}: {}", g.nx, g.ny, num(g.time)))
         .collect();
-    let _ = writeln!(
-        out,
-        "MFPT {} {time} from the reactant to the product region; grids {}; last change {:.1e} ({} {:.0e}, at most {} cells)",
-        num(m.time),
-        grids.join(", "),
-        m.last_change,
-        if m.converged { "below" } else { "above" },
-        m.tolerance,
-        m.max_cells
-    );
+    if let (Some(time_value), Some(change)) = (m.time, m.last_change) {
+        let _ = writeln!(
+            out,
+            "MFPT {} {time} from the reactant to the product region; grids {}; last change {:.1e} ({} {:.0e}, at most {} cells)",
+            num(time_value),
+            grids.join(", "),
+            change,
+            if m.converged { "below" } else { "above" },
+            m.tolerance,
+            m.max_cells
+        );
+    }
     let p = &r.mep_1d;
     let mut t = table();
     t.set_header(vec![

@@ -109,8 +109,29 @@ pub enum Fv2dError {
         tol: f64,
         /// the cell limit
         max_cells: usize,
+        /// every grid solved, the finest last (what the caller may accept at the cap)
+        study: Box<MfptStudy>,
+    },
+    /// the MFPT solve lost all accuracy: a failed factorisation, a T that is not a positive
+    /// number, or T changing by more than itself between two grids (at high barriers the
+    /// symmetric system's condition number grows like e^{ΔU}/h²)
+    #[error("the MFPT solve broke down on the {nx} x {ny} grid: {reason}")]
+    Breakdown {
+        /// what went wrong
+        reason: String,
+        /// cells along x of the grid where it happened
+        nx: usize,
+        /// cells along y
+        ny: usize,
+        /// the grids solved before (their values are not trusted either)
+        steps: Vec<RefinementStep>,
     },
 }
+
+/// A relative change of T between two grids above this is no discretisation error but a solve
+/// that lost its accuracy (the refinement starts at 1/30 of the box, where real changes are
+/// a few per cent).
+pub const BREAKDOWN_CHANGE: f64 = 1.0;
 
 /// A cell-centred grid of nx × ny cells on a box.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -725,13 +746,30 @@ pub fn mfpt_refined(
     let mut steps: Vec<RefinementStep> = Vec::new();
     let mut grid = first;
     loop {
-        let field = Generator::new(surface, d, grid)?.mfpt(target)?;
+        let breakdown = |reason: String, steps: Vec<RefinementStep>| Fv2dError::Breakdown {
+            reason,
+            nx: grid.nx,
+            ny: grid.ny,
+            steps,
+        };
+        let field = match Generator::new(surface, d, grid)?.mfpt(target) {
+            Err(Fv2dError::Solver(e)) => {
+                return Err(breakdown(
+                    format!("the sparse Cholesky factorisation failed ({e})"),
+                    steps,
+                ));
+            }
+            r => r?,
+        };
         let time = field.at(start);
-        if !time.is_finite() {
+        if time == f64::INFINITY {
             return Err(Fv2dError::Start {
                 x: start[0],
                 y: start[1],
             });
+        }
+        if !(time > 0.0 && time.is_finite()) {
+            return Err(breakdown(format!("T = {time}"), steps));
         }
         steps.push(RefinementStep {
             nx: grid.nx,
@@ -740,6 +778,15 @@ pub fn mfpt_refined(
         });
         if let [.., prev, last] = steps[..] {
             let change = (last.time - prev.time).abs() / last.time;
+            if change > BREAKDOWN_CHANGE {
+                return Err(breakdown(
+                    format!(
+                        "T went from {:.4e} to {:.4e} on refinement",
+                        prev.time, last.time
+                    ),
+                    steps,
+                ));
+            }
             if change < tol {
                 return Ok(study(steps, change));
             }
@@ -748,6 +795,7 @@ pub fn mfpt_refined(
                     change,
                     tol,
                     max_cells,
+                    study: Box::new(study(steps, change)),
                 });
             }
         }
