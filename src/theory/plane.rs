@@ -142,6 +142,12 @@ pub enum Region {
     },
 }
 
+/// The unit vector from a to b.
+fn unit(a: Point, b: Point) -> [f64; 2] {
+    let d = dist(a, b);
+    [(b[0] - a[0]) / d, (b[1] - a[1]) / d]
+}
+
 fn dist(a: Point, b: Point) -> f64 {
     (a[0] - b[0]).hypot(a[1] - b[1])
 }
@@ -295,10 +301,6 @@ pub fn regions(l: &SurfaceLandscape, product_radius: Option<f64>, slack: f64) ->
         );
     }
     let pts = &l.mep.points;
-    let unit = |a: Point, b: Point| {
-        let d = dist(a, b);
-        [(b[0] - a[0]) / d, (b[1] - a[1]) / d]
-    };
     let n = pts.len();
     let t_a = unit(pts[1].position, pts[0].position);
     let t_b = unit(pts[n - 2].position, pts[n - 1].position);
@@ -526,10 +528,6 @@ fn project(sys: &PlaneSystem, l: &SurfaceLandscape) -> Result<MepProjection, Pla
     let step = length / (n - 1) as f64;
     let first = l.steps.first().map_or(0.5 * length, |st| st.s);
     let last = l.steps.last().map_or(0.5 * length, |st| st.s);
-    let unit = |a: Point, b: Point| {
-        let d = dist(a, b);
-        [(b[0] - a[0]) / d, (b[1] - a[1]) / d]
-    };
     let (pa, pb) = (pts[0].position, pts[n - 1].position);
     let before = ray(surface, pa, unit(pts[1].position, pa), step);
     let after = ray(surface, pb, unit(pts[n - 2].position, pb), step);
