@@ -49,6 +49,8 @@ pub struct PlaneModel {
     pub system: crate::system::PlaneSystem,
     /// a short description of the surface for reports
     pub surface_label: String,
+    /// what the scenario gave but this version does not use (shown as warnings)
+    pub notes: Vec<String>,
 }
 
 /// A study of either dimension: the dimension is a property of the loaded system.

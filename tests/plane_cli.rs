@@ -475,3 +475,25 @@ fn absent_grid_nodes_are_warned_about() {
         }
     }
 }
+
+/// A `[simulation]` section is not yet read for two coordinates: survey and rate say so instead
+/// of ignoring it silently (common practice, no source: no silent no-ops).
+#[test]
+fn an_unread_simulation_section_is_warned_about() {
+    let text = "[surface]\nexpr = \"4*(x^2-1)^2 + 2*y^2\"\nx = [-1.5, 1.5]\ny = [-1, 1]\n[particle]\ndiffusion = 1.0\n";
+    for (name, extra, warned) in [
+        ("sim_absent", "", false),
+        ("sim_given", "[simulation]\ntrajectories = 100\n", true),
+    ] {
+        let p = scenario(name, &format!("{text}{extra}"), &[]);
+        for cmd in ["survey", "rate"] {
+            let j = json(&[cmd, p.to_str().unwrap(), "--json"]);
+            let w = j["warnings"].to_string();
+            assert_eq!(
+                w.contains("[simulation] is not read"),
+                warned,
+                "{name} {cmd}: {w}"
+            );
+        }
+    }
+}

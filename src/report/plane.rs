@@ -288,7 +288,12 @@ impl PlaneSurveyReport {
         Self {
             header: header(m),
             landscape: landscape(m, l),
-            warnings: crate::theory::plane::surface_warnings(&m.system),
+            warnings: m
+                .notes
+                .iter()
+                .cloned()
+                .chain(crate::theory::plane::surface_warnings(&m.system))
+                .collect(),
         }
     }
 }
@@ -339,7 +344,7 @@ impl PlaneRateReport {
                 mfpt_time: p.mfpt,
                 rates: p.rates,
             },
-            warnings: t.warnings.clone(),
+            warnings: m.notes.iter().chain(&t.warnings).cloned().collect(),
         }
     }
 }

@@ -253,6 +253,16 @@ impl Validator<'_> {
             },
             units,
             surface_label: label,
+            notes: pf
+                .simulation
+                .iter()
+                .map(|_| {
+                    format!(
+                        "{}: [simulation] is not read for two-coordinate scenarios yet (survey and rate do not simulate)",
+                        self.file
+                    )
+                })
+                .collect(),
         })
     }
 
