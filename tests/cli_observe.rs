@@ -4,7 +4,9 @@
 //! and one as a NumPy .npy file. Fixed seeds; tolerances of about 4 standard errors plus the
 //! stated biases.
 
-use assert_cmd::Command;
+mod common;
+use common::{json, run};
+
 use escapade::seed;
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -103,35 +105,14 @@ fn path(name: &str) -> String {
     dir().join(name).display().to_string()
 }
 
-fn escapade(args: &[&str]) -> std::process::Output {
-    Command::cargo_bin("escapade")
-        .unwrap()
-        .env_remove("RUST_BACKTRACE")
-        .args(args)
-        .output()
-        .unwrap()
-}
-
 /// `observe` of both trajectories in the model's units, with `extra` arguments.
 fn observe_both(extra: &[&str]) -> std::process::Output {
     let (a, b, m) = (path("run0.csv"), path("run1.npy"), path("model.toml"));
-    escapade(
-        &[
-            &["observe", a.as_str(), b.as_str(), "--scenario", m.as_str()][..],
-            extra,
-        ]
-        .concat(),
-    )
-}
-
-fn json_of(args: &[&str]) -> Value {
-    let out = escapade(args);
-    assert!(
-        out.status.success(),
-        "{args:?}: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
+    run(&[
+        &["observe", a.as_str(), b.as_str(), "--scenario", m.as_str()][..],
+        extra,
+    ]
+    .concat())
 }
 
 /// The observed run of both trajectories in the model's units (its picture: observed.svg).
@@ -168,7 +149,7 @@ fn table_shows_both_rates_in_the_scenario_units() {
         assert!(text.contains(want), "no \"{want}\" in\n{text}");
     }
     // without a scenario the output says that it is in reduced units
-    let out = escapade(&["observe", &path("run0.csv"), "-q"]);
+    let out = run(&["observe", &path("run0.csv"), "-q"]);
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("reduced units") && text.contains("rate (1/τ)"));
 }
@@ -238,7 +219,7 @@ fn json_has_the_documented_keys_and_the_exact_rate() {
     }
     // kT at 300 K is R·300 K = 2.494339 kJ/mol (CODATA 2018)
     assert!((r["kT"].as_f64().unwrap() - 2.494_339).abs() < 1e-6);
-    let exact = json_of(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
+    let exact = json(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
         .as_f64()
         .unwrap();
     for dir in ["forward", "backward"] {
@@ -284,7 +265,7 @@ fn written_profile_gives_the_barrier_back_through_rate() {
     // U is written in kJ/mol: its range is several kT of 2.494 kJ/mol
     let top = rows.iter().map(|r| r[1]).fold(0.0, f64::max);
     assert!(top > 3.0 * 2.494, "U column not in kJ/mol: top {top}");
-    let rate = json_of(&["rate", &toml, "--json"]);
+    let rate = json(&["rate", &toml, "--json"]);
     let l = &rate["landscape"];
     let eb = l["barrier_height_kT"].as_f64().unwrap();
     let near = |x: f64| {
@@ -314,8 +295,8 @@ fn columns_are_numbered_from_one() {
         s.push_str(&format!("{i} {} {x}\n", (i + 1) as f64 * DT * EVERY as f64));
     }
     std::fs::write(dir().join("three.txt"), s).unwrap();
-    let a = json_of(&["observe", &path("short.csv"), "--json"]);
-    let b = json_of(&[
+    let a = json(&["observe", &path("short.csv"), "--json"]);
+    let b = json(&[
         "observe",
         &path("three.txt"),
         "--time",
@@ -336,7 +317,7 @@ fn no_transition_gives_a_warning_and_no_rate() {
     let xs = trajectory(5, 12.0, 100_000);
     write_text(&dir().join("stuck.csv"), &xs);
     let args = ["observe", &path("stuck.csv"), "--cores=-1.3:-0.7,0.7:1.3"];
-    let r = json_of(&[&args[..], &["--json"]].concat());
+    let r = json(&[&args[..], &["--json"]].concat());
     let f = &r["kinetics"]["forward"];
     assert_eq!(f["transitions"], 0);
     assert!(f["rate"].is_null() && f["ci95"].is_null());
@@ -348,7 +329,7 @@ fn no_transition_gives_a_warning_and_no_rate() {
         .map(|v| v.as_str().unwrap())
         .collect();
     assert!(w.iter().any(|s| s.contains("no A → B transition")), "{w:?}");
-    let text = String::from_utf8(escapade(&args).stdout).unwrap();
+    let text = String::from_utf8(run(&args).stdout).unwrap();
     assert!(text.contains("warning: no A → B transition") && text.contains("below"));
 }
 
@@ -357,7 +338,7 @@ fn bad(name: &str, content: &str, extra: &[&str]) -> (Option<i32>, String) {
     let p = dir().join(name);
     std::fs::write(&p, content).unwrap();
     let p = p.display().to_string();
-    let out = escapade(&[&["observe", p.as_str()][..], extra].concat());
+    let out = run(&[&["observe", p.as_str()][..], extra].concat());
     assert!(out.stdout.is_empty(), "{name}: stdout not empty");
     (out.status.code(), String::from_utf8(out.stderr).unwrap())
 }
@@ -402,7 +383,7 @@ fn bad_files_name_the_file_and_the_line() {
         assert_one_line(name, code, &err, &[name, line, what]);
     }
     let missing = path("no_such_file.csv");
-    let out = escapade(&["observe", &missing]);
+    let out = run(&["observe", &missing]);
     let err = String::from_utf8(out.stderr).unwrap();
     assert_one_line(
         "missing",
@@ -634,8 +615,8 @@ fn profile_has_d_columns_and_rate_reads_them() {
     }
     let scenario = std::fs::read_to_string(toml).unwrap();
     assert!(!scenario.contains("[particle]"), "{scenario}");
-    let rate = json_of(&["rate", toml, "--json"]);
-    let exact = json_of(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
+    let rate = json(&["rate", toml, "--json"]);
+    let exact = json(&["rate", &path("model.toml"), "--json"])["rates"]["mfpt"]
         .as_f64()
         .unwrap();
     let k = rate["rates"]["mfpt"].as_f64().unwrap();
@@ -728,7 +709,7 @@ fn written_scenario_keeps_only_the_mass_beside_a_d_column() {
         .replace("temperature = 300", "temperature = 300\nmass = \"amu\"");
     std::fs::write(dir().join("inertial.toml"), model).unwrap();
     let (csv, toml) = (path("profile_m.csv"), path("fitted_m.toml"));
-    let r = json_of(&[
+    let r = json(&[
         "observe",
         &path("run0.csv"),
         "--scenario",
@@ -852,7 +833,7 @@ fn plot_shows_u_with_its_error_bars_and_the_cores() {
     assert!(!t.iter().any(|s| s.starts_with("D (")));
     // reduced units
     let svg = path("observed_reduced.svg");
-    let out = escapade(&["observe", &path("run0.csv"), "--plot", &svg]);
+    let out = run(&["observe", &path("run0.csv"), "--plot", &svg]);
     assert!(out.status.success());
     let text = std::fs::read_to_string(&svg).unwrap();
     let doc = roxmltree::Document::parse(&text).unwrap();

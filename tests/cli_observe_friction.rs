@@ -3,7 +3,9 @@
 //! here from fixed-seed streams (`escapade::seed::stream`). Tolerances: about 4 standard errors
 //! plus the stated discretisation biases.
 
-use assert_cmd::Command;
+mod common;
+use common::{json, run};
+
 use escapade::observe::velocity::fd_factor;
 use escapade::seed;
 use rand::RngExt;
@@ -136,25 +138,6 @@ fn path(name: &str) -> String {
     dir().join(name).display().to_string()
 }
 
-fn escapade(args: &[&str]) -> std::process::Output {
-    Command::cargo_bin("escapade")
-        .unwrap()
-        .env_remove("RUST_BACKTRACE")
-        .args(args)
-        .output()
-        .unwrap()
-}
-
-fn json_of(args: &[&str]) -> Value {
-    let out = escapade(args);
-    assert!(
-        out.status.success(),
-        "{args:?}: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
-}
-
 /// |value − truth| ≤ 4 se + bias, and se below `max_rel` of the truth (so that the check means
 /// something).
 fn near(what: &str, e: &Value, truth: f64, bias: f64, max_rel: f64) {
@@ -181,7 +164,7 @@ const FAR_CORES: &str = "--cores=-1000:-900,900:1000";
 // resolved.
 #[test]
 fn velocity_column_gives_the_friction() {
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("free.csv"),
         "--velocity",
@@ -207,7 +190,7 @@ fn velocity_column_gives_the_friction() {
 #[test]
 fn central_differences_state_their_bias() {
     let (m, g, h, _) = FREE;
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("free.csv"),
         "--friction",
@@ -219,7 +202,7 @@ fn central_differences_state_their_bias() {
     near("γ", &r["gamma"], g * fd_factor(g * h), 0.0, 0.1);
     let bias = r["fd_bias"].as_f64().unwrap();
     assert!((bias - (fd_factor(g * h) - 1.0)).abs() < 1e-3, "{bias}");
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("free.csv"),
         "--friction",
@@ -232,7 +215,7 @@ fn central_differences_state_their_bias() {
     assert_eq!(r["mass_given"], true);
     assert_eq!(r["mass"]["value"].as_f64(), Some(m));
     near("γ (given m)", &r["gamma"], g, 0.0, 0.1);
-    let t = escapade(&["observe", &path("free.csv"), "--friction", FAR_CORES]);
+    let t = run(&["observe", &path("free.csv"), "--friction", FAR_CORES]);
     let text = String::from_utf8(t.stdout).unwrap();
     for want in [
         "friction from central-difference",
@@ -253,7 +236,7 @@ fn central_differences_state_their_bias() {
 #[test]
 fn written_scenario_carries_the_friction_and_rate_diagnoses_it() {
     let (prof, scen) = (path("well_profile.csv"), path("well.toml"));
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("well.csv"),
         "--velocity",
@@ -287,7 +270,7 @@ fn written_scenario_carries_the_friction_and_rate_diagnoses_it() {
     );
     assert!(!text.contains("fill in"), "{text}");
     let regime = f["regime"]["name"].as_str().expect("a regime").to_string();
-    let rate = json_of(&["rate", &scen, "--json"]);
+    let rate = json(&["rate", &scen, "--json"]);
     assert_eq!(rate["regime"]["name"].as_str(), Some(regime.as_str()));
     // memory_time only with a resolved, well-determined kernel fit (main.rs ObservedParticle)
     match &r["kernel"]["fit"] {
@@ -308,7 +291,7 @@ fn written_scenario_carries_the_friction_and_rate_diagnoses_it() {
 #[test]
 fn weak_friction_in_a_double_well_takes_the_kernel_route() {
     let (prof, scen) = (path("weak_profile.csv"), path("weak.toml"));
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("weak.csv"),
         "--velocity",
@@ -335,8 +318,7 @@ fn weak_friction_in_a_double_well_takes_the_kernel_route() {
         .expect("friction written");
     assert!((written - r["gamma"]["value"].as_f64().unwrap()).abs() < 1e-12 * g);
     let table =
-        String::from_utf8(escapade(&["observe", &path("weak.csv"), "--velocity", "v"]).stdout)
-            .unwrap();
+        String::from_utf8(run(&["observe", &path("weak.csv"), "--velocity", "v"]).stdout).unwrap();
     for want in ["force share φ", "γ, Green–Kubo", "not used"] {
         assert!(table.contains(want), "no {want:?} in {table}");
     }
@@ -347,7 +329,7 @@ fn weak_friction_in_a_double_well_takes_the_kernel_route() {
 #[test]
 fn a_d_column_keeps_the_friction_out() {
     let (prof, scen) = (path("well_d_profile.csv"), path("well_d.toml"));
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("well.csv"),
         "--velocity",
@@ -379,7 +361,7 @@ fn a_d_column_keeps_the_friction_out() {
 // centres, and a spring given in kJ/mol/nm² is converted to kT/nm².
 #[test]
 fn windows_give_d_at_their_means() {
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("win1.csv"),
         &path("win2.csv"),
@@ -404,7 +386,7 @@ fn windows_give_d_at_their_means() {
         "[units]\nenergy = \"kJ/mol\"\nlength = \"nm\"\ntime = \"ps\"\ntemperature = 300\n\n[particle]\ndiffusion = 1\n\n[potential]\nfamily = \"double-well\"\nbarrier = 5\nhalf_width = 1\n\n[states]\nstart = -1\n",
     )
     .unwrap();
-    let f = json_of(&[
+    let f = json(&[
         "observe",
         &path("win1.csv"),
         "--spring",
@@ -416,8 +398,8 @@ fn windows_give_d_at_their_means() {
     let kt = f["kT"].as_f64().unwrap();
     let got = f["windows"][0]["spring_kT"].as_f64().unwrap();
     assert!((got - 10.0 / kt).abs() < 1e-12 * got, "{got}");
-    let text = String::from_utf8(escapade(&["observe", &path("win1.csv"), "--spring", "4"]).stdout)
-        .unwrap();
+    let text =
+        String::from_utf8(run(&["observe", &path("win1.csv"), "--spring", "4"]).stdout).unwrap();
     assert!(
         text.contains("restrained windows") && text.contains("95% interval"),
         "{text}"
@@ -425,7 +407,7 @@ fn windows_give_d_at_their_means() {
 }
 
 fn assert_one_line(args: &[&str], wants: &[&str]) {
-    let out = escapade(args);
+    let out = run(args);
     let err = String::from_utf8(out.stderr).unwrap();
     assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
     assert!(out.stdout.is_empty(), "{args:?}");

@@ -210,11 +210,7 @@ impl Study {
         if !is_plane(text, overrides) {
             return Model::from_text(text, file, base, overrides).map(|m| Study::Line(Box::new(m)));
         }
-        let validator = Validator {
-            file,
-            base,
-            overridden: overrides.iter().map(|o| o.path.join(".")).collect(),
-        };
+        let validator = Validator::new(file, base, overrides);
         let pf: PlaneFile =
             parse_overridden(text, file, overrides, validator.scale(text, overrides)?)?;
         validator.build_plane(pf).map(|m| Study::Plane(Box::new(m)))
@@ -273,12 +269,7 @@ impl Model {
         base: &Path,
         overrides: &[Override],
     ) -> Result<Self, ScenarioError> {
-        let overridden = overrides.iter().map(|o| o.path.join(".")).collect();
-        let validator = Validator {
-            file,
-            base,
-            overridden,
-        };
+        let validator = Validator::new(file, base, overrides);
         if is_plane(text, overrides) {
             return Err(validator.err(
                 "surface",

@@ -54,7 +54,16 @@ pub(super) struct Validator<'a> {
     pub(super) overridden: Vec<String>,
 }
 
-impl Validator<'_> {
+impl<'a> Validator<'a> {
+    /// A validator for `file`, remembering which keys `--set` gave.
+    pub(super) fn new(file: &'a str, base: &'a Path, overrides: &[super::Override]) -> Self {
+        Self {
+            file,
+            base,
+            overridden: overrides.iter().map(|o| o.path.join(".")).collect(),
+        }
+    }
+
     pub(super) fn err(&self, key: &str, message: impl Into<String>) -> ScenarioError {
         let from_set = self.overridden.iter().any(|k| k == key);
         ScenarioError::Key {

@@ -27,13 +27,19 @@ pub fn json(args: &[&str]) -> serde_json::Value {
     serde_json::from_str(&stdout(args)).unwrap()
 }
 
-/// Runs the binary with `args` and returns its standard output (the run must succeed).
-pub fn stdout(args: &[&str]) -> String {
-    let out = assert_cmd::Command::cargo_bin("escapade")
+/// Runs the binary with `args` (no backtrace requested, so a user error prints one line).
+pub fn run(args: &[&str]) -> std::process::Output {
+    assert_cmd::Command::cargo_bin("escapade")
         .unwrap()
+        .env_remove("RUST_BACKTRACE")
         .args(args)
         .output()
-        .unwrap();
+        .unwrap()
+}
+
+/// Runs the binary with `args` and returns its standard output (the run must succeed).
+pub fn stdout(args: &[&str]) -> String {
+    let out = run(args);
     assert!(
         out.status.success(),
         "{args:?}: {}",
